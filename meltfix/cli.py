@@ -1,0 +1,66 @@
+"""The plain command line. It never loads the terminal screen unless asked to open it.
+
+Each command lives in ``meltfix.commands.<name>`` with ``add_arguments(parser)`` and
+``run(args) -> int``; this module only dispatches and turns bad input into exit status 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from collections.abc import Sequence
+
+from meltfix import __version__
+from meltfix.errors import InputError
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_CLOSEST = 3
+
+# command -> (module under meltfix.commands, one-line summary)
+COMMANDS = {
+    "solve": ("solve", "plan the additions for one or more heat files"),
+    "import": ("import_export", "read a spectrometer export (burns averaged, outliers flagged)"),
+    "report": ("report", "the supervisor's cost report from the logbook"),
+    "replay": ("replay", "step through a recorded heat beside the plans meltfix would make"),
+    "screen": ("screen", "open the terminal screen (the default when no command is given)"),
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="meltfix",
+        description="Plan the cheapest additions that bring a heat of steel or iron into its grade. "
+        "Run with no command (or with a HEAT.toml) to open the terminal screen.",
+        epilog="meltfix advises; a qualified person decides, under local codes and the shop's own procedures.",
+    )
+    parser.add_argument("--version", action="version", version=f"meltfix {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name, (module_name, summary) in COMMANDS.items():
+        module = importlib.import_module(f"meltfix.commands.{module_name}")
+        command = sub.add_parser(name, help=summary, description=summary[0].upper() + summary[1:] + ".")
+        module.add_arguments(command)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args_list = list(sys.argv[1:] if argv is None else argv)
+    # `meltfix` alone or `meltfix HEAT.toml [--recipes DIR]` opens the screen.
+    if not args_list or (args_list[0] not in COMMANDS and not args_list[0].startswith("-")) \
+            or args_list[0] == "--recipes":
+        args_list.insert(0, "screen")
+    parser = build_parser()
+    args = parser.parse_args(args_list)
+    module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
+    try:
+        return int(module.run(args))
+    except InputError as exc:
+        print(f"meltfix: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

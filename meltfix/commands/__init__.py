@@ -1,0 +1,1 @@
+"""One module per command of the plain command line (see meltfix.cli)."""

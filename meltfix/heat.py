@@ -1,0 +1,134 @@
+"""A heat to be trimmed: what HEAT.toml holds (DESIGN §6), plus this heat's own overrides."""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from meltfix.analysis import Analysis, analysis_from_table
+from meltfix.errors import InputError
+from meltfix.recipes import RecipeBook, number, read_toml, require, table, text
+
+_HEAT_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "analysis", "temperature_c", "max_temp_drop_c",
+              "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg"}
+
+
+@dataclass(frozen=True)
+class Heat:
+    """One heat at one sample: its bath, its analysis and this heat's changes to the recipe book."""
+
+    heat_id: str
+    grade: str
+    bath_kg: float
+    """Liquid bath mass now [kg]."""
+    analysis: Analysis
+    capacity_kg: float | None = None
+    """Most liquid the vessel can hold [kg]; None = not limited."""
+    temperature_c: float | None = None
+    """Bath temperature at the sample [°C], when measured."""
+    max_temp_drop_c: float | None = None
+    """Largest drop the additions may cause [°C]; None = the shop's setting."""
+    stage: str = "ladle"
+    switched_off: frozenset[str] = frozenset()
+    """Materials not to be used on this heat."""
+    locked_kg: Mapping[str, float] = field(default_factory=dict)
+    """Materials fixed at an amount [kg] (e.g. already weighed out)."""
+    price_per_kg: Mapping[str, float] = field(default_factory=dict)
+    """This heat's price overrides [currency/kg]."""
+    stock_kg: Mapping[str, float] = field(default_factory=dict)
+    """This heat's stock overrides [kg]."""
+
+    def with_changes(self, **changes: Any) -> "Heat":
+        return replace(self, **changes)
+
+
+def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat:
+    """Check a heat against the recipe book; raise InputError naming the field at fault."""
+    if not math.isfinite(heat.bath_kg) or heat.bath_kg <= 0:
+        raise InputError(source, "bath_kg", f"must be a finite weight above 0 kg, got {heat.bath_kg!r}")
+    if heat.grade not in book.grades:
+        known = ", ".join(book.grades)
+        raise InputError(source, "grade", f"unknown grade '{heat.grade}' (the recipe book has: {known})")
+    if heat.capacity_kg is not None:
+        if not math.isfinite(heat.capacity_kg):
+            raise InputError(source, "capacity_kg", f"must be finite, got {heat.capacity_kg!r}")
+        if heat.capacity_kg < heat.bath_kg:
+            raise InputError(source, "capacity_kg",
+                             f"{heat.capacity_kg:g} kg is less than the bath itself ({heat.bath_kg:g} kg)")
+    names = set(book.material_names)
+    for label, entries in (("switch_off", heat.switched_off), ("lock_kg", heat.locked_kg),
+                           ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg)):
+        for name in entries:
+            if name not in names:
+                raise InputError(source, f"{label}.{name}" if label != "switch_off" else label,
+                                 f"no material named '{name}' in the recipe book")
+    for name, kg in heat.locked_kg.items():
+        stock = heat.stock_kg.get(name, book.material(name).stock_kg)
+        if stock is not None and kg > stock + 1e-9:
+            raise InputError(source, f"lock_kg.{name}", f"{kg:g} kg is more than the {stock:g} kg in stock")
+        if name in heat.switched_off:
+            raise InputError(source, f"lock_kg.{name}", "is locked but also switched off")
+        if name in book.grades[heat.grade].forbidden:
+            raise InputError(source, f"lock_kg.{name}", f"grade '{heat.grade}' forbids this material")
+    return heat
+
+
+def _weights(raw: Any, source: object, key: str) -> dict[str, float]:
+    return {name: number(value, source, f"{key}.{name}") for name, value in table(raw, source, key).items()}
+
+
+def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat:
+    for key in data:
+        if key not in _HEAT_KEYS:
+            raise InputError(source, key, f"unknown key (expected one of: {', '.join(sorted(_HEAT_KEYS))})")
+    capacity = data.get("capacity_kg")
+    temperature = data.get("temperature_c")
+    drop = data.get("max_temp_drop_c")
+    switch_off = data.get("switch_off", [])
+    if not isinstance(switch_off, list) or not all(isinstance(n, str) for n in switch_off):
+        raise InputError(source, "switch_off", "expected a list of material names")
+    heat_id = data.get("heat", default_id)
+    if isinstance(heat_id, int) and not isinstance(heat_id, bool):
+        heat_id = str(heat_id)
+    return Heat(
+        heat_id=text(heat_id, source, "heat"),
+        grade=text(require(data, "grade", source, ""), source, "grade"),
+        bath_kg=number(require(data, "bath_kg", source, ""), source, "bath_kg", positive=True),
+        analysis=analysis_from_table(table(require(data, "analysis", source, ""), source, "analysis"),
+                                     source, "analysis"),
+        capacity_kg=None if capacity is None else number(capacity, source, "capacity_kg", positive=True),
+        temperature_c=None if temperature is None else number(temperature, source, "temperature_c"),
+        max_temp_drop_c=None if drop is None else number(drop, source, "max_temp_drop_c"),
+        stage=text(data.get("stage", "ladle"), source, "stage"),
+        switched_off=frozenset(switch_off),
+        locked_kg=MappingProxyType(_weights(data.get("lock_kg", {}), source, "lock_kg")),
+        price_per_kg=MappingProxyType(_weights(data.get("price_per_kg", {}), source, "price_per_kg")),
+        stock_kg=MappingProxyType(_weights(data.get("stock_kg", {}), source, "stock_kg")),
+    )
+
+
+def load_heat(path: Path | str, book: RecipeBook) -> Heat:
+    """Read and validate a HEAT.toml file against the recipe book."""
+    path = Path(path)
+    heat = parse_heat(read_toml(path), path, default_id=path.stem)
+    return validate_heat(heat, book, path)
+
+
+def heat_to_toml(heat: Heat) -> str:
+    """Write a heat back as HEAT.toml text (values below the detection limit as "<x" strings)."""
+    # JSON string escapes are valid TOML basic strings; repr keeps every digit of a float.
+    lines = [f"heat = {json.dumps(heat.heat_id)}", f"grade = {json.dumps(heat.grade)}", f"bath_kg = {heat.bath_kg!r}"]
+    if heat.capacity_kg is not None:
+        lines.append(f"capacity_kg = {heat.capacity_kg!r}")
+    if heat.temperature_c is not None:
+        lines.append(f"temperature_c = {heat.temperature_c!r}")
+    lines += ["", "[analysis]"]
+    for symbol, pct in heat.analysis.pct.items():
+        value = json.dumps(f"<{pct!r}") if symbol in heat.analysis.below_limit else repr(pct)
+        lines.append(f"{symbol} = {value}")
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,26 @@
+"""Where the built-in shop data is, both in a source checkout and after a normal install."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+_PACKAGE = Path(__file__).resolve().parent
+
+
+def _data_dir(name: str) -> Path:
+    # A wheel carries the data inside the package (see pyproject's force-include); an editable
+    # install or a source checkout reads it from the repository root.
+    for candidate in (_PACKAGE / "_data" / name, _PACKAGE.parent / name):
+        if candidate.is_dir():
+            return candidate
+    raise FileNotFoundError(f"meltfix's built-in {name}/ folder is missing from this installation")
+
+
+def default_recipes_dir() -> Path:
+    """The demo shop's recipe book (materials and grades)."""
+    return _data_dir("recipes")
+
+
+def demo_dir() -> Path:
+    """The demo shop's heats, spectrometer exports and recorded heats."""
+    return _data_dir("demo")

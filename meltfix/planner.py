@@ -1,0 +1,499 @@
+"""The addition planner: the cheapest additions that bring a heat into its grade (DESIGN §2).
+
+The problem is built once as NumPy matrices and solved with SciPy's HiGHS. The decision per
+material is its mass [kg], or its number of packs when it comes in bags, bales or coils. Windows
+are linear once multiplied out by the final bath mass, so the optimum is exact, not approximated:
+
+    m_i = W c_i + sum_j Y_ij x_j,   M = W + sum_j g_j x_j,   lo_i M <= m_i <= hi_i M
+
+When no plan meets every window, an elastic version finds the plan with the least violation
+(weighted relative to each limit), then the cheapest such plan.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import Bounds, LinearConstraint, linprog, milp
+
+from meltfix.cautions import plan_cautions
+from meltfix.elements import element_sort_key
+from meltfix.errors import InputError
+from meltfix.heat import Heat, validate_heat
+from meltfix.massbalance import bath_after, temperature_drop_c
+from meltfix.reasons import explain_violation
+from meltfix.recipes import Material, RecipeBook
+
+# Kilograms of element off aim -> penalty: 0.01 wt % of a bath of M kg is M/10000 kg, per tonne
+# of bath that is M/1000 t, so w currency per (0.01 % x t) is exactly 10 w per kg off aim.
+_AIM_PENALTY_PER_KG = 10.0
+_HIGHS_QUIET = {"disp": False}
+_TOL = 1e-7
+
+
+@dataclass(frozen=True)
+class PlanOptions:
+    """How to plan: the defaults are what a melt shop wants on a normal heat."""
+
+    use_aim: bool = True
+    """Pull the heat towards the grade's aims; False gives the cheapest plan inside the windows."""
+    continuous: bool = False
+    """Treat materials sold in packs as loose (any amount)."""
+    aim_penalty: float | None = None
+    """Aim weight [currency per 0.01 wt % off aim per tonne of bath]; None = the shop's setting."""
+    mip_rel_gap: float = 1e-6
+    """Relative optimality gap for plans with whole packs."""
+    time_limit_s: float = 20.0
+
+
+@dataclass(frozen=True)
+class Addition:
+    """One line of the plan."""
+
+    material: str
+    kg: float
+    """Mass to add [kg]."""
+    cost: float
+    """kg x price [currency]."""
+    packs: int | None = None
+    """Number of whole packs, when the material comes in packs."""
+    pack_kg: float | None = None
+
+
+@dataclass(frozen=True)
+class LimitCheck:
+    """The predicted content against one limit of the grade."""
+
+    element: str
+    """Element symbol, or an index name such as "CEV"."""
+    limit: str
+    """"min" or "max"."""
+    limit_pct: float
+    predicted_pct: float
+    margin_pct: float
+    """How far inside the limit [wt %]; negative when outside."""
+
+
+@dataclass(frozen=True)
+class Violation:
+    """A limit the closest plan still misses, with the reason in plain words."""
+
+    element: str
+    limit: str
+    limit_pct: float
+    predicted_pct: float
+    by_pct: float
+    """How far outside [wt %], always positive."""
+    reason: str
+
+
+@dataclass(frozen=True)
+class Binding:
+    """A limit that holds the plan back, and what loosening it by one unit would save."""
+
+    name: str
+    """What binds, in words ("vessel capacity", "Mn max", "stock of FeV 80")."""
+    saving: float
+    """Saving [currency] from one more ``unit``."""
+    unit: str
+    """The unit of loosening, in words ("1 t more free capacity")."""
+
+
+@dataclass(frozen=True)
+class Plan:
+    """The planner's answer for one heat. All masses [kg], contents [wt %], costs [currency]."""
+
+    heat_id: str
+    grade: str
+    status: str
+    """"optimal" when every window is met, "closest" otherwise."""
+    additions: tuple[Addition, ...]
+    total_cost: float
+    """Cost of the additions [currency] (the aim penalty is not a cost and is left out)."""
+    bath_kg: float
+    final_kg: float
+    """Bath mass after the additions dissolve [kg]."""
+    predicted_pct: Mapping[str, float]
+    checks: tuple[LimitCheck, ...]
+    violations: tuple[Violation, ...]
+    binding: tuple[Binding, ...]
+    cautions: tuple[str, ...]
+    temperature_drop_c: float
+    """Predicted cooling by the additions [°C] (negative = the bath warms)."""
+    notes: tuple[str, ...] = ()
+    currency: str = "EUR"
+
+    @property
+    def cost_per_t(self) -> float:
+        """Cost per tonne of final bath [currency/t]."""
+        return self.total_cost / (self.final_kg / 1000.0)
+
+    @property
+    def added_kg(self) -> float:
+        return math.fsum(a.kg for a in self.additions)
+
+    def to_json(self) -> dict[str, object]:
+        """The JSON object of DESIGN §6 (numbers unrounded), with a few extra fields."""
+        return {
+            "heat": self.heat_id,
+            "grade": self.grade,
+            "status": self.status,
+            "additions": [
+                {"material": a.material, "kg": a.kg, "cost": a.cost, "packs": a.packs} for a in self.additions
+            ],
+            "total_cost": self.total_cost,
+            "cost_per_t": self.cost_per_t,
+            "currency": self.currency,
+            "bath_kg": self.bath_kg,
+            "final_kg": self.final_kg,
+            "predicted": dict(self.predicted_pct),
+            "violations": [
+                {"element": v.element, "limit": v.limit, "limit_pct": v.limit_pct,
+                 "predicted_pct": v.predicted_pct, "by": v.by_pct, "reason": v.reason}
+                for v in self.violations
+            ],
+            "checks": [
+                {"element": c.element, "limit": c.limit, "limit_pct": c.limit_pct,
+                 "predicted_pct": c.predicted_pct, "margin_pct": c.margin_pct}
+                for c in self.checks
+            ],
+            "binding": [{"name": b.name, "saving": b.saving, "unit": b.unit} for b in self.binding],
+            "temperature_drop_c": self.temperature_drop_c,
+            "cautions": list(self.cautions),
+            "notes": list(self.notes),
+        }
+
+
+@dataclass(frozen=True)
+class _Row:
+    """One window row of the LP: label, kind and limit, for reading duals and violations back."""
+
+    element: str
+    limit: str
+    limit_pct: float
+
+
+@dataclass
+class _Model:
+    """The LP/MILP for one heat, as matrices. Variables: v (per material), d+ d- (per aim), y (binaries)."""
+
+    materials: list[Material]
+    scale: np.ndarray  # kg per unit of v (pack mass, or 1)
+    packed: np.ndarray  # bool per material
+    c: np.ndarray
+    a_ub: np.ndarray
+    b_ub: np.ndarray
+    a_eq: np.ndarray
+    b_eq: np.ndarray
+    lb: np.ndarray
+    ub: np.ndarray
+    integrality: np.ndarray
+    window_rows: list[_Row]  # the first len(window_rows) rows of a_ub
+    capacity_row: int | None
+    temperature_row: int | None
+    aim_elements: list[str]
+    n_materials: int
+    prices: np.ndarray
+    bath_kg: float
+    notes: list[str] = field(default_factory=list)
+
+
+class Planner:
+    """Plans heats against one recipe book. Build once, plan many heats."""
+
+    def __init__(self, book: RecipeBook) -> None:
+        self.book = book
+
+    # -- building -------------------------------------------------------------------------
+    def _build(self, heat: Heat, options: PlanOptions) -> _Model:
+        book = self.book
+        grade = book.grade(heat.grade)
+        materials = [m for m in book.materials
+                     if m.name not in heat.switched_off and (m.name not in grade.forbidden or m.name in heat.locked_kg)]
+        n = len(materials)
+        bath = heat.bath_kg
+        notes: list[str] = []
+
+        index_terms = {s for index in grade.indices for s in index.terms}
+        elements = sorted(set(grade.window_pct) | index_terms | set(grade.aim_pct), key=element_sort_key)
+        row_of = {s: k for k, s in enumerate(elements)}
+        # Y[i, j]: fraction of material j's mass that dissolves as element i; g[j]: total dissolving.
+        yields = np.array([[m.yield_pct(s) / 100.0 for m in materials] for s in elements]).reshape(len(elements), n)
+        g = np.array([m.mass_yield for m in materials])
+        now = np.array([heat.analysis.get(s) / 100.0 for s in elements])
+        # A value below the detection limit is at most the limit: take it at the limit against a
+        # maximum and at zero against a minimum, so the plan is safe whatever the true value.
+        below = np.array([s in heat.analysis.below_limit for s in elements])
+        now_low = np.where(below, 0.0, now)
+        for s in grade.window_pct:
+            if s not in heat.analysis.pct:
+                notes.append(f"{s} is not in the analysis and is taken as 0 %")
+
+        prices = np.array([heat.price_per_kg.get(m.name, m.price_per_kg) for m in materials])
+        stock = np.array([_or_inf(heat.stock_kg.get(m.name, m.stock_kg)) for m in materials])
+        locked = np.array([m.name in heat.locked_kg for m in materials])
+        lock_kg = np.array([heat.locked_kg.get(m.name, 0.0) for m in materials])
+        pack = np.array([m.pack_kg or 0.0 for m in materials])
+        packed = (pack > 0) & ~locked & (not options.continuous)
+        scale = np.where(packed, pack, 1.0)
+        min_kg = np.array([m.min_kg for m in materials])
+        needs_switch = (min_kg > 0) & ~locked
+        chill = np.array([m.chill_per_kg_t for m in materials])
+
+        rows: list[np.ndarray] = []
+        rhs: list[float] = []
+        window_rows: list[_Row] = []
+
+        def add_limit(label: str, coeff: np.ndarray, level_low: float, level_high: float,
+                      low: float | None, high: float | None) -> None:
+            # coeff: dissolved fraction of the quantity per kg of each material; level: W-scaled now.
+            if low is not None and low > 0:
+                rows.append(-(coeff - low / 100.0 * g))
+                rhs.append(bath * (level_low - low / 100.0))
+                window_rows.append(_Row(label, "min", low))
+            if high is not None and high < 100:
+                rows.append(coeff - high / 100.0 * g)
+                rhs.append(bath * (high / 100.0 - level_high))
+                window_rows.append(_Row(label, "max", high))
+
+        for symbol, (low, high) in grade.window_pct.items():
+            k = row_of[symbol]
+            add_limit(symbol, yields[k], now_low[k], now[k], low, high)
+        for index in grade.indices:
+            weights = np.array([index.terms.get(s, 0.0) for s in elements])
+            add_limit(index.name, weights @ yields, float(weights @ now_low), float(weights @ now),
+                      index.min_value, index.max_value)
+
+        capacity_row = temperature_row = None
+        if heat.capacity_kg is not None:
+            capacity_row = len(rows)
+            rows.append(g.copy())
+            rhs.append(heat.capacity_kg - bath)
+        max_drop = heat.max_temp_drop_c if heat.max_temp_drop_c is not None else book.settings.max_temp_drop_c
+        if max_drop is not None:
+            temperature_row = len(rows)
+            rows.append(chill * 1000.0 / bath)
+            rhs.append(max_drop)
+
+        aim_elements = [s for s in grade.aim_pct if options.use_aim]
+        n_aim = len(aim_elements)
+        switch_idx = np.flatnonzero(needs_switch)
+        n_y = len(switch_idx)
+        n_vars = n + 2 * n_aim + n_y
+
+        # Materials -> v columns (x = scale * v).
+        a_ub = np.zeros((len(rows) + 2 * n_y, n_vars))
+        if rows:
+            a_ub[: len(rows), :n] = np.vstack(rows) * scale
+        b_ub = np.zeros(len(rows) + 2 * n_y)
+        b_ub[: len(rows)] = rhs
+        # Minimum sensible addition: x = 0 or min <= x <= U, with a binary y per such material.
+        upper_kg = np.minimum(stock, 10.0 * bath)
+        if heat.capacity_kg is not None:
+            upper_kg = np.minimum(upper_kg, (heat.capacity_kg - bath) / np.maximum(g, 1e-9))
+        for t, j in enumerate(switch_idx):
+            r0 = len(rows) + 2 * t
+            col = n + 2 * n_aim + t
+            a_ub[r0, j], a_ub[r0, col] = -scale[j], min_kg[j]
+            a_ub[r0 + 1, j], a_ub[r0 + 1, col] = scale[j], -max(upper_kg[j], min_kg[j])
+
+        a_eq = np.zeros((n_aim, n_vars))
+        b_eq = np.zeros(n_aim)
+        for t, symbol in enumerate(aim_elements):
+            k = row_of[symbol]
+            aim = grade.aim_pct[symbol] / 100.0
+            a_eq[t, :n] = (yields[k] - aim * g) * scale
+            a_eq[t, n + t] = -1.0
+            a_eq[t, n + n_aim + t] = 1.0
+            b_eq[t] = -bath * (now[k] - aim)
+
+        penalty = options.aim_penalty if options.aim_penalty is not None else book.settings.aim_penalty
+        c = np.concatenate([prices * scale, np.full(2 * n_aim, _AIM_PENALTY_PER_KG * penalty), np.zeros(n_y)])
+        lb = np.zeros(n_vars)
+        ub = np.full(n_vars, np.inf)
+        ub[:n] = np.where(packed, np.floor(stock / np.where(packed, pack, 1.0) + 1e-9), stock)
+        lb[:n] = np.where(locked, lock_kg, 0.0)
+        ub[:n] = np.where(locked, lock_kg, ub[:n])
+        ub[n + 2 * n_aim:] = 1.0
+        integrality = np.zeros(n_vars)
+        integrality[:n] = packed
+        integrality[n + 2 * n_aim:] = 1
+
+        return _Model(materials, scale, packed, c, a_ub, b_ub, a_eq, b_eq, lb, ub, integrality, window_rows,
+                      capacity_row, temperature_row, aim_elements, n, prices, bath, notes)
+
+    # -- solving --------------------------------------------------------------------------
+    def plan(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan:
+        """Plan one heat. Raises InputError when the heat does not fit the recipe book."""
+        validate_heat(heat, self.book)
+        model = self._build(heat, options)
+        solution = _solve(model.c, model.a_ub, model.b_ub, model.a_eq, model.b_eq, model.lb, model.ub,
+                          model.integrality, options)
+        status = "optimal"
+        if solution is None:
+            status = "closest"
+            solution = self._closest(model, options)
+        return self._result(heat, model, solution, status, options)
+
+    def _closest(self, model: _Model, options: PlanOptions) -> np.ndarray:
+        """Elastic windows: least total violation first (relative to each limit), then cost."""
+        n_rows = len(model.window_rows)
+        n_vars = len(model.c)
+        slack = np.zeros((model.a_ub.shape[0], n_rows))
+        slack[np.arange(n_rows), np.arange(n_rows)] = -1.0
+        a_ub = np.hstack([model.a_ub, slack])
+        a_eq = np.hstack([model.a_eq, np.zeros((model.a_eq.shape[0], n_rows))])
+        lb = np.concatenate([model.lb, np.zeros(n_rows)])
+        ub = np.concatenate([model.ub, np.full(n_rows, np.inf)])
+        integrality = np.concatenate([model.integrality, np.zeros(n_rows)])
+        # Violation weight: kilograms outside a limit relative to the limit's own mass in the bath,
+        # so 0.01 % over a 0.02 % limit counts far more than 0.01 % over a 1.5 % one.
+        limit_kg = np.array([max(row.limit_pct, 1e-3) / 100.0 for row in model.window_rows]) * model.bath_kg
+        weights = 1.0 / limit_kg
+        first = np.concatenate([np.zeros(n_vars), weights])
+        phase1 = _solve(first, a_ub, model.b_ub, a_eq, model.b_eq, lb, ub, integrality, options)
+        if phase1 is None:
+            raise InputError("heat", "lock_kg",
+                             "no plan is possible at all: the locked amounts alone break the vessel "
+                             "capacity or the temperature limit")
+        least = float(weights @ phase1[n_vars:])
+        cap_row = np.concatenate([np.zeros(n_vars), weights])
+        a_ub2 = np.vstack([a_ub, cap_row])
+        # A hair of slack on the least violation keeps phase 2 from buying costly alloys only to
+        # shave a millionth of a per cent off a residual (1e-4 = 0.01 % of a limit).
+        b_ub2 = np.append(model.b_ub, least * (1 + 1e-4) + 1e-4)
+        second = np.concatenate([model.c, np.zeros(n_rows)])
+        phase2 = _solve(second, a_ub2, b_ub2, a_eq, model.b_eq, lb, ub, integrality, options)
+        return (phase2 if phase2 is not None else phase1)[:n_vars]
+
+    def _result(self, heat: Heat, model: _Model, solution: np.ndarray, status: str,
+                options: PlanOptions) -> Plan:
+        book = self.book
+        grade = book.grade(heat.grade)
+        n = model.n_materials
+        kg = np.where(solution[:n] * model.scale > 1e-6, solution[:n] * model.scale, 0.0)
+        if np.any(model.packed):
+            kg = np.where(model.packed, np.round(solution[:n]) * model.scale, kg)
+        additions = []
+        used: list[tuple[Material, float]] = []
+        for j in np.flatnonzero(kg > 0):
+            material = model.materials[j]
+            packs = int(round(kg[j] / material.pack_kg)) if model.packed[j] and material.pack_kg else None
+            additions.append(Addition(material.name, float(kg[j]), float(kg[j] * model.prices[j]), packs,
+                                      material.pack_kg if packs is not None else None))
+            used.append((material, float(kg[j])))
+        final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used)
+        checks = _limit_checks(grade, predicted)
+        violations: list[Violation] = []
+        if status == "closest":
+            for check in checks:
+                if check.margin_pct < -1e-9:
+                    reason = explain_violation(check.element, check.limit, heat, book, model.materials, used,
+                                               final_kg, model.packed.any() and not options.continuous)
+                    violations.append(Violation(check.element, check.limit, check.limit_pct,
+                                                check.predicted_pct, -check.margin_pct, reason))
+            if not violations:
+                status = "optimal"  # the elastic solution met every window after rounding
+        drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
+        binding = self._sensitivity(model, solution, final_kg, options) if status == "optimal" else ()
+        cautions = plan_cautions(used, heat.bath_kg, drop, heat.temperature_c, book.settings)
+        return Plan(
+            heat_id=heat.heat_id,
+            grade=heat.grade,
+            status=status,
+            additions=tuple(additions),
+            total_cost=float(math.fsum(a.cost for a in additions)),
+            bath_kg=heat.bath_kg,
+            final_kg=final_kg,
+            predicted_pct=predicted,
+            checks=checks,
+            violations=tuple(violations),
+            binding=binding,
+            cautions=cautions,
+            temperature_drop_c=drop,
+            notes=tuple(model.notes),
+            currency=book.settings.currency,
+        )
+
+    def _sensitivity(self, model: _Model, solution: np.ndarray, final_kg: float,
+                     options: PlanOptions) -> tuple[Binding, ...]:
+        """Duals of the LP with the integer choices fixed: what one more unit of each limit is worth."""
+        lb, ub = model.lb.copy(), model.ub.copy()
+        fixed = model.integrality > 0
+        lb[fixed] = ub[fixed] = np.round(solution[fixed])
+        result = linprog(model.c, A_ub=model.a_ub if model.a_ub.size else None,
+                         b_ub=model.b_ub if model.a_ub.size else None,
+                         A_eq=model.a_eq if model.a_eq.size else None, b_eq=model.b_eq if model.a_eq.size else None,
+                         bounds=np.column_stack([lb, ub]), method="highs", options=_HIGHS_QUIET)
+        if result.status != 0:
+            return ()
+        bindings: list[Binding] = []
+        duals = -np.asarray(result.ineqlin.marginals) if model.a_ub.size else np.zeros(0)
+        for k, row in enumerate(model.window_rows):
+            # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
+            worth = duals[k] * final_kg * 1e-4
+            if worth > 1e-6:
+                bindings.append(Binding(f"{row.element} {row.limit} {row.limit_pct:g} %", worth,
+                                        f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
+        if model.capacity_row is not None and duals[model.capacity_row] * 1000 > 1e-6:
+            bindings.append(Binding("vessel capacity", duals[model.capacity_row] * 1000.0, "1 t more free capacity"))
+        if model.temperature_row is not None and duals[model.temperature_row] > 1e-6:
+            bindings.append(Binding("temperature drop limit", duals[model.temperature_row], "1 °C more allowed drop"))
+        upper = -np.asarray(result.upper.marginals)[: model.n_materials] / model.scale
+        for j in np.flatnonzero(upper > 1e-6):
+            if model.lb[j] != model.ub[j]:  # a lock is a choice, not a shortage
+                bindings.append(Binding(f"stock of {model.materials[j].name}", float(upper[j]), "1 kg more in stock"))
+        if model.aim_elements and model.a_eq.size:
+            eq_duals = np.asarray(result.eqlin.marginals)
+            for t, symbol in enumerate(model.aim_elements):
+                worth = -eq_duals[t] * final_kg * 1e-4  # saving from raising the aim by 0.01 %
+                if abs(worth) > 1e-6:
+                    direction = "higher" if worth > 0 else "lower"
+                    bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {direction} aim"))
+        return tuple(sorted(bindings, key=lambda b: -b.saving))
+
+
+def _or_inf(value: float | None) -> float:
+    return math.inf if value is None else value
+
+
+def _solve(c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarray, b_eq: np.ndarray,
+           lb: np.ndarray, ub: np.ndarray, integrality: np.ndarray, options: PlanOptions) -> np.ndarray | None:
+    """Solve with HiGHS: linprog for a pure LP, milp when some variables are integer. None = infeasible."""
+    if not integrality.any():
+        result = linprog(c, A_ub=a_ub if a_ub.size else None, b_ub=b_ub if a_ub.size else None,
+                         A_eq=a_eq if a_eq.size else None, b_eq=b_eq if a_eq.size else None,
+                         bounds=np.column_stack([lb, ub]), method="highs", options=_HIGHS_QUIET)
+        return result.x if result.status == 0 else None
+    constraints = []
+    if a_ub.size:
+        constraints.append(LinearConstraint(a_ub, -np.inf, b_ub))
+    if a_eq.size:
+        constraints.append(LinearConstraint(a_eq, b_eq, b_eq))
+    result = milp(c, constraints=constraints, integrality=integrality, bounds=Bounds(lb, ub),
+                  options={"disp": False, "mip_rel_gap": options.mip_rel_gap, "time_limit": options.time_limit_s})
+    return result.x if result.x is not None and result.status in (0, 1) else None
+
+
+def _limit_checks(grade, predicted: Mapping[str, float]) -> tuple[LimitCheck, ...]:
+    checks = []
+    for symbol, (low, high) in grade.window_pct.items():
+        value = predicted.get(symbol, 0.0)
+        if low > 0:
+            checks.append(LimitCheck(symbol, "min", low, value, value - low))
+        checks.append(LimitCheck(symbol, "max", high, value, high - value))
+    for index in grade.indices:
+        value = index.value(predicted)
+        if index.min_value is not None:
+            checks.append(LimitCheck(index.name, "min", index.min_value, value, value - index.min_value))
+        if index.max_value is not None:
+            checks.append(LimitCheck(index.name, "max", index.max_value, value, index.max_value - value))
+    return tuple(checks)
+
+
+def plan_heat(heat: Heat, book: RecipeBook, options: PlanOptions = PlanOptions()) -> Plan:
+    """Plan one heat against a recipe book (see :class:`Planner` to plan many)."""
+    return Planner(book).plan(heat, options)

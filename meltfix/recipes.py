@@ -1,0 +1,396 @@
+"""The shop's recipe book: addition materials and grades, read from TOML and validated strictly.
+
+File layout (DESIGN §6): ``materials.toml`` at the root of a recipes folder (more ``*.toml`` files
+under ``materials/`` add to it), one grade per file under ``grades/``, and an optional ``shop.toml``
+with shop-wide settings. Every problem raises :class:`InputError` naming the file and the field.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from meltfix.elements import element_sort_key, normalise_symbol
+from meltfix.errors import InputError
+
+MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
+
+
+@dataclass(frozen=True)
+class Material:
+    """An addition material as the shop buys and stores it."""
+
+    name: str
+    price_per_kg: float
+    """Price [currency/kg]."""
+    composition_pct: Mapping[str, float]
+    """Element contents [wt %]; iron is the balance and appears under "Fe"."""
+    recovery: Mapping[str, float]
+    """Fraction [0..1] of each element added that dissolves in the bath, every element listed."""
+    stock_kg: float | None = None
+    """Available for this heat [kg]; None = unlimited."""
+    pack_kg: float | None = None
+    """Mass of one bag, bale or coil [kg]; None = added loose, any amount."""
+    min_kg: float = 0.0
+    """Smallest sensible addition [kg]: the plan adds none or at least this much."""
+    chill_per_kg_t: float = 0.0
+    """Temperature drop of the bath [°C per kg/t added]; negative for exothermic materials."""
+    kind: str = "alloy"
+    standard: str = ""
+    notes: str = ""
+
+    def yield_pct(self, symbol: str) -> float:
+        """Content of ``symbol`` that reaches the bath [wt % of the material]."""
+        return self.composition_pct.get(symbol, 0.0) * self.recovery.get(symbol, 1.0)
+
+    @property
+    def mass_yield(self) -> float:
+        """Fraction of the material's mass that ends up in the bath (all elements, iron too)."""
+        return math.fsum(self.yield_pct(s) for s in self.composition_pct) / 100.0
+
+
+@dataclass(frozen=True)
+class LinearIndex:
+    """A limit on a weighted sum of contents, e.g. a carbon equivalent: sum(terms[e] * wt %[e])."""
+
+    name: str
+    terms: Mapping[str, float]
+    min_value: float | None = None
+    max_value: float | None = None
+
+    def value(self, pct: Mapping[str, float]) -> float:
+        return math.fsum(weight * pct.get(symbol, 0.0) for symbol, weight in self.terms.items())
+
+
+@dataclass(frozen=True)
+class Grade:
+    """A grade's chemistry window [wt %] with the shop's aims."""
+
+    name: str
+    window_pct: Mapping[str, tuple[float, float]]
+    aim_pct: Mapping[str, float] = field(default_factory=dict)
+    indices: tuple[LinearIndex, ...] = ()
+    forbidden: frozenset[str] = frozenset()
+    """Materials this grade must never receive (e.g. a boron alloy in a boron-free grade)."""
+    family: str = "steel"
+    standard: str = ""
+    source_file: str = ""
+
+    @property
+    def elements(self) -> tuple[str, ...]:
+        return tuple(sorted(self.window_pct, key=element_sort_key))
+
+
+@dataclass(frozen=True)
+class ShopSettings:
+    """Shop-wide settings from ``shop.toml``; every field has a sensible default."""
+
+    shop_name: str = "Demo shop"
+    currency: str = "EUR"
+    aim_penalty: float = 0.5
+    """Aim weight [currency per 0.01 wt % off aim per tonne of bath]."""
+    large_addition_kg_per_t: float = 10.0
+    """Total addition above which the plan warns about chill [kg/t]."""
+    max_temp_drop_c: float | None = None
+    """Largest temperature drop the additions may cause [°C]; None = not limited."""
+    spectrometer: Mapping[str, Any] = field(default_factory=dict)
+    """The instrument's export layout, read by :mod:`meltfix.spectro`."""
+
+
+@dataclass(frozen=True)
+class RecipeBook:
+    """Everything the planner knows about the shop."""
+
+    materials: tuple[Material, ...]
+    grades: Mapping[str, Grade]
+    settings: ShopSettings = ShopSettings()
+    folder: Path | None = None
+
+    def material(self, name: str) -> Material:
+        for material in self.materials:
+            if material.name == name:
+                return material
+        raise KeyError(name)
+
+    def grade(self, name: str) -> Grade:
+        return self.grades[name]
+
+    @property
+    def material_names(self) -> tuple[str, ...]:
+        return tuple(m.name for m in self.materials)
+
+
+# ---------------------------------------------------------------------------------------------
+# Reading and validation
+
+
+def read_toml(path: Path) -> dict[str, Any]:
+    """Parse a TOML file, turning every failure into one InputError naming the file."""
+    try:
+        with path.open("rb") as handle:
+            return tomllib.load(handle)
+    except FileNotFoundError:
+        raise InputError(path, "", "file not found") from None
+    except IsADirectoryError:
+        raise InputError(path, "", "is a folder, not a file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(path, "", f"not valid TOML ({exc})") from None
+    except UnicodeDecodeError:
+        raise InputError(path, "", "not a UTF-8 text file") from None
+    except OSError as exc:
+        raise InputError(path, "", f"cannot be read ({exc.strerror})") from None
+
+
+def require(table: Mapping[str, Any], key: str, source: object, where: str) -> Any:
+    if key not in table:
+        raise InputError(source, f"{where}{key}", "is missing")
+    return table[key]
+
+
+def number(value: Any, source: object, field_name: str, *, minimum: float | None = 0.0,
+           positive: bool = False) -> float:
+    """A finite number from TOML, checked against a lower bound."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(source, field_name, f"expected a number, got {value!r}")
+    result = float(value)
+    if not math.isfinite(result):
+        raise InputError(source, field_name, f"{value!r} is not a finite number")
+    if positive and result <= 0:
+        raise InputError(source, field_name, f"must be above 0, got {value!r}")
+    if minimum is not None and result < minimum:
+        raise InputError(source, field_name, f"must not be negative, got {value!r}")
+    return result
+
+
+def text(value: Any, source: object, field_name: str) -> str:
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(source, field_name, f"expected a non-empty text, got {value!r}")
+    return value.strip()
+
+
+def table(value: Any, source: object, field_name: str) -> Mapping[str, Any]:
+    if not isinstance(value, Mapping):
+        raise InputError(source, field_name, f"expected a table, got {value!r}")
+    return value
+
+
+def _known_keys(entry: Mapping[str, Any], allowed: set[str], source: object, where: str) -> None:
+    # An unknown key is almost always a typing slip ("stok_kg"); silently ignoring it loses data.
+    for key in entry:
+        if key not in allowed:
+            raise InputError(source, f"{where}{key}", f"unknown key (expected one of: {', '.join(sorted(allowed))})")
+
+
+_MATERIAL_KEYS = {"name", "price_per_kg", "composition", "recovery", "default_recovery", "stock_kg",
+                  "pack_kg", "min_kg", "chill_per_kg_t", "kind", "standard", "notes"}
+
+
+def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Material:
+    """Build one Material from a ``[[material]]`` TOML table (``where`` prefixes field names)."""
+    entry = table(entry, source, where.rstrip("."))
+    _known_keys(entry, _MATERIAL_KEYS, source, where)
+    name = text(require(entry, "name", source, where), source, f"{where}name")
+    where = f"material '{name}'."
+    price = number(require(entry, "price_per_kg", source, where), source, f"{where}price_per_kg")
+    raw_comp = table(require(entry, "composition", source, where), source, f"{where}composition")
+    composition: dict[str, float] = {}
+    for key, value in raw_comp.items():
+        symbol = normalise_symbol(key, source, f"{where}composition.{key}")
+        pct = number(value, source, f"{where}composition.{key}")
+        if pct > 100:
+            raise InputError(source, f"{where}composition.{key}", f"{value} wt % is above 100")
+        if symbol in composition:
+            raise InputError(source, f"{where}composition.{key}", f"{symbol} is listed twice")
+        composition[symbol] = pct
+    listed = math.fsum(v for s, v in composition.items() if s != "Fe")
+    if listed > 100 + 1e-9:
+        raise InputError(source, f"{where}composition", f"the elements add up to {listed:g} %, over 100 %")
+    if "Fe" not in composition:
+        composition["Fe"] = max(0.0, 100.0 - listed)
+    elif abs(listed + composition["Fe"] - 100.0) > 0.5:
+        raise InputError(source, f"{where}composition.Fe",
+                         f"iron {composition['Fe']:g} % and the rest {listed:g} % do not add up to 100 %")
+    default_recovery = _recovery(entry.get("default_recovery", 1.0), source, f"{where}default_recovery")
+    raw_rec = table(entry.get("recovery", {}), source, f"{where}recovery")
+    recovery = {symbol: default_recovery for symbol in composition}
+    for key, value in raw_rec.items():
+        symbol = normalise_symbol(key, source, f"{where}recovery.{key}")
+        if symbol not in composition:
+            raise InputError(source, f"{where}recovery.{key}", f"{symbol} is not in the composition")
+        recovery[symbol] = _recovery(value, source, f"{where}recovery.{key}")
+    stock = entry.get("stock_kg")
+    pack = entry.get("pack_kg")
+    kind = entry.get("kind", "alloy")
+    if kind not in MATERIAL_KINDS:
+        raise InputError(source, f"{where}kind", f"'{kind}' is not one of {', '.join(MATERIAL_KINDS)}")
+    return Material(
+        name=name,
+        price_per_kg=price,
+        composition_pct=MappingProxyType(dict(sorted(composition.items(), key=lambda i: element_sort_key(i[0])))),
+        recovery=MappingProxyType(recovery),
+        stock_kg=None if stock is None else number(stock, source, f"{where}stock_kg"),
+        pack_kg=None if pack is None else number(pack, source, f"{where}pack_kg", positive=True),
+        min_kg=number(entry.get("min_kg", 0.0), source, f"{where}min_kg"),
+        chill_per_kg_t=number(entry.get("chill_per_kg_t", 0.0), source, f"{where}chill_per_kg_t", minimum=None),
+        kind=kind,
+        standard=str(entry.get("standard", "")),
+        notes=str(entry.get("notes", "")),
+    )
+
+
+def _recovery(value: Any, source: object, field_name: str) -> float:
+    result = number(value, source, field_name, minimum=None)
+    if not 0.0 < result <= 1.0:
+        raise InputError(source, field_name, f"recovery must be above 0 and at most 1, got {value!r}")
+    return result
+
+
+def load_materials(folder: Path) -> tuple[Material, ...]:
+    files = [folder / "materials.toml"]
+    extra = folder / "materials"
+    if extra.is_dir():
+        files += sorted(extra.glob("*.toml"))
+    materials: list[Material] = []
+    seen: dict[str, Path] = {}
+    for path in files:
+        data = read_toml(path)
+        entries = data.get("material", [])
+        if not isinstance(entries, list):
+            raise InputError(path, "material", "expected [[material]] entries")
+        for key in data:
+            if key != "material":
+                raise InputError(path, key, "unknown key (a materials file holds only [[material]] entries)")
+        for index, entry in enumerate(entries, start=1):
+            material = parse_material(entry, path, f"material #{index}.")
+            if material.name in seen:
+                raise InputError(path, f"material '{material.name}'",
+                                 f"duplicate name (also in {seen[material.name].name})")
+            seen[material.name] = path
+            materials.append(material)
+    if not materials:
+        raise InputError(files[0], "material", "no [[material]] entries")
+    return tuple(materials)
+
+
+_GRADE_KEYS = {"name", "standard", "family", "window", "aim", "index", "forbid"}
+
+
+def parse_grade(data: Mapping[str, Any], source: object) -> Grade:
+    _known_keys(data, _GRADE_KEYS, source, "")
+    name = text(require(data, "name", source, ""), source, "name")
+    raw_window = table(require(data, "window", source, ""), source, "window")
+    if not raw_window:
+        raise InputError(source, "window", "lists no element")
+    window: dict[str, tuple[float, float]] = {}
+    for key, value in raw_window.items():
+        where = f"window.{key}"
+        symbol = normalise_symbol(key, source, where)
+        if not isinstance(value, list) or len(value) != 2:
+            raise InputError(source, where, f"expected [min, max] in wt %, got {value!r}")
+        low, high = (number(v, source, where) for v in value)
+        if low > high:
+            raise InputError(source, where, f"min {low:g} is above max {high:g}")
+        if high > 100:
+            raise InputError(source, where, f"max {high:g} is above 100 %")
+        if symbol in window:
+            raise InputError(source, where, f"{symbol} is given twice")
+        window[symbol] = (low, high)
+    aim: dict[str, float] = {}
+    for key, value in table(data.get("aim", {}), source, "aim").items():
+        where = f"aim.{key}"
+        symbol = normalise_symbol(key, source, where)
+        target = number(value, source, where)
+        if symbol not in window:
+            raise InputError(source, where, f"{symbol} has an aim but no window")
+        low, high = window[symbol]
+        if not low <= target <= high:
+            raise InputError(source, where, f"aim {target:g} is outside the window {low:g}–{high:g}")
+        aim[symbol] = target
+    indices = []
+    for index_name, spec in table(data.get("index", {}), source, "index").items():
+        where = f"index.{index_name}"
+        spec = table(spec, source, where)
+        _known_keys(spec, {"terms", "min", "max"}, source, f"{where}.")
+        terms = {normalise_symbol(k, source, f"{where}.terms.{k}"): number(v, source, f"{where}.terms.{k}", minimum=None)
+                 for k, v in table(require(spec, "terms", source, f"{where}."), source, f"{where}.terms").items()}
+        low = None if "min" not in spec else number(spec["min"], source, f"{where}.min")
+        high = None if "max" not in spec else number(spec["max"], source, f"{where}.max")
+        if low is None and high is None:
+            raise InputError(source, where, "needs a min, a max or both")
+        if low is not None and high is not None and low > high:
+            raise InputError(source, where, f"min {low:g} is above max {high:g}")
+        indices.append(LinearIndex(index_name, MappingProxyType(terms), low, high))
+    forbid = data.get("forbid", [])
+    if not isinstance(forbid, list) or not all(isinstance(f, str) for f in forbid):
+        raise InputError(source, "forbid", "expected a list of material names")
+    family = data.get("family", "steel")
+    if family not in ("steel", "cast iron"):
+        raise InputError(source, "family", f"'{family}' is not 'steel' or 'cast iron'")
+    return Grade(
+        name=name,
+        window_pct=MappingProxyType(window),
+        aim_pct=MappingProxyType(aim),
+        indices=tuple(indices),
+        forbidden=frozenset(forbid),
+        family=family,
+        standard=str(data.get("standard", "")),
+        source_file=str(source),
+    )
+
+
+def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
+    grades_dir = folder / "grades"
+    if not grades_dir.is_dir():
+        raise InputError(folder, "grades/", "folder is missing")
+    grades: dict[str, Grade] = {}
+    for path in sorted(grades_dir.glob("*.toml")):
+        grade = parse_grade(read_toml(path), path)
+        if grade.name in grades:
+            raise InputError(path, "name", f"grade '{grade.name}' is already defined in {Path(grades[grade.name].source_file).name}")
+        for name in sorted(grade.forbidden - material_names):
+            raise InputError(path, "forbid", f"no material named '{name}' in the recipe book")
+        grades[grade.name] = grade
+    if not grades:
+        raise InputError(grades_dir, "", "holds no grade file (*.toml)")
+    return dict(sorted(grades.items()))
+
+
+_SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c", "spectrometer"}
+
+
+def load_settings(folder: Path) -> ShopSettings:
+    path = folder / "shop.toml"
+    if not path.exists():
+        return ShopSettings()
+    data = read_toml(path)
+    _known_keys(data, _SHOP_KEYS, path, "")
+    defaults = ShopSettings()
+    drop = data.get("max_temp_drop_c")
+    return ShopSettings(
+        shop_name=text(data.get("shop_name", defaults.shop_name), path, "shop_name"),
+        currency=text(data.get("currency", defaults.currency), path, "currency"),
+        aim_penalty=number(data.get("aim_penalty", defaults.aim_penalty), path, "aim_penalty"),
+        large_addition_kg_per_t=number(data.get("large_addition_kg_per_t", defaults.large_addition_kg_per_t),
+                                       path, "large_addition_kg_per_t", positive=True),
+        max_temp_drop_c=None if drop is None else number(drop, path, "max_temp_drop_c"),
+        spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
+    )
+
+
+def load_recipes(folder: Path | str | None = None) -> RecipeBook:
+    """Load and validate a recipes folder (the built-in demo shop when ``folder`` is None)."""
+    if folder is None:
+        from meltfix.paths import default_recipes_dir
+
+        folder = default_recipes_dir()
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError(folder, "", "recipes folder not found")
+    materials = load_materials(folder)
+    grades = load_grades(folder, {m.name for m in materials})
+    return RecipeBook(materials=materials, grades=MappingProxyType(grades), settings=load_settings(folder), folder=folder)

@@ -1,0 +1,65 @@
+"""Rich rendering of plans for the plain command line (kept out of the domain objects)."""
+
+from __future__ import annotations
+
+from rich.console import Console, Group
+from rich.panel import Panel
+from rich.table import Table
+from rich.text import Text
+
+from meltfix.planner import Plan
+
+
+def plan_renderable(plan: Plan) -> Group:
+    """The plan as rich tables: additions, predicted chemistry, binding limits, cautions."""
+    cur = plan.currency
+    title = f"Heat {plan.heat_id} · {plan.grade} · " + (
+        "[green]all windows met[/]" if plan.status == "optimal" else "[bold red]closest plan: windows missed[/]")
+    adds = Table(title="Additions", title_justify="left", expand=False)
+    adds.add_column("Material")
+    adds.add_column("kg", justify="right")
+    adds.add_column("packs", justify="right")
+    adds.add_column(f"cost {cur}", justify="right")
+    for a in plan.additions:
+        adds.add_row(a.material, f"{a.kg:,.1f}", "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
+                     f"{a.cost:,.2f}")
+    if not plan.additions:
+        adds.add_row("(nothing to add)", "", "", "")
+    adds.add_section()
+    adds.add_row("Total", f"{plan.added_kg:,.1f}", "", f"{plan.total_cost:,.2f}")
+    adds.caption = (f"{plan.cost_per_t:,.2f} {cur}/t · bath {plan.bath_kg:,.0f} → {plan.final_kg:,.0f} kg · "
+                    f"temperature {-plan.temperature_drop_c:+.1f} °C")
+
+    chem = Table(title="Predicted chemistry (wt %)", title_justify="left")
+    for column in ("Limit", "min", "predicted", "max", "margin"):
+        chem.add_column(column, justify="right" if column != "Limit" else "left")
+    rows: dict[str, list[str]] = {}
+    for check in plan.checks:
+        row = rows.setdefault(check.element, [check.element, "", f"{check.predicted_pct:.4f}", "", ""])
+        row[1 if check.limit == "min" else 3] = f"{check.limit_pct:g}"
+        margin = min(check.margin_pct, float(row[4]) if row[4] else check.margin_pct)
+        row[4] = f"{margin:.4f}"
+    for row in rows.values():
+        style = "red" if float(row[4]) < -1e-9 else ""
+        chem.add_row(*row, style=style)
+
+    parts: list[object] = [Text.from_markup(title), adds, chem]
+    if plan.violations:
+        parts.append(Panel("\n".join(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. {v.reason}"
+                                     for v in plan.violations), title="Why the grade cannot be met", border_style="red"))
+    if plan.binding:
+        bind = Table(title="What holds the cost up", title_justify="left")
+        bind.add_column("Limit")
+        bind.add_column(f"saves {cur}", justify="right")
+        bind.add_column("per")
+        for b in plan.binding:
+            bind.add_row(b.name, f"{b.saving:,.2f}", b.unit)
+        parts.append(bind)
+    if plan.notes:
+        parts.append(Text("Notes: " + " ".join(plan.notes), style="dim"))
+    parts.append(Panel("\n".join(f"• {c}" for c in plan.cautions), title="Cautions", border_style="yellow"))
+    return Group(*parts)
+
+
+def print_plan(plan: Plan, console: Console | None = None) -> None:
+    (console or Console()).print(plan_renderable(plan))
