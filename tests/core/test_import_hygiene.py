@@ -1,0 +1,38 @@
+"""The core stays importable without the screen framework (STYLE.md: import hygiene)."""
+
+from __future__ import annotations
+
+import pkgutil
+import subprocess
+import sys
+
+import meltfix
+
+
+def _core_modules() -> list[str]:
+    names = []
+    for info in pkgutil.walk_packages(meltfix.__path__, "meltfix."):
+        if not info.name.startswith("meltfix.tui"):
+            names.append(info.name)
+    return names
+
+
+def test_core_never_imports_textual() -> None:
+    code = (
+        "import importlib, sys\n"
+        f"for name in {_core_modules()!r}:\n"
+        "    importlib.import_module(name)\n"
+        "assert 'textual' not in sys.modules, sorted(m for m in sys.modules if m.startswith('textual'))\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_plain_command_line_loads_neither_textual_nor_pandas() -> None:
+    code = (
+        "import sys\n"
+        "from meltfix.cli import build_parser\n"
+        "build_parser()\n"
+        "bad = [m for m in ('textual', 'pandas') if m in sys.modules]\n"
+        "assert not bad, bad\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)
