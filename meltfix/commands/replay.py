@@ -1,0 +1,13 @@
+"""`meltfix replay` (not written yet)."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    pass
+
+
+def run(args: argparse.Namespace) -> int:
+    raise SystemExit("meltfix replay: not available yet")
