@@ -193,9 +193,9 @@ _MATERIAL_KEYS = {"name", "price_per_kg", "composition", "recovery", "default_re
 def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Material:
     """Build one Material from a ``[[material]]`` TOML table (``where`` prefixes field names)."""
     entry = table(entry, source, where.rstrip("."))
-    _known_keys(entry, _MATERIAL_KEYS, source, where)
     name = text(require(entry, "name", source, where), source, f"{where}name")
     where = f"material '{name}'."
+    _known_keys(entry, _MATERIAL_KEYS, source, where)
     price = number(require(entry, "price_per_kg", source, where), source, f"{where}price_per_kg")
     raw_comp = table(require(entry, "composition", source, where), source, f"{where}composition")
     composition: dict[str, float] = {}
@@ -217,14 +217,22 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Mate
                          f"iron {composition['Fe']:g} % and the rest {listed:g} % do not add up to 100 %")
     default_recovery = _recovery(entry.get("default_recovery", 1.0), source, f"{where}default_recovery")
     raw_rec = table(entry.get("recovery", {}), source, f"{where}recovery")
+    # Iron is the balance and is not oxidised ahead of the alloying elements: it recovers fully
+    # unless listed, so a low default_recovery for the alloying elements does not shrink the bath.
     recovery = {symbol: default_recovery for symbol in composition}
+    recovery["Fe"] = 1.0
     for key, value in raw_rec.items():
         symbol = normalise_symbol(key, source, f"{where}recovery.{key}")
         if symbol not in composition:
             raise InputError(source, f"{where}recovery.{key}", f"{symbol} is not in the composition")
         recovery[symbol] = _recovery(value, source, f"{where}recovery.{key}")
-    stock = entry.get("stock_kg")
-    pack = entry.get("pack_kg")
+    stock = None if entry.get("stock_kg") is None else number(entry["stock_kg"], source, f"{where}stock_kg")
+    pack = None if entry.get("pack_kg") is None else number(entry["pack_kg"], source, f"{where}pack_kg", positive=True)
+    min_kg = number(entry.get("min_kg", 0.0), source, f"{where}min_kg")
+    # A pack or minimum larger than the stock makes the material silently unusable: say so.
+    for key, size in (("pack_kg", pack), ("min_kg", min_kg)):
+        if stock is not None and size is not None and size > stock > 0:
+            raise InputError(source, f"{where}{key}", f"{size:g} kg is more than the {stock:g} kg in stock")
     kind = entry.get("kind", "alloy")
     if kind not in MATERIAL_KINDS:
         raise InputError(source, f"{where}kind", f"'{kind}' is not one of {', '.join(MATERIAL_KINDS)}")
@@ -233,14 +241,21 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Mate
         price_per_kg=price,
         composition_pct=MappingProxyType(dict(sorted(composition.items(), key=lambda i: element_sort_key(i[0])))),
         recovery=MappingProxyType(recovery),
-        stock_kg=None if stock is None else number(stock, source, f"{where}stock_kg"),
-        pack_kg=None if pack is None else number(pack, source, f"{where}pack_kg", positive=True),
-        min_kg=number(entry.get("min_kg", 0.0), source, f"{where}min_kg"),
+        stock_kg=stock,
+        pack_kg=pack,
+        min_kg=min_kg,
         chill_per_kg_t=number(entry.get("chill_per_kg_t", 0.0), source, f"{where}chill_per_kg_t", minimum=None),
         kind=kind,
-        standard=str(entry.get("standard", "")),
-        notes=str(entry.get("notes", "")),
+        standard=_optional_text(entry, "standard", source, where),
+        notes=_optional_text(entry, "notes", source, where),
     )
+
+
+def _optional_text(entry: Mapping[str, Any], key: str, source: object, where: str) -> str:
+    value = entry.get(key, "")
+    if not isinstance(value, str):
+        raise InputError(source, f"{where}{key}", f"expected a text, got {value!r}")
+    return value.strip()
 
 
 def _recovery(value: Any, source: object, field_name: str) -> float:
