@@ -1,13 +1,196 @@
-"""`meltfix import` (not written yet)."""
+"""`meltfix import FILE`: read a spectrometer export, show or print its samples, optionally write a HEAT.toml.
+
+The reading, checking and averaging live in :mod:`meltfix.spectro`; this module only handles the
+command line: the rich table, the JSON object of DESIGN §6 and the heat file.
+"""
 
 from __future__ import annotations
 
 import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT
+from meltfix.errors import InputError
+from meltfix.heat import Heat, heat_to_toml, validate_heat
+from meltfix.recipes import ShopSettings, load_recipes, load_settings
+from meltfix.spectro import ImportResult, SpectroSample, read_export
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("file", metavar="FILE", help="the spectrometer export (CSV or TSV)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
+    parser.add_argument("--recipes", metavar="DIR", help="recipes folder whose shop.toml [spectrometer] "
+                        "describes the export layout (default: the built-in recipes)")
+    parser.add_argument("--drop-flagged", action="store_true",
+                        help="leave a burn that disagrees with the others out of the mean")
+    parser.add_argument("--sample", metavar="ID", help="only this sample (and the one written by --heat-out)")
+    heat = parser.add_argument_group("writing a heat file")
+    heat.add_argument("--heat-out", metavar="HEAT.toml", help="write the last (or --sample) sample as a heat file")
+    heat.add_argument("--grade", help="grade of the heat (default: the export's grade column)")
+    heat.add_argument("--bath-kg", type=float, metavar="KG", help="bath weight [kg] (needed with --heat-out)")
+    heat.add_argument("--capacity-kg", type=float, metavar="KG", help="vessel capacity [kg] (optional)")
+    heat.add_argument("--heat", metavar="ID", help="heat id (default: the export's heat column, else the sample id)")
+    heat.add_argument("--force", action="store_true", help="overwrite an existing heat file")
 
 
 def run(args: argparse.Namespace) -> int:
-    raise SystemExit("meltfix import: not available yet")
+    result = read_export(args.file, _settings(args.recipes), drop_flagged=args.drop_flagged)
+    samples = result.samples
+    if args.sample is not None:
+        try:
+            samples = (result.sample(args.sample),)
+        except KeyError:
+            known = ", ".join(s.sample_id for s in result.samples)
+            raise InputError("command line", "--sample",
+                             f"no sample '{args.sample}' in {args.file} (it holds: {known})") from None
+    written = _write_heat(args, result, samples[-1]) if args.heat_out else None
+    if args.json:
+        print(json.dumps(_as_json(result, samples)))
+        if written:
+            print(f"meltfix: wrote {written} from sample {samples[-1].sample_id}", file=sys.stderr)
+    else:
+        _print_tables(result, samples, written)
+    return 0
+
+
+def _settings(folder: str | None) -> ShopSettings:
+    if folder is None:
+        from meltfix.paths import default_recipes_dir
+
+        try:
+            path = default_recipes_dir()
+        except FileNotFoundError:
+            return ShopSettings()
+    else:
+        path = Path(folder)
+        if not path.is_dir():
+            raise InputError(path, "", "recipes folder not found")
+    return load_settings(path)
+
+
+# ---------------------------------------------------------------------------------------------
+# JSON (DESIGN §6, with a few added fields)
+
+
+def _as_json(result: ImportResult, samples: tuple[SpectroSample, ...]) -> dict[str, Any]:
+    return {
+        "samples": [
+            {
+                "sample": sample.sample_id,
+                "burns": len(sample.accepted_burns),
+                "analysis": {symbol: round(pct, 6) for symbol, pct in sample.analysis.pct.items()},
+                "flags": list(sample.flags),
+                "below_limit": [s for s in sample.analysis.pct if s in sample.analysis.below_limit],
+                "left_out_burns": [b.label for b in sample.burns if not b.accepted],
+                "grade": sample.grade,
+            }
+            for sample in samples
+        ],
+        "source": result.source,
+        "ignored_columns": list(result.ignored_columns),
+        "notes": list(result.notes),
+    }
+
+
+# ---------------------------------------------------------------------------------------------
+# HEAT.toml
+
+
+def heat_file_text(sample: SpectroSample, heat: Heat, source: str) -> str:
+    """A HEAT.toml (DESIGN §6) for one sample, headed by where it came from and the sample's flags."""
+    lines = [f"Written by meltfix import from {source}, sample {sample.sample_id} "
+             f"({len(sample.accepted_burns)} burns averaged)."]
+    lines += [f"Flag: {flag}" for flag in sample.flags]
+    # A comment must stay on one line whatever the export's cells held.
+    return "".join(f"# {' '.join(line.split())}\n" for line in lines) + heat_to_toml(heat)
+
+
+def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroSample) -> Path:
+    path = Path(args.heat_out)
+    grade = args.grade or sample.grade
+    if not grade:
+        raise InputError("command line", "--grade", f"the export names no grade for sample {sample.sample_id}; "
+                         "give one with --grade")
+    if args.bath_kg is None:
+        raise InputError("command line", "--bath-kg", "is needed to write a heat file (the bath weight in kg)")
+    if not args.bath_kg > 0:
+        raise InputError("command line", "--bath-kg", f"must be above 0, got {args.bath_kg:g}")
+    book = load_recipes(args.recipes)
+    if grade not in book.grades:
+        raise InputError("command line", "--grade", f"'{grade}' is not a grade of the recipes "
+                         f"(known: {', '.join(book.grades)})")
+    heat = validate_heat(Heat(heat_id=args.heat or sample.heat or sample.sample_id, grade=grade,
+                              bath_kg=args.bath_kg, analysis=sample.analysis, capacity_kg=args.capacity_kg),
+                         book, "command line")
+    body = heat_file_text(sample, heat, Path(result.source).name)
+    try:
+        with path.open("w" if args.force else "x", encoding="utf-8") as handle:
+            handle.write(body)
+    except FileExistsError:
+        raise InputError(path, "", "already exists; add --force to overwrite it") from None
+    except OSError as exc:
+        raise InputError(path, "", f"cannot be written ({exc.strerror})") from None
+    return path
+
+
+# ---------------------------------------------------------------------------------------------
+# Tables
+
+
+def _cell_text(symbol: str, pct: float) -> str:
+    if symbol in PPM_ELEMENTS:
+        ppm = pct * PPM_PER_PCT
+        return f"{ppm:.0f}" if ppm >= 10 else f"{ppm:.1f}"
+    return f"{pct:.4f}" if pct < 1 else f"{pct:.3f}" if pct < 10 else f"{pct:.2f}"
+
+
+def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], written: Path | None) -> None:
+    from rich.console import Console
+    from rich.markup import escape
+    from rich.table import Table
+
+    console = Console()
+    marked = False
+    for sample in samples:
+        symbols = list(sample.analysis.pct)
+        title = f"Sample {escape(sample.sample_id)}" + (f" · grade {escape(sample.grade)}" if sample.grade else "")
+        grid = Table(title=title, title_justify="left")
+        grid.add_column("Burn")
+        grid.add_column("Row", justify="right", style="dim")
+        for symbol in symbols:
+            grid.add_column(f"{symbol} ppm" if symbol in PPM_ELEMENTS else symbol, justify="right")
+        for burn in sample.burns:
+            cells = []
+            for symbol in symbols:
+                reading = burn.readings.get(symbol)
+                if reading is None:
+                    cells.append("")
+                    continue
+                shown = ("<" if reading.below_limit else "") + _cell_text(symbol, reading.pct)
+                if symbol in burn.outlier_in:
+                    shown, marked = f"[bold red]{shown} ![/]", True
+                elif symbol in burn.disputed_in:
+                    shown, marked = f"[yellow]{shown} ?[/]", True
+                cells.append(shown)
+            label = escape(burn.label) + ("" if burn.accepted else " (left out)")
+            grid.add_row(label, str(burn.row), *cells, style=None if burn.accepted else "dim")
+        mean = [("<" if s in sample.analysis.below_limit else "") + _cell_text(s, pct)
+                for s, pct in sample.analysis.pct.items()]
+        grid.add_section()
+        grid.add_row(f"mean of {len(sample.accepted_burns)}", "", *mean, style="bold")
+        console.print(grid)
+        for flag in sample.flags:
+            console.print(f"  [yellow]•[/] {escape(flag)}")
+        console.print()
+    if marked:
+        console.print("[bold red]![/] this burn disagrees with the others   "
+                      "[yellow]?[/] burns disagree, cannot tell which   < below the detection limit (an upper bound)")
+    for note in result.notes:
+        console.print(f"[dim]{escape(note)}[/]")
+    if result.ignored_columns:
+        console.print(f"[dim]Columns not read: {escape(', '.join(result.ignored_columns))}[/]")
+    if written:
+        console.print(f"Wrote {escape(str(written))} from sample {escape(samples[-1].sample_id)}.")

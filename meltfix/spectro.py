@@ -1,0 +1,729 @@
+"""Spectrometer exports: burns read, checked against each other and averaged into one analysis per sample.
+
+An export is a CSV or TSV table, one row per burn (spark), with a column naming the sample. The
+reader accepts what instruments actually write: comma, semicolon or tab separators, a decimal
+point or a decimal comma, a UTF-8 byte-order mark, blank cells, "<0.001" below a detection limit,
+element headers such as ``C``, ``Mn %``, ``Mn[%]``, ``N ppm``, preamble lines above the header and
+the instrument's own mean rows. A shop's own layout comes from ``[spectrometer]`` in ``shop.toml``
+(see :class:`ExportLayout`). Any problem rejects the whole file with one :class:`InputError`
+naming the row (the line of the file) and the column: nothing is half-imported.
+
+Averaging rule for values below a detection limit, per element over the accepted burns:
+all burns quantified -> arithmetic mean; all below a limit -> upper bound at the largest limit;
+some of each -> upper bound at the larger of the largest limit and the mean of the quantified burns,
+so the bound is never lower than what was actually measured (the planner reads it as "at most").
+"""
+
+from __future__ import annotations
+
+import codecs
+import csv
+import io
+import math
+import re
+import statistics
+from collections.abc import Mapping, Sequence
+from collections import Counter
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+from meltfix.analysis import Analysis, Reading, parse_reading
+from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key, normalise_symbol
+from meltfix.errors import InputError
+from meltfix.recipes import ShopSettings, number, table, text
+
+# ---------------------------------------------------------------------------------------------
+# Repeatability limits
+
+# Repeatability limit r [wt %] as a function of content c [wt %]: r = max(floor, factor*sqrt(c), 0.01*c).
+# The square-root law is the usual shape of precision-versus-content in interlaboratory studies of
+# steel analysis (ISO 5725-style statements, from memory); r ≈ 2.8·s_r is the ISO 5725-6 limit for two
+# results under repeatability conditions (from memory). ASTM E415 (spark AES of carbon and low-alloy
+# steel) carries a precision statement, but its figures could not be retrieved, so the coefficients
+# below are common practice, not from a standard: factor 0.018 gives r ≈ 0.008 % C at 0.2 % C and
+# ≈ 0.018 % Mn at 1 % Mn; the relative term keeps high-alloy contents (18 % Cr -> r 0.18 %) from
+# flagging ordinary spark scatter; the floor is the instrument's noise near its detection limit.
+_RELATIVE_R = 0.01
+_DEFAULT_FACTOR = 0.018
+_DEFAULT_FLOOR_PCT = 0.002
+_FLOOR_PCT: dict[str, float] = {
+    "P": 0.001, "S": 0.001, "Al": 0.001, "V": 0.001, "Nb": 0.001, "Ti": 0.001, "Sn": 0.001,
+    "Ca": 0.0005, "W": 0.005,
+    "N": 0.0008,  # 8 ppm
+    "B": 0.0002,  # 2 ppm
+}
+# Boron lines are sensitive and its contents tiny: a lower factor (r ≈ 3.6 ppm at 20 ppm B).
+_FACTOR: dict[str, float] = {"B": 0.008}
+
+
+@dataclass(frozen=True)
+class RepeatabilityCurve:
+    """Largest difference [wt %] two burns of one sample may show for one element, by content."""
+
+    floor_pct: float
+    factor: float
+    """Coefficient of the square-root term [wt %^0.5]."""
+    relative: float = _RELATIVE_R
+
+    def limit_pct(self, content_pct: float) -> float:
+        """Repeatability limit r [wt %] at ``content_pct`` [wt %]."""
+        content = max(content_pct, 0.0)
+        return max(self.floor_pct, self.factor * math.sqrt(content), self.relative * content)
+
+
+def default_curve(symbol: str) -> RepeatabilityCurve:
+    """The built-in repeatability curve of an element (common practice, see the module notes)."""
+    return RepeatabilityCurve(_FLOOR_PCT.get(symbol, _DEFAULT_FLOOR_PCT), _FACTOR.get(symbol, _DEFAULT_FACTOR))
+
+
+# ---------------------------------------------------------------------------------------------
+# The shop's layout
+
+
+def _key(name: str) -> str:
+    """Header names compare case-blind with runs of spaces collapsed ("Sample  ID" == "sample id")."""
+    return " ".join(name.split()).casefold()
+
+
+_SAMPLE_NAMES = ("sample", "sample id", "sample no", "sample no.", "sample number", "sample name",
+                 "sampleid", "sample_id", "id")
+_BURN_NAMES = ("burn", "burn no", "burn no.", "burn number", "spark", "spark no", "spark no.", "replicate")
+_GRADE_NAMES = ("grade", "steel grade")
+_HEAT_NAMES = ("heat", "heat no", "heat no.", "heat id", "heat number")
+# Element-shaped headers that are not elements in an export ("No" would otherwise be nobelium).
+_NOT_ELEMENTS = frozenset({"no", "nr", "id"})
+# Rows an instrument adds with its own statistics; meltfix averages the burns itself.
+_STATISTIC_WORDS = frozenset({"mean", "average", "avg", "x̄", "ø", "⌀", "sd", "std", "stdev", "s.d.",
+                              "rsd", "rsd%", "rsd %", "min", "max", "range"})
+_BLANK_MARKERS = frozenset({"", "-", "--", "---", "—", "n.a.", "n/a", "na"})
+_LAYOUT_KEYS = ("sample_column", "burn_column", "grade_column", "heat_column", "delimiter", "decimal",
+                "encoding", "columns", "units", "ignore_columns", "repeatability")
+_UNIT_WORDS = {"%": False, "wt%": False, "wt.%": False, "mass%": False, "m%": False, "ppm": True,
+               "mg/kg": True}
+
+
+def _unit_is_ppm(unit: str, source: object, field_name: str) -> bool:
+    cleaned = "".join(unit.split()).casefold()
+    if cleaned not in _UNIT_WORDS:
+        raise InputError(source, field_name, f"unknown unit '{unit}' (use % or ppm)")
+    return _UNIT_WORDS[cleaned]
+
+
+@dataclass(frozen=True)
+class ExportLayout:
+    """How the shop's spectrometer writes its export: ``[spectrometer]`` in ``shop.toml``.
+
+    Every field is optional; unset ones are detected from the file. ``columns`` maps a header
+    as written to an element symbol, ``units`` maps a header or a symbol to "%" or "ppm" (for
+    headers that carry no unit), ``repeatability`` overrides the built-in curves per element.
+    """
+
+    sample_column: str | None = None
+    burn_column: str | None = None
+    grade_column: str | None = None
+    heat_column: str | None = None
+    delimiter: str | None = None
+    decimal: str | None = None
+    encoding: str = "utf-8"
+    columns: Mapping[str, str] = field(default_factory=dict)
+    """Header key (see ``_key``) -> element symbol."""
+    units_ppm: Mapping[str, bool] = field(default_factory=dict)
+    """Header key or element symbol, compared as by ``_key`` -> True when the column is in ppm."""
+    ignore_columns: frozenset[str] = frozenset()
+    repeatability: Mapping[str, RepeatabilityCurve] = field(default_factory=dict)
+
+    def curve(self, symbol: str) -> RepeatabilityCurve:
+        return self.repeatability.get(symbol) or default_curve(symbol)
+
+    @classmethod
+    def from_settings(cls, raw: Mapping[str, Any], source: object = "shop.toml") -> ExportLayout:
+        """Validate the ``[spectrometer]`` table; every mistake names its key."""
+        where = "spectrometer."
+        for key in raw:
+            if key not in _LAYOUT_KEYS:
+                raise InputError(source, f"{where}{key}",
+                                 f"unknown key (expected one of: {', '.join(_LAYOUT_KEYS)})")
+
+        def optional_text(key: str) -> str | None:
+            return None if key not in raw else text(raw[key], source, f"{where}{key}")
+
+        delimiter = raw.get("delimiter")
+        if delimiter is not None:
+            if delimiter in ("tab", "\\t"):
+                delimiter = "\t"
+            if not isinstance(delimiter, str) or len(delimiter) != 1 or delimiter in "\"\r\n.":
+                raise InputError(source, f"{where}delimiter",
+                                 f"expected one character such as \",\", \";\" or \"tab\", got {delimiter!r}")
+        decimal = raw.get("decimal")
+        if decimal is not None and decimal not in (".", ","):
+            raise InputError(source, f"{where}decimal", f"expected \".\" or \",\", got {decimal!r}")
+        if decimal == "," and delimiter == ",":
+            raise InputError(source, f"{where}decimal", "a decimal comma cannot be read from a comma-separated file")
+        encoding = text(raw.get("encoding", "utf-8"), source, f"{where}encoding")
+        try:
+            codecs.lookup(encoding)
+        except LookupError:
+            raise InputError(source, f"{where}encoding",
+                             f"'{encoding}' is not a known text encoding (e.g. \"utf-8\", \"cp1252\")") from None
+
+        columns: dict[str, str] = {}
+        for header, symbol in table(raw.get("columns", {}), source, f"{where}columns").items():
+            field_name = f"{where}columns.{header}"
+            symbol = normalise_symbol(text(symbol, source, field_name), source, field_name)
+            if symbol == "Fe":
+                raise InputError(source, field_name,
+                                 "iron is the balance and is not read; list the column under ignore_columns")
+            columns[_key(header)] = symbol
+
+        units: dict[str, bool] = {}
+        for name, unit in table(raw.get("units", {}), source, f"{where}units").items():
+            field_name = f"{where}units.{name}"
+            units[_key(name)] = _unit_is_ppm(text(unit, source, field_name), source, field_name)
+
+        ignore = raw.get("ignore_columns", [])
+        if not isinstance(ignore, list) or not all(isinstance(item, str) for item in ignore):
+            raise InputError(source, f"{where}ignore_columns", "expected a list of column names")
+
+        curves: dict[str, RepeatabilityCurve] = {}
+        for name, spec in table(raw.get("repeatability", {}), source, f"{where}repeatability").items():
+            field_name = f"{where}repeatability.{name}"
+            symbol = normalise_symbol(name, source, field_name)
+            if isinstance(spec, Mapping):
+                for key in spec:
+                    if key not in ("floor_pct", "factor"):
+                        raise InputError(source, f"{field_name}.{key}", "unknown key (expected floor_pct, factor)")
+                base = default_curve(symbol)
+                curves[symbol] = RepeatabilityCurve(
+                    number(spec.get("floor_pct", base.floor_pct), source, f"{field_name}.floor_pct", positive=True),
+                    number(spec.get("factor", base.factor), source, f"{field_name}.factor"))
+            else:
+                # A plain number is a fixed limit [wt %] at every content.
+                curves[symbol] = RepeatabilityCurve(number(spec, source, field_name, positive=True), 0.0, 0.0)
+
+        return cls(
+            sample_column=optional_text("sample_column"),
+            burn_column=optional_text("burn_column"),
+            grade_column=optional_text("grade_column"),
+            heat_column=optional_text("heat_column"),
+            delimiter=delimiter,
+            decimal=decimal,
+            encoding=encoding,
+            columns=MappingProxyType(columns),
+            units_ppm=MappingProxyType(units),
+            ignore_columns=frozenset(_key(item) for item in ignore),
+            repeatability=MappingProxyType(curves),
+        )
+
+
+# ---------------------------------------------------------------------------------------------
+# Results
+
+
+@dataclass(frozen=True)
+class Burn:
+    """One spark on a sample: one row of the export."""
+
+    label: str
+    """Burn number as the export writes it, or 1, 2, ... in row order when it has none."""
+    row: int
+    """Line of the file the burn was read from (1 = first line)."""
+    readings: Mapping[str, Reading]
+    """Element -> content [wt %] (ppm converted); blank cells are absent."""
+    outlier_in: frozenset[str] = frozenset()
+    """Elements in which this burn alone disagrees with the others beyond the repeatability limit."""
+    disputed_in: frozenset[str] = frozenset()
+    """Elements in which this burn is part of a disagreement that cannot be pinned on one burn."""
+    accepted: bool = True
+    """False when the burn is not in the mean (blank, or flagged and flagged burns were dropped)."""
+
+    @property
+    def flagged(self) -> bool:
+        return bool(self.outlier_in or self.disputed_in)
+
+
+@dataclass(frozen=True)
+class SpectroSample:
+    """One sample of the bath: its burns and their mean."""
+
+    sample_id: str
+    burns: tuple[Burn, ...]
+    """Every burn read, in file order, including those left out of the mean."""
+    analysis: Analysis
+    """Mean of the accepted burns [wt %]; elements in ``below_limit`` are upper bounds."""
+    flags: tuple[str, ...] = ()
+    """Plain-language warnings: disagreeing burns (spark again), left-out burns, single burns."""
+    grade: str | None = None
+    heat: str | None = None
+
+    @property
+    def accepted_burns(self) -> tuple[Burn, ...]:
+        return tuple(burn for burn in self.burns if burn.accepted)
+
+
+@dataclass(frozen=True)
+class ImportResult:
+    """Everything read from one export."""
+
+    source: str
+    samples: tuple[SpectroSample, ...]
+    """In the order the samples first appear in the file."""
+    elements: tuple[str, ...]
+    """Element columns of the file, in analysis-sheet order."""
+    ignored_columns: tuple[str, ...] = ()
+    """Headers that were not read (time, operator, iron balance, ...), as written."""
+    notes: tuple[str, ...] = ()
+    """What the reader skipped on purpose (preamble lines, the instrument's mean rows)."""
+
+    def sample(self, sample_id: str) -> SpectroSample:
+        for sample in self.samples:
+            if sample.sample_id == sample_id:
+                return sample
+        raise KeyError(sample_id)
+
+
+def format_content(symbol: str, pct: float) -> str:
+    """A content as a metallurgist writes it: ppm for N, O, B, H, else wt % to 4 decimals."""
+    if symbol in PPM_ELEMENTS:
+        return f"{pct * PPM_PER_PCT:.1f}".removesuffix(".0") + " ppm"
+    if pct >= 10:
+        return f"{pct:.2f}"
+    return f"{pct:.{5 if pct < 0.01 else 4}f}".rstrip("0").rstrip(".")
+
+
+# ---------------------------------------------------------------------------------------------
+# Reading the file
+
+
+def read_export(path: Path | str, settings: ShopSettings | None = None, drop_flagged: bool = False) -> ImportResult:
+    """Read one spectrometer export; ``drop_flagged`` leaves burns singled out as outliers out of the mean."""
+    path = Path(path)
+    layout = ExportLayout.from_settings(settings.spectrometer if settings else {})
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        raise InputError(path, "", "file not found") from None
+    except IsADirectoryError:
+        raise InputError(path, "", "is a folder, not a file") from None
+    except OSError as exc:
+        raise InputError(path, "", f"cannot be read ({exc.strerror})") from None
+    return parse_export(_decode(data, path, layout.encoding), path, layout, drop_flagged=drop_flagged)
+
+
+def _decode(data: bytes, source: object, encoding: str) -> str:
+    if data.startswith(b"PK\x03\x04"):
+        raise InputError(source, "", "is a spreadsheet workbook (.xlsx), not CSV text; save or export it as CSV")
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        # "Unicode text" exports announce UTF-16 with a byte-order mark: no guessing involved.
+        encoding = "utf-16"
+    elif b"\x00" in data:
+        line = data[:data.index(b"\x00")].count(b"\n") + 1
+        raise InputError(source, f"line {line}", "holds a NUL byte: this is not a text export")
+    elif codecs.lookup(encoding).name == "utf-8":
+        encoding = "utf-8-sig"  # a byte-order mark is common and harmless
+    try:
+        return data.decode(encoding).lstrip("\ufeff")
+    except UnicodeDecodeError as exc:
+        # No silent fallback to cp1252: it decodes almost any bytes, so a wrong guess would turn
+        # into wrong header names instead of an error. The shop states its encoding once.
+        line = data[:exc.start].count(b"\n") + 1
+        name = "UTF-8" if encoding == "utf-8-sig" else encoding
+        raise InputError(source, f"line {line}",
+                         f"byte 0x{data[exc.start]:02X} is not {name} text; if the spectrometer writes "
+                         "Windows-1252 (ANSI), set encoding = \"cp1252\" in shop.toml [spectrometer]") from None
+
+
+_SEP_LINE = re.compile(r"^sep=(.)\s*$", re.IGNORECASE)
+# An element header: "C", "%C", "Mn %", "Mn[%]", "N (ppm)", "S wt%"; the unit, if any, is checked later.
+_ELEMENT_HEADER = re.compile(
+    r"^(?:%\s*)?(?P<symbol>[A-Za-z]{1,2})\s*"
+    r"(?:\[(?P<unit1>[^\]]*)\]|\((?P<unit2>[^)]*)\)|(?P<unit3>%|ppm|wt\.?\s*%))?$",
+    re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class _Column:
+    index: int
+    name: str
+    symbol: str
+    ppm: bool
+
+
+def _rows(body: str, delimiter: str, source: object) -> list[tuple[int, list[str]]]:
+    """Non-blank rows with the file line each starts on."""
+    reader = csv.reader(io.StringIO(body, newline=""), delimiter=delimiter)
+    rows: list[tuple[int, list[str]]] = []
+    line = 1
+    try:
+        for cells in reader:
+            stripped = [cell.strip() for cell in cells]
+            if any(stripped):
+                rows.append((line, stripped))
+            line = reader.line_num + 1
+    except csv.Error as exc:
+        raise InputError(source, f"line {reader.line_num}", f"cannot be split into cells ({exc})") from None
+    return rows
+
+
+def _sample_index(cells: Sequence[str], layout: ExportLayout) -> int | None:
+    wanted = (_key(layout.sample_column),) if layout.sample_column else _SAMPLE_NAMES
+    for name in wanted:  # the first name of the list wins over a later generic "ID"
+        for index, cell in enumerate(cells):
+            if _key(cell) == name:
+                return index
+    return None
+
+
+def _find_table(body: str, source: object, layout: ExportLayout, forced: str | None
+                ) -> tuple[list[tuple[int, list[str]]], int, int]:
+    """Pick the separator under which a header with a sample column appears.
+
+    Returns the rows, the header's position among them and the sample column's index.
+    """
+    candidates = [forced] if forced else ([layout.delimiter] if layout.delimiter else ["\t", ";", ","])
+    best: tuple[int, list[tuple[int, list[str]]], int, int] | None = None
+    any_rows = False
+    for delimiter in candidates:
+        rows = _rows(body, delimiter, source)
+        any_rows = any_rows or bool(rows)
+        for position, (_, cells) in enumerate(rows):
+            sample_col = _sample_index(cells, layout) if len(cells) >= 2 else None
+            if sample_col is not None:
+                if best is None or len(cells) > best[0]:
+                    best = (len(cells), rows, position, sample_col)
+                break
+    if not any_rows:
+        raise InputError(source, "", "the file is empty")
+    if best is None:
+        if layout.sample_column:
+            raise InputError(source, "header",
+                             f"no column '{layout.sample_column}' (shop.toml spectrometer.sample_column)")
+        raise InputError(source, "header", "no sample column found (looked for 'Sample', 'Sample ID', 'ID'); "
+                         "name it with sample_column in shop.toml [spectrometer]")
+    return best[1], best[2], best[3]
+
+
+def _role_index(header: Sequence[str], configured: str | None, known: Sequence[str], setting: str,
+                source: object) -> int | None:
+    if configured:
+        for index, cell in enumerate(header):
+            if _key(cell) == _key(configured):
+                return index
+        raise InputError(source, "header", f"no column '{configured}' (shop.toml spectrometer.{setting})")
+    for index, cell in enumerate(header):
+        if _key(cell) in known:
+            return index
+    return None
+
+
+def _element_columns(header: Sequence[str], taken: set[int], layout: ExportLayout, source: object
+                     ) -> tuple[list[_Column], list[str]]:
+    columns: list[_Column] = []
+    ignored: list[str] = []
+    seen: dict[str, str] = {}
+    for index, name in enumerate(header):
+        if index in taken or not name:
+            continue
+        key = _key(name)
+        where = f"header, column '{name}'"
+        header_unit: str | None = None
+        if key in layout.ignore_columns:
+            ignored.append(name)
+            continue
+        if key in layout.columns:
+            symbol = layout.columns[key]
+        else:
+            match = _ELEMENT_HEADER.match(name)
+            if not match or match["symbol"].casefold() in _NOT_ELEMENTS:
+                ignored.append(name)
+                continue
+            symbol = normalise_symbol(match["symbol"], source, where)
+            header_unit = match["unit1"] or match["unit2"] or match["unit3"]
+        if symbol == "Fe":
+            ignored.append(name)  # iron is the balance; the analysis never lists it
+            continue
+        if symbol in seen:
+            raise InputError(source, where, f"{symbol} is already read from column '{seen[symbol]}'")
+        seen[symbol] = name
+        if header_unit is not None:
+            ppm = _unit_is_ppm(header_unit, source, where)
+        else:
+            ppm = layout.units_ppm.get(key, layout.units_ppm.get(_key(symbol), False))
+        columns.append(_Column(index, name, symbol, ppm))
+    if not columns:
+        raise InputError(source, "header", "no element column found (headers such as 'C', 'Mn %', 'N ppm')")
+    return columns, ignored
+
+
+class _DecimalStyle:
+    """Tracks whether the file writes decimal points or decimal commas; one file may not mix them."""
+
+    def __init__(self, configured: str | None) -> None:
+        self.configured = configured
+        self.first: tuple[str, str, str] | None = None  # (style, where, cell)
+
+    def check(self, cell: str, source: object, where: str) -> None:
+        style = "," if "," in cell else "." if "." in cell else None
+        if style is None or ("," in cell and "." in cell):
+            return  # no decimal separator, or a malformed number that parse_number will reject
+        word = {".": "a decimal point", ",": "a decimal comma"}
+        if self.configured:
+            if style != self.configured:
+                raise InputError(source, where, f"'{cell}' has {word[style]}, but shop.toml [spectrometer] "
+                                 f"says this export uses {word[self.configured]}")
+        elif self.first is None:
+            self.first = (style, where, cell)
+        elif self.first[0] != style:
+            raise InputError(source, where, f"'{cell}' has {word[style]} but {self.first[1]} has "
+                             f"{word[self.first[0]]} ('{self.first[2]}'); one export must use one style")
+
+
+def _read_cell(cell: str, column: _Column, decimals: _DecimalStyle, source: object, where: str) -> Reading | None:
+    if cell.casefold() in _BLANK_MARKERS:
+        return None
+    if cell.startswith(">"):
+        raise InputError(source, where, f"'{cell}' is above the instrument's calibrated range; this burn "
+                         "cannot be averaged (re-spark or analyse the sample another way)")
+    decimals.check(cell, source, where)
+    reading = parse_reading(cell, source, where, ppm=column.ppm)
+    if column.symbol in PPM_ELEMENTS and reading.pct >= 1.0:
+        # Gases and boron at >= 1 wt % cannot be a steel bath: almost surely ppm read as wt %.
+        raise InputError(source, where, f"'{cell}' would be {reading.pct:g} wt % {column.symbol}, which is not "
+                         f"credible; if the column is in ppm, head it '{column.symbol} ppm' or set "
+                         f"[spectrometer.units] {column.symbol} = \"ppm\" in shop.toml")
+    return reading
+
+
+@dataclass
+class _RawSample:
+    burns: list[Burn] = field(default_factory=list)
+    grade: str | None = None
+    heat: str | None = None
+
+
+def parse_export(body: str, source: object, layout: ExportLayout | None = None, *,
+                 drop_flagged: bool = False) -> ImportResult:
+    """Parse the text of an export (see :func:`read_export`)."""
+    layout = layout or ExportLayout()
+    body = body.lstrip("\ufeff")
+    forced = None
+    first_line, _, rest = body.partition("\n")
+    sep = _SEP_LINE.match(first_line.strip())
+    if sep:
+        # Spreadsheet programs write "sep=;" as a first line; keep the line count by leaving it blank.
+        forced, body = sep.group(1), "\n" + rest
+    rows, header_at, sample_col = _find_table(body, source, layout, forced)
+    header_line, header = rows[header_at]
+    notes: list[str] = []
+    if header_at:
+        first, last = rows[0][0], header_line - 1
+        notes.append(f"line {first} above the header was not read" if first == last
+                     else f"lines {first}–{last} above the header were not read")
+
+    burn_col = _role_index(header, layout.burn_column, _BURN_NAMES, "burn_column", source)
+    grade_col = _role_index(header, layout.grade_column, _GRADE_NAMES, "grade_column", source)
+    heat_col = _role_index(header, layout.heat_column, _HEAT_NAMES, "heat_column", source)
+    taken = {i for i in (sample_col, burn_col, grade_col, heat_col) if i is not None}
+    columns, ignored = _element_columns(header, taken, layout, source)
+
+    # Trailing separators leave unnamed columns at the end of the header; rows may stop before them.
+    width = max(i for i, name in enumerate(header) if name) + 1
+    decimals = _DecimalStyle(layout.decimal)
+    samples: dict[str, _RawSample] = {}
+    for line, cells in rows[header_at + 1:]:
+        if len(cells) < width:
+            raise InputError(source, f"row {line}", f"has {len(cells)} cells but the header (row {header_line}) "
+                             f"has {width}: a ragged row")
+        for index, cell in enumerate(cells):
+            if cell and (index >= len(header) or not header[index]):
+                raise InputError(source, f"row {line}, cell {index + 1}", f"'{cell}' stands under no column header")
+        if cells[:width] == header[:width]:
+            # Instruments that append each session to one file write the header again.
+            notes.append(f"row {line}: a repeated header was not read")
+            continue
+        sample_id = cells[sample_col]
+        burn_label = cells[burn_col] if burn_col is not None else ""
+        if _key(sample_id) in _STATISTIC_WORDS or _key(burn_label) in _STATISTIC_WORDS:
+            notes.append(f"row {line}: the instrument's '{burn_label or sample_id}' row was not read "
+                         "(meltfix averages the burns itself)")
+            continue
+        if not sample_id:
+            raise InputError(source, f"row {line}, column '{header[sample_col]}'", "no sample id")
+        readings: dict[str, Reading] = {}
+        for column in columns:
+            where = f"row {line}, column '{column.name}'"
+            reading = _read_cell(cells[column.index], column, decimals, source, where)
+            if reading is not None:
+                readings[column.symbol] = reading
+        total = math.fsum(r.pct for r in readings.values())
+        if total > 100:
+            raise InputError(source, f"row {line}", f"the elements add up to {total:.3f} %, over 100 %")
+        raw = samples.setdefault(sample_id, _RawSample())
+        label = burn_label or str(len(raw.burns) + 1)
+        raw.burns.append(Burn(label=label, row=line, readings=MappingProxyType(readings)))
+        if grade_col is not None and cells[grade_col] and raw.grade is None:
+            raw.grade = cells[grade_col]
+        if heat_col is not None and cells[heat_col] and raw.heat is None:
+            raw.heat = cells[heat_col]
+    if not samples:
+        raise InputError(source, f"row {header_line}", "the header is not followed by any burn")
+
+    built = tuple(_build_sample(sample_id, raw, layout, source, drop_flagged) for sample_id, raw in samples.items())
+    return ImportResult(
+        source=str(source),
+        samples=built,
+        elements=tuple(sorted((c.symbol for c in columns), key=element_sort_key)),
+        ignored_columns=tuple(ignored),
+        notes=tuple(notes),
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# Checking and averaging the burns of one sample
+
+
+@dataclass(frozen=True)
+class _Disagreement:
+    symbol: str
+    burns: tuple[int, ...]
+    """Positions in the sample's burn list."""
+    singled_out: bool
+    """True when ``burns`` holds the one burn that disagrees (it may be left out of the mean)."""
+    message: str
+
+
+def _find_disagreement(symbol: str, burns: Sequence[Burn], curve: RepeatabilityCurve) -> _Disagreement | None:
+    """Apply the repeatability check to one element of one sample.
+
+    Two burns: they disagree when |b1 - b2| > r at their mean; nothing tells which is wrong.
+    Three or more: the burn farthest from the median of the others is the outlier when that
+    distance exceeds r at that median. Burns below a detection limit have no measured value and
+    take no part, except that one reading "<L" against others averaging q is a disagreement when
+    q - L > r.
+    """
+    quantified = [(i, b.readings[symbol].pct) for i, b in enumerate(burns)
+                  if symbol in b.readings and not b.readings[symbol].below_limit]
+    bounded = [(i, b.readings[symbol].pct) for i, b in enumerate(burns)
+               if symbol in b.readings and b.readings[symbol].below_limit]
+
+    def fmt(pct: float) -> str:
+        return format_content(symbol, pct)
+
+    def label(positions: Sequence[int]) -> str:
+        names = [burns[i].label for i in positions]
+        return ("burn " if len(names) == 1 else "burns ") + ", ".join(names[:-1]) + \
+            (" and " if len(names) > 1 else "") + names[-1]
+
+    if len(quantified) == 2:
+        (i, a), (j, b) = quantified
+        limit = curve.limit_pct((a + b) / 2)
+        if abs(a - b) > limit:
+            return _Disagreement(symbol, (i, j), False, f"{symbol}: {label((i, j))} differ by "
+                                 f"{fmt(abs(a - b))} (repeatability limit {fmt(limit)}); spark a third burn "
+                                 "to tell which is wrong")
+    elif len(quantified) >= 3:
+        spread = []
+        for k, (i, value) in enumerate(quantified):
+            reference = statistics.median(v for m, (_, v) in enumerate(quantified) if m != k)
+            spread.append((abs(value - reference), i, value, reference))
+        farthest = max(spread)[0]
+        worst = [s for s in spread if math.isclose(s[0], farthest, rel_tol=1e-9, abs_tol=1e-12)]
+        if len(worst) == 1:
+            distance, i, value, reference = worst[0]
+            limit = curve.limit_pct(reference)
+            if distance > limit:
+                return _Disagreement(symbol, (i,), True, f"{symbol}: {label((i,))} reads {fmt(value)}, "
+                                     f"{fmt(distance)} from the others' median {fmt(reference)} "
+                                     f"(repeatability limit {fmt(limit)}); spark a fresh burn")
+        else:
+            limit = curve.limit_pct(statistics.median(v for _, v in quantified))
+            if farthest > limit:
+                tied = tuple(sorted(s[1] for s in worst))
+                return _Disagreement(symbol, tied, False, f"{symbol}: {label(tied)} are equally far "
+                                     f"({fmt(farthest)}) from the others (repeatability limit {fmt(limit)}); "
+                                     "spark again")
+    if quantified and bounded:
+        mean = math.fsum(v for _, v in quantified) / len(quantified)
+        bound = max(v for _, v in bounded)
+        limit = curve.limit_pct(mean)
+        if mean - bound > limit:
+            positions = tuple(i for i, _ in bounded)
+            return _Disagreement(symbol, positions, False, f"{symbol}: {label(positions)} "
+                                 f"{'reads' if len(positions) == 1 else 'read'} below {fmt(bound)} but the other "
+                                 f"burns average {fmt(mean)}; spark again")
+    return None
+
+
+def _mean_reading(readings: Sequence[Reading]) -> Reading:
+    """Average per the module's rule for values below a detection limit."""
+    quantified = [r.pct for r in readings if not r.below_limit]
+    bounds = [r.pct for r in readings if r.below_limit]
+    # Rounded to 1e-10 wt % (1e-6 ppm) so binary noise such as 0.007350000000000001 never reaches a file.
+    measured = round(math.fsum(quantified) / len(quantified), 10) if quantified else 0.0
+    if not bounds:
+        return Reading(measured)
+    return Reading(max(max(bounds), measured), below_limit=True)
+
+
+def _build_sample(sample_id: str, raw: _RawSample, layout: ExportLayout, source: object,
+                  drop_flagged: bool) -> SpectroSample:
+    # A sample sparked again later restarts its burn numbers: name repeated ones by their row too.
+    repeated = Counter(b.label for b in raw.burns)
+    read = [replace(b, label=f"{b.label} (row {b.row})") if repeated[b.label] > 1 else b for b in raw.burns]
+    lines = [b.row for b in read]
+    if len(lines) == 1:
+        rows = f"row {lines[0]}"
+    elif lines == list(range(lines[0], lines[-1] + 1)):
+        rows = f"rows {lines[0]}–{lines[-1]}"
+    else:
+        rows = "rows " + ", ".join(map(str, lines))
+    usable = [b for b in read if b.readings]
+    if not usable:
+        raise InputError(source, f"sample '{sample_id}' ({rows})",
+                         "has no usable burn: every element cell is blank")
+    flags: list[str] = [f"burn {b.label} (row {b.row}) has no values and is not counted"
+                        for b in read if not b.readings]
+    symbols = sorted({s for b in usable for s in b.readings}, key=element_sort_key)
+    outlier: dict[int, set[str]] = {}
+    disputed: dict[int, set[str]] = {}
+    for symbol in symbols:
+        found = _find_disagreement(symbol, usable, layout.curve(symbol))
+        if found is None:
+            continue
+        flags.append(found.message)
+        target = outlier if found.singled_out else disputed
+        for position in found.burns:
+            target.setdefault(position, set()).add(symbol)
+
+    checked: list[Burn] = []
+    for position, burn in enumerate(usable):
+        leave_out = drop_flagged and position in outlier
+        if leave_out:
+            elements = ", ".join(sorted(outlier[position], key=element_sort_key))
+            flags.append(f"burn {burn.label} left out of the mean (flagged in {elements})")
+        checked.append(Burn(burn.label, burn.row, burn.readings, frozenset(outlier.get(position, ())),
+                            frozenset(disputed.get(position, ())), accepted=not leave_out))
+    accepted = [b for b in checked if b.accepted]
+    if not accepted:
+        raise InputError(source, f"sample '{sample_id}' ({rows})",
+                         "every burn was flagged and left out; spark the sample again")
+    if len(accepted) == 1:
+        flags.append("only one burn: repeatability not checked; spark a second burn")
+
+    pct: dict[str, float] = {}
+    below: set[str] = set()
+    for symbol in symbols:
+        readings = [b.readings[symbol] for b in accepted if symbol in b.readings]
+        if not readings:
+            continue
+        if len(readings) < len(accepted):
+            flags.append(f"{symbol}: read in {len(readings)} of {len(accepted)} burns; the mean uses those")
+        mean = _mean_reading(readings)
+        pct[symbol] = mean.pct
+        if mean.below_limit:
+            below.add(symbol)
+    by_row = {b.row: b for b in checked}
+    burns = tuple(by_row.get(b.row, Burn(b.label, b.row, b.readings, accepted=False)) for b in read)
+    return SpectroSample(sample_id, burns, Analysis(pct=pct, below_limit=frozenset(below)), tuple(flags),
+                         raw.grade, raw.heat)
