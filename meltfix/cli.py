@@ -46,9 +46,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     args_list = list(sys.argv[1:] if argv is None else argv)
-    # `meltfix` alone or `meltfix HEAT.toml [--recipes DIR]` opens the screen.
-    if not args_list or (args_list[0] not in COMMANDS and not args_list[0].startswith("-")) \
-            or args_list[0] == "--recipes":
+    # `meltfix` alone, `meltfix HEAT.toml` or `meltfix --recipes DIR` (any screen option) opens the screen.
+    if not args_list or (args_list[0] not in COMMANDS and args_list[0] not in ("-h", "--help", "--version")):
         args_list.insert(0, "screen")
     parser = build_parser()
     args = parser.parse_args(args_list)

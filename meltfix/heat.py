@@ -120,15 +120,28 @@ def load_heat(path: Path | str, book: RecipeBook) -> Heat:
 
 
 def heat_to_toml(heat: Heat) -> str:
-    """Write a heat back as HEAT.toml text (values below the detection limit as "<x" strings)."""
-    # JSON string escapes are valid TOML basic strings; repr keeps every digit of a float.
-    lines = [f"heat = {json.dumps(heat.heat_id)}", f"grade = {json.dumps(heat.grade)}", f"bath_kg = {heat.bath_kg!r}"]
-    if heat.capacity_kg is not None:
-        lines.append(f"capacity_kg = {heat.capacity_kg!r}")
-    if heat.temperature_c is not None:
-        lines.append(f"temperature_c = {heat.temperature_c!r}")
+    """Write a heat back as HEAT.toml text, every field included, so that parse_heat reads it back equal.
+
+    Values below the detection limit are written as "<x" strings.
+    """
+    # JSON string escapes are valid TOML basic strings; repr(float()) keeps every digit of a float
+    # and turns NumPy scalars into plain TOML numbers.
+    def num(value: float) -> str:
+        return repr(float(value))
+
+    lines = [f"heat = {json.dumps(heat.heat_id)}", f"grade = {json.dumps(heat.grade)}",
+             f"bath_kg = {num(heat.bath_kg)}", f"stage = {json.dumps(heat.stage)}"]
+    for key in ("capacity_kg", "temperature_c", "max_temp_drop_c"):
+        value = getattr(heat, key)
+        if value is not None:
+            lines.append(f"{key} = {num(value)}")
+    if heat.switched_off:
+        lines.append(f"switch_off = {json.dumps(sorted(heat.switched_off))}")
     lines += ["", "[analysis]"]
     for symbol, pct in heat.analysis.pct.items():
-        value = json.dumps(f"<{pct!r}") if symbol in heat.analysis.below_limit else repr(pct)
+        value = json.dumps(f"<{float(pct)!r}") if symbol in heat.analysis.below_limit else num(pct)
         lines.append(f"{symbol} = {value}")
+    for key, values in (("lock_kg", heat.locked_kg), ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg)):
+        if values:
+            lines += ["", f"[{key}]"] + [f"{json.dumps(name)} = {num(v)}" for name, v in values.items()]
     return "\n".join(lines) + "\n"

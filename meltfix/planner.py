@@ -13,11 +13,12 @@ When no plan meets every window, an elastic version finds the plan with the leas
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import Bounds, LinearConstraint, linprog, milp
+from scipy.optimize import Bounds, LinearConstraint, OptimizeResult, linprog, milp
 
 from meltfix.cautions import plan_cautions
 from meltfix.elements import element_sort_key
@@ -25,13 +26,25 @@ from meltfix.errors import InputError
 from meltfix.heat import Heat, validate_heat
 from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.reasons import explain_violation
-from meltfix.recipes import Material, RecipeBook
+from meltfix.recipes import Grade, Material, RecipeBook
 
 # Kilograms of element off aim -> penalty: 0.01 wt % of a bath of M kg is M/10000 kg, per tonne
 # of bath that is M/1000 t, so w currency per (0.01 % x t) is exactly 10 w per kg off aim.
 _AIM_PENALTY_PER_KG = 10.0
-_HIGHS_QUIET = {"disp": False}
-_TOL = 1e-7
+# HiGHS without its presolve: on these small models it saves nothing, its LP presolve once called a
+# feasible elastic model infeasible, and its MIP presolve makes HiGHS 1.12 print a debug line
+# straight to file descriptor 1 when it repairs a presolved solution, which would corrupt a running
+# terminal screen (DESIGN §7). "disp" off keeps its log quiet too.
+_HIGHS_OPTIONS = {"disp": False, "presolve": False}
+# HiGHS's neighbourhood heuristics (RINS, RENS) and its root reduced-cost heuristic each run a
+# sub-MIP; on these 20-40 column models they take about a third of the time and find nothing branch
+# and bound does not (bench/plan_speed.py: 1,000 demo heats 22 s -> 15 s, the same costs). milp
+# passes HiGHS options it does not list on to HiGHS verbatim, with a warning that says so.
+_MIP_OPTIONS = {"mip_heuristic_run_rins": False, "mip_heuristic_run_rens": False,
+                "mip_heuristic_run_root_reduced_cost": False}
+# A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
+# as HiGHS's own MIP feasibility tolerance does.
+_INTEGRALITY_TOL = 1e-6
 
 
 @dataclass(frozen=True)
@@ -198,6 +211,8 @@ class _Model:
     n_materials: int
     prices: np.ndarray
     bath_kg: float
+    min_kg: np.ndarray
+    switched: np.ndarray  # materials with an on/off binary (a minimum addition), in binary order
     notes: list[str] = field(default_factory=list)
 
 
@@ -234,7 +249,7 @@ class Planner:
 
         prices = np.array([heat.price_per_kg.get(m.name, m.price_per_kg) for m in materials])
         stock = np.array([_or_inf(heat.stock_kg.get(m.name, m.stock_kg)) for m in materials])
-        locked = np.array([m.name in heat.locked_kg for m in materials])
+        locked = np.array([m.name in heat.locked_kg for m in materials], dtype=bool)  # bool even when empty
         lock_kg = np.array([heat.locked_kg.get(m.name, 0.0) for m in materials])
         pack = np.array([m.pack_kg or 0.0 for m in materials])
         packed = (pack > 0) & ~locked & (not options.continuous)
@@ -250,21 +265,27 @@ class Planner:
         def add_limit(label: str, coeff: np.ndarray, level_low: float, level_high: float,
                       low: float | None, high: float | None) -> None:
             # coeff: dissolved fraction of the quantity per kg of each material; level: W-scaled now.
-            if low is not None and low > 0:
+            if low is not None:
                 rows.append(-(coeff - low / 100.0 * g))
                 rhs.append(bath * (level_low - low / 100.0))
                 window_rows.append(_Row(label, "min", low))
-            if high is not None and high < 100:
+            if high is not None:
                 rows.append(coeff - high / 100.0 * g)
                 rhs.append(bath * (high / 100.0 - level_high))
                 window_rows.append(_Row(label, "max", high))
 
         for symbol, (low, high) in grade.window_pct.items():
             k = row_of[symbol]
-            add_limit(symbol, yields[k], now_low[k], now[k], low, high)
+            # A content cannot go below 0 % or above 100 %: such a limit is no row. (An index can:
+            # Mn - 20 S >= 0 is a real limit, so its limits are always rows.)
+            add_limit(symbol, yields[k], now_low[k], now[k], low if low > 0 else None, high if high < 100 else None)
         for index in grade.indices:
             weights = np.array([index.terms.get(s, 0.0) for s in elements])
-            add_limit(index.name, weights @ yields, float(weights @ now_low), float(weights @ now),
+            # A negative weight (a ratio such as Mn - 20 S) flips which end of a below-limit
+            # reading is the safe one: the least index for its minimum, the most for its maximum.
+            least = np.where(weights > 0, now_low, now)
+            most = np.where(weights > 0, now, now_low)
+            add_limit(index.name, weights @ yields, float(weights @ least), float(weights @ most),
                       index.min_value, index.max_value)
 
         capacity_row = temperature_row = None
@@ -277,6 +298,17 @@ class Planner:
             temperature_row = len(rows)
             rows.append(chill * 1000.0 / bath)
             rhs.append(max_drop)
+
+        # An element the grade does not limit may still not be raised at will: without this guard
+        # the optimiser would use aluminium, copper or ferrosilicon as a cheap diluent or heater.
+        unlisted = sorted({s for m in materials for s in m.composition_pct if s != "Fe"} - set(grade.window_pct),
+                          key=element_sort_key)
+        rise = book.settings.max_unlisted_rise_pct / 100.0
+        if unlisted:
+            unlisted_yields = np.array([[m.yield_pct(s) / 100.0 for m in materials] for s in unlisted])
+            unlisted_now = np.array([heat.analysis.get(s) / 100.0 for s in unlisted])
+            rows.extend(unlisted_yields - (unlisted_now + rise)[:, None] * g)
+            rhs.extend(np.full(len(unlisted), bath * rise))
 
         aim_elements = [s for s in grade.aim_pct if options.use_aim]
         n_aim = len(aim_elements)
@@ -323,20 +355,20 @@ class Planner:
         integrality[n + 2 * n_aim:] = 1
 
         return _Model(materials, scale, packed, c, a_ub, b_ub, a_eq, b_eq, lb, ub, integrality, window_rows,
-                      capacity_row, temperature_row, aim_elements, n, prices, bath, notes)
+                      capacity_row, temperature_row, aim_elements, n, prices, bath, min_kg, switch_idx, notes)
 
     # -- solving --------------------------------------------------------------------------
     def plan(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan:
         """Plan one heat. Raises InputError when the heat does not fit the recipe book."""
         validate_heat(heat, self.book)
         model = self._build(heat, options)
-        solution = _solve(model.c, model.a_ub, model.b_ub, model.a_eq, model.b_eq, model.lb, model.ub,
-                          model.integrality, options)
+        solution, duals = _solve_model(model, model.c, model.a_ub, model.b_ub, model.a_eq, model.b_eq,
+                                       model.lb, model.ub, options)
         status = "optimal"
         if solution is None:
             status = "closest"
             solution = self._closest(model, options)
-        return self._result(heat, model, solution, status, options)
+        return self._result(heat, model, solution, status, options, duals)
 
     def _closest(self, model: _Model, options: PlanOptions) -> np.ndarray:
         """Elastic windows: least total violation first (relative to each limit), then cost."""
@@ -348,29 +380,33 @@ class Planner:
         a_eq = np.hstack([model.a_eq, np.zeros((model.a_eq.shape[0], n_rows))])
         lb = np.concatenate([model.lb, np.zeros(n_rows)])
         ub = np.concatenate([model.ub, np.full(n_rows, np.inf)])
-        integrality = np.concatenate([model.integrality, np.zeros(n_rows)])
         # Violation weight: kilograms outside a limit relative to the limit's own mass in the bath,
         # so 0.01 % over a 0.02 % limit counts far more than 0.01 % over a 1.5 % one.
         limit_kg = np.array([max(row.limit_pct, 1e-3) / 100.0 for row in model.window_rows]) * model.bath_kg
         weights = 1.0 / limit_kg
         first = np.concatenate([np.zeros(n_vars), weights])
-        phase1 = _solve(first, a_ub, model.b_ub, a_eq, model.b_eq, lb, ub, integrality, options)
+        phase1, _ = _solve_model(model, first, a_ub, model.b_ub, a_eq, model.b_eq, lb, ub, options)
         if phase1 is None:
             raise InputError("heat", "lock_kg",
                              "no plan is possible at all: the locked amounts alone break the vessel "
                              "capacity or the temperature limit")
-        least = float(weights @ phase1[n_vars:])
+        violation = weights * phase1[n_vars:]
+        least = float(violation.sum())
         cap_row = np.concatenate([np.zeros(n_vars), weights])
         a_ub2 = np.vstack([a_ub, cap_row])
         # A hair of slack on the least violation keeps phase 2 from buying costly alloys only to
         # shave a millionth of a per cent off a residual (1e-4 = 0.01 % of a limit).
         b_ub2 = np.append(model.b_ub, least * (1 + 1e-4) + 1e-4)
+        # The hair is for the limits that cannot be met: one that phase 1 met stays met, or the
+        # cheaper plan would miss it by a hair and blame it on a reason that is not true.
+        ub2 = ub.copy()
+        ub2[n_vars:][violation <= 1e-9] = 0.0
         second = np.concatenate([model.c, np.zeros(n_rows)])
-        phase2 = _solve(second, a_ub2, b_ub2, a_eq, model.b_eq, lb, ub, integrality, options)
+        phase2, _ = _solve_model(model, second, a_ub2, b_ub2, a_eq, model.b_eq, lb, ub2, options)
         return (phase2 if phase2 is not None else phase1)[:n_vars]
 
     def _result(self, heat: Heat, model: _Model, solution: np.ndarray, status: str,
-                options: PlanOptions) -> Plan:
+                options: PlanOptions, duals: OptimizeResult | None) -> Plan:
         book = self.book
         grade = book.grade(heat.grade)
         n = model.n_materials
@@ -386,19 +422,27 @@ class Planner:
                                       material.pack_kg if packs is not None else None))
             used.append((material, float(kg[j])))
         final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used)
-        checks = _limit_checks(grade, predicted)
+        # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
+        # closest plan reports the shortfall it was planned against.
+        lowest = predicted
+        if heat.analysis.below_limit:
+            floor = {s: 0.0 if s in heat.analysis.below_limit else v for s, v in heat.analysis.pct.items()}
+            lowest = bath_after(heat.bath_kg, floor, used)[1]
+        checks = limit_checks(grade, predicted, lowest)
+        drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
+        drop_limit = heat.max_temp_drop_c if heat.max_temp_drop_c is not None else book.settings.max_temp_drop_c
         violations: list[Violation] = []
         if status == "closest":
             for check in checks:
                 if check.margin_pct < -1e-9:
                     reason = explain_violation(check.element, check.limit, heat, book, model.materials, used,
-                                               final_kg, model.packed.any() and not options.continuous)
+                                               final_kg, model.packed.any() and not options.continuous,
+                                               drop, drop_limit)
                     violations.append(Violation(check.element, check.limit, check.limit_pct,
                                                 check.predicted_pct, -check.margin_pct, reason))
             if not violations:
                 status = "optimal"  # the elastic solution met every window after rounding
-        drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
-        binding = self._sensitivity(model, solution, final_kg, options) if status == "optimal" else ()
+        binding = self._sensitivity(model, solution, final_kg, duals) if status == "optimal" else ()
         cautions = plan_cautions(used, heat.bath_kg, drop, heat.temperature_c, book.settings)
         return Plan(
             heat_id=heat.heat_id,
@@ -419,19 +463,21 @@ class Planner:
         )
 
     def _sensitivity(self, model: _Model, solution: np.ndarray, final_kg: float,
-                     options: PlanOptions) -> tuple[Binding, ...]:
-        """Duals of the LP with the integer choices fixed: what one more unit of each limit is worth."""
-        lb, ub = model.lb.copy(), model.ub.copy()
+                     result: OptimizeResult | None) -> tuple[Binding, ...]:
+        """Duals of the LP with the integer choices fixed: what one more unit of each limit is worth.
+
+        ``result`` is the LP already solved when its optimum needed no integer choice; otherwise the
+        LP is solved here with the packs and the on/off choices fixed at the plan's values.
+        """
         fixed = model.integrality > 0
-        lb[fixed] = ub[fixed] = np.round(solution[fixed])
-        result = linprog(model.c, A_ub=model.a_ub if model.a_ub.size else None,
-                         b_ub=model.b_ub if model.a_ub.size else None,
-                         A_eq=model.a_eq if model.a_eq.size else None, b_eq=model.b_eq if model.a_eq.size else None,
-                         bounds=np.column_stack([lb, ub]), method="highs", options=_HIGHS_QUIET)
-        if result.status != 0:
-            return ()
+        if result is None:
+            lb, ub = model.lb.copy(), model.ub.copy()
+            lb[fixed] = ub[fixed] = np.round(solution[fixed])
+            result = _solve_lp(model.c, model.a_ub, model.b_ub, model.a_eq, model.b_eq, lb, ub)
+            if result is None:
+                return ()
         bindings: list[Binding] = []
-        duals = -np.asarray(result.ineqlin.marginals) if model.a_ub.size else np.zeros(0)
+        duals = -np.asarray(result.ineqlin.marginals)
         for k, row in enumerate(model.window_rows):
             # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
             worth = duals[k] * final_kg * 1e-4
@@ -444,7 +490,8 @@ class Planner:
             bindings.append(Binding("temperature drop limit", duals[model.temperature_row], "1 °C more allowed drop"))
         upper = -np.asarray(result.upper.marginals)[: model.n_materials] / model.scale
         for j in np.flatnonzero(upper > 1e-6):
-            if model.lb[j] != model.ub[j]:  # a lock is a choice, not a shortage
+            # A lock is a choice, not a shortage; a pack count fixed for this LP is not the stock.
+            if model.lb[j] != model.ub[j] and not fixed[j]:
                 bindings.append(Binding(f"stock of {model.materials[j].name}", float(upper[j]), "1 kg more in stock"))
         if model.aim_elements and model.a_eq.size:
             eq_duals = np.asarray(result.eqlin.marginals)
@@ -460,36 +507,93 @@ def _or_inf(value: float | None) -> float:
     return math.inf if value is None else value
 
 
-def _solve(c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarray, b_eq: np.ndarray,
-           lb: np.ndarray, ub: np.ndarray, integrality: np.ndarray, options: PlanOptions) -> np.ndarray | None:
-    """Solve with HiGHS: linprog for a pure LP, milp when some variables are integer. None = infeasible."""
-    if not integrality.any():
-        result = linprog(c, A_ub=a_ub if a_ub.size else None, b_ub=b_ub if a_ub.size else None,
-                         A_eq=a_eq if a_eq.size else None, b_eq=b_eq if a_eq.size else None,
-                         bounds=np.column_stack([lb, ub]), method="highs", options=_HIGHS_QUIET)
-        return result.x if result.status == 0 else None
+def _solve_lp(c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarray, b_eq: np.ndarray,
+              lb: np.ndarray, ub: np.ndarray) -> OptimizeResult | None:
+    """The LP (integrality ignored) with HiGHS, duals included. None = infeasible."""
+    if not len(c):  # every material switched off and no aim: the plan is "add nothing", if that fits
+        fits = bool(np.all(b_ub >= -1e-9) and np.all(np.abs(b_eq) <= 1e-9))
+        none = OptimizeResult(marginals=np.zeros(0))
+        return OptimizeResult(x=np.zeros(0), fun=0.0, ineqlin=OptimizeResult(marginals=np.zeros(len(b_ub))),
+                              eqlin=OptimizeResult(marginals=np.zeros(len(b_eq))), upper=none) if fits else None
+    result = linprog(c, A_ub=a_ub if a_ub.size else None, b_ub=b_ub if a_ub.size else None,
+                     A_eq=a_eq if a_eq.size else None, b_eq=b_eq if a_eq.size else None,
+                     bounds=np.column_stack([lb, ub]), method="highs", options=_HIGHS_OPTIONS)
+    return result if result.status == 0 else None
+
+
+def _solve_model(model: _Model, c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarray,
+                 b_eq: np.ndarray, lb: np.ndarray, ub: np.ndarray,
+                 options: PlanOptions) -> tuple[np.ndarray | None, OptimizeResult | None]:
+    """Solve the model's problem (or its elastic version, with columns added after the model's).
+
+    The LP relaxation comes first (DESIGN §7): it is a fraction of the integer solve's time, proves
+    infeasibility on its own, and when its optimum already has whole packs and no addition under its
+    minimum it is the integer optimum. Returns (solution, the LP result when the relaxation
+    sufficed, for its duals); (None, None) when infeasible.
+    """
+    relaxed = _solve_lp(c, a_ub, b_ub, a_eq, b_eq, lb, ub)
+    if relaxed is None:
+        return None, None
+    point = _integer_point(model, relaxed.x)
+    if point is not None:
+        return point, relaxed
+    integrality = np.zeros(len(c))  # the elastic slacks, after the model's columns, are continuous
+    integrality[: len(model.integrality)] = model.integrality
+    return _solve_mip(c, a_ub, b_ub, a_eq, b_eq, lb, ub, integrality, options), None
+
+
+def _integer_point(model: _Model, x: np.ndarray) -> np.ndarray | None:
+    """An LP solution as an integer point when it already has whole packs and every addition at
+    zero or at least its minimum (the on/off binaries then follow the masses); None otherwise."""
+    packs = x[: model.n_materials][model.packed]
+    if np.any(np.abs(packs - np.round(packs)) > _INTEGRALITY_TOL):
+        return None
+    kg = x[model.switched] * model.scale[model.switched]
+    on = kg > _INTEGRALITY_TOL
+    if np.any(on & (kg < model.min_kg[model.switched] - _INTEGRALITY_TOL)):
+        return None
+    point = x.copy()
+    first = model.n_materials + 2 * len(model.aim_elements)
+    point[first: first + len(on)] = on
+    return point
+
+
+def _solve_mip(c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarray, b_eq: np.ndarray,
+               lb: np.ndarray, ub: np.ndarray, integrality: np.ndarray, options: PlanOptions) -> np.ndarray | None:
+    """Solve with HiGHS's branch and bound (scipy.optimize.milp). None = infeasible or no solution in time."""
     constraints = []
     if a_ub.size:
         constraints.append(LinearConstraint(a_ub, -np.inf, b_ub))
     if a_eq.size:
         constraints.append(LinearConstraint(a_eq, b_eq, b_eq))
+    # Set at each call, not once at import: a caller's warnings.catch_warnings() (pytest's, for one)
+    # restores the filters it found. Adding the same filter again only moves it to the front.
+    warnings.filterwarnings("ignore", message=r"Unrecognized options detected: \{'mip_heuristic_run_")
     result = milp(c, constraints=constraints, integrality=integrality, bounds=Bounds(lb, ub),
-                  options={"disp": False, "mip_rel_gap": options.mip_rel_gap, "time_limit": options.time_limit_s})
+                  options={**_HIGHS_OPTIONS, **_MIP_OPTIONS, "mip_rel_gap": options.mip_rel_gap,
+                           "time_limit": options.time_limit_s})
     return result.x if result.x is not None and result.status in (0, 1) else None
 
 
-def _limit_checks(grade, predicted: Mapping[str, float]) -> tuple[LimitCheck, ...]:
+def limit_checks(grade: Grade, predicted: Mapping[str, float],
+                  lowest: Mapping[str, float] | None = None) -> tuple[LimitCheck, ...]:
+    """Every limit of the grade against the predicted analysis; ``lowest`` (default: the same) has
+    below-limit readings at 0 and is used wherever the low end is the safe one (minimums, negative
+    weights)."""
+    lowest = predicted if lowest is None else lowest
     checks = []
     for symbol, (low, high) in grade.window_pct.items():
-        value = predicted.get(symbol, 0.0)
         if low > 0:
+            value = lowest.get(symbol, 0.0)
             checks.append(LimitCheck(symbol, "min", low, value, value - low))
+        value = predicted.get(symbol, 0.0)
         checks.append(LimitCheck(symbol, "max", high, value, high - value))
     for index in grade.indices:
-        value = index.value(predicted)
         if index.min_value is not None:
+            value = index.value({s: (lowest if w > 0 else predicted).get(s, 0.0) for s, w in index.terms.items()})
             checks.append(LimitCheck(index.name, "min", index.min_value, value, value - index.min_value))
         if index.max_value is not None:
+            value = index.value({s: (predicted if w > 0 else lowest).get(s, 0.0) for s, w in index.terms.items()})
             checks.append(LimitCheck(index.name, "max", index.max_value, value, index.max_value - value))
     return tuple(checks)
 

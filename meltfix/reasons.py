@@ -12,7 +12,8 @@ UNREMOVABLE = frozenset({"Cu", "Ni", "Mo", "Sn", "As", "Sb", "Co", "W"})
 
 
 def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, usable: Sequence[Material],
-                      used: Sequence[tuple[Material, float]], final_kg: float, packs: bool) -> str:
+                      used: Sequence[tuple[Material, float]], final_kg: float, packs: bool,
+                      temperature_drop_c: float = 0.0, drop_limit_c: float | None = None) -> str:
     """One sentence saying why ``element`` misses its ``limit`` ("min" or "max") in the closest plan."""
     grade = book.grade(heat.grade)
     if element not in grade.window_pct:
@@ -22,9 +23,11 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
     free_kg = None if heat.capacity_kg is None else heat.capacity_kg - heat.bath_kg
     added_kg = sum(kg for _, kg in used)
     if limit == "min":
-        carriers = [m for m in usable if m.yield_pct(element) > 0]
+        # A carrier must bring more of the element than the bath needs: scrap with 0.005 % Mo
+        # does not raise Mo to 0.15 %.
+        carriers = [m for m in usable if m.yield_pct(element) > low]
         if not carriers:
-            anywhere = [m.name for m in book.materials if m.yield_pct(element) > 0]
+            anywhere = [m.name for m in book.materials if m.yield_pct(element) > low]
             if not anywhere:
                 return f"No material in the recipe book carries {element}."
             return (f"No usable material carries {element} (those that do are switched off or forbidden "
@@ -35,6 +38,9 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
         if free_kg is not None and final_kg - heat.bath_kg >= free_kg - 1.0:
             return (f"{element} is short because the vessel is full: all {free_kg:,.0f} kg of free capacity "
                     "is used.")
+        if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
+            return (f"{element} is short because more additions would chill the bath beyond the "
+                    f"{drop_limit_c:g} °C the heat may lose.")
         exhausted = [m.name for m, kg in used if m in stocked and _stock(heat, m) is not None
                      and kg >= _stock(heat, m) - 1e-6]
         if exhausted and len(exhausted) >= len([m for m in stocked if _stock(heat, m) is not None]):

@@ -98,6 +98,8 @@ class ShopSettings:
     """Total addition above which the plan warns about chill [kg/t]."""
     max_temp_drop_c: float | None = None
     """Largest temperature drop the additions may cause [°C]; None = not limited."""
+    max_unlisted_rise_pct: float = 0.10
+    """Most the additions may raise an element the grade sets no window for [wt %]."""
     spectrometer: Mapping[str, Any] = field(default_factory=dict)
     """The instrument's export layout, read by :mod:`meltfix.spectro`."""
 
@@ -179,7 +181,7 @@ def table(value: Any, source: object, field_name: str) -> Mapping[str, Any]:
     return value
 
 
-def _known_keys(entry: Mapping[str, Any], allowed: set[str], source: object, where: str) -> None:
+def known_keys(entry: Mapping[str, Any], allowed: set[str], source: object, where: str) -> None:
     # An unknown key is almost always a typing slip ("stok_kg"); silently ignoring it loses data.
     for key in entry:
         if key not in allowed:
@@ -195,7 +197,7 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Mate
     entry = table(entry, source, where.rstrip("."))
     name = text(require(entry, "name", source, where), source, f"{where}name")
     where = f"material '{name}'."
-    _known_keys(entry, _MATERIAL_KEYS, source, where)
+    known_keys(entry, _MATERIAL_KEYS, source, where)
     price = number(require(entry, "price_per_kg", source, where), source, f"{where}price_per_kg")
     raw_comp = table(require(entry, "composition", source, where), source, f"{where}composition")
     composition: dict[str, float] = {}
@@ -296,7 +298,7 @@ _GRADE_KEYS = {"name", "standard", "family", "window", "aim", "index", "forbid"}
 
 
 def parse_grade(data: Mapping[str, Any], source: object) -> Grade:
-    _known_keys(data, _GRADE_KEYS, source, "")
+    known_keys(data, _GRADE_KEYS, source, "")
     name = text(require(data, "name", source, ""), source, "name")
     raw_window = table(require(data, "window", source, ""), source, "window")
     if not raw_window:
@@ -330,7 +332,7 @@ def parse_grade(data: Mapping[str, Any], source: object) -> Grade:
     for index_name, spec in table(data.get("index", {}), source, "index").items():
         where = f"index.{index_name}"
         spec = table(spec, source, where)
-        _known_keys(spec, {"terms", "min", "max"}, source, f"{where}.")
+        known_keys(spec, {"terms", "min", "max"}, source, f"{where}.")
         terms = {normalise_symbol(k, source, f"{where}.terms.{k}"): number(v, source, f"{where}.terms.{k}", minimum=None)
                  for k, v in table(require(spec, "terms", source, f"{where}."), source, f"{where}.terms").items()}
         low = None if "min" not in spec else number(spec["min"], source, f"{where}.min")
@@ -375,7 +377,8 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
     return dict(sorted(grades.items()))
 
 
-_SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c", "spectrometer"}
+_SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
+              "max_unlisted_rise_pct", "spectrometer"}
 
 
 def load_settings(folder: Path) -> ShopSettings:
@@ -383,7 +386,7 @@ def load_settings(folder: Path) -> ShopSettings:
     if not path.exists():
         return ShopSettings()
     data = read_toml(path)
-    _known_keys(data, _SHOP_KEYS, path, "")
+    known_keys(data, _SHOP_KEYS, path, "")
     defaults = ShopSettings()
     drop = data.get("max_temp_drop_c")
     return ShopSettings(
@@ -393,6 +396,8 @@ def load_settings(folder: Path) -> ShopSettings:
         large_addition_kg_per_t=number(data.get("large_addition_kg_per_t", defaults.large_addition_kg_per_t),
                                        path, "large_addition_kg_per_t", positive=True),
         max_temp_drop_c=None if drop is None else number(drop, path, "max_temp_drop_c"),
+        max_unlisted_rise_pct=number(data.get("max_unlisted_rise_pct", defaults.max_unlisted_rise_pct),
+                                     path, "max_unlisted_rise_pct"),
         spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
     )
 

@@ -33,7 +33,11 @@ def run(args: argparse.Namespace) -> int:
     worst = EXIT_OK
     for name in args.heats:
         try:
-            plan = planner.plan(load_heat(name, book), options)
+            heat = load_heat(name, book)
+            try:
+                plan = planner.plan(heat, options)
+            except InputError as exc:  # the planner knows the heat, not its file: name the file
+                raise InputError(name, exc.field, exc.message) from None
         except InputError as exc:
             print(f"meltfix: {exc}", file=sys.stderr)
             if args.json:
