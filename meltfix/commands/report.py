@@ -1,13 +1,204 @@
-"""`meltfix report` (not written yet)."""
+"""`meltfix report [--from DATE] [--to DATE] [--csv FILE] [--logbook PATH] [--demo]`.
+
+The supervisor's cost report from the logbook: rich tables, with bars for the figures a person
+would rather look at than read (cost per tonne of each heat and grade, each material's share).
+The numbers come from :mod:`meltfix.report`; this module only draws them.
+"""
 
 from __future__ import annotations
 
 import argparse
+import math
+import re
+from datetime import date
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from meltfix.errors import InputError
+
+if TYPE_CHECKING:
+    from rich.console import RenderableType
+
+    from meltfix.report import CostReport
+
+_ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
+_EIGHTHS = " ▏▎▍▌▋▊▉"
+BAR_WIDTH = 24
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    pass
+    parser.add_argument("--from", dest="date_from", metavar="DATE",
+                        help="first day of the report, YYYY-MM-DD (heats that started on or after it)")
+    parser.add_argument("--to", dest="date_to", metavar="DATE", help="last day of the report, YYYY-MM-DD (inclusive)")
+    parser.add_argument("--csv", metavar="FILE", type=Path, help="also write one row per heat, with its cost, as CSV")
+    source = parser.add_mutually_exclusive_group()
+    source.add_argument("--logbook", metavar="PATH", type=Path,
+                        help="logbook file (default: $MELTFIX_LOGBOOK, else meltfix/logbook.sqlite in the "
+                        "user's data folder)")
+    source.add_argument("--demo", action="store_true",
+                        help="the demo shop's week of heats (built on first use, a few seconds)")
+
+
+def parse_date(text: str, option: str) -> date:
+    """An ISO date (YYYY-MM-DD) from the command line, or an InputError naming the option."""
+    if not _ISO_DATE.match(text):
+        raise InputError("command line", option, f"'{text}' is not a date in the form YYYY-MM-DD")
+    try:
+        return date.fromisoformat(text)
+    except ValueError as exc:
+        raise InputError("command line", option, f"'{text}' is not a real date ({exc})") from None
 
 
 def run(args: argparse.Namespace) -> int:
-    raise SystemExit("meltfix report: not available yet")
+    from rich.console import Console
+
+    from meltfix.logbook import Logbook, default_logbook_path
+
+    date_from = parse_date(args.date_from, "--from") if args.date_from else None
+    date_to = parse_date(args.date_to, "--to") if args.date_to else None
+    if date_from and date_to and date_from > date_to:
+        raise InputError("command line", "--from", f"{date_from} is after --to {date_to}")
+    if args.demo:
+        from meltfix.demo_logbook import demo_logbook_path
+
+        path = demo_logbook_path()
+    else:
+        path = args.logbook or default_logbook_path()
+        if not path.exists():
+            raise InputError(path, "", "no logbook here yet (one is created when the first heat is recorded); "
+                                       "`meltfix report --demo` shows the demo shop's week")
+    from meltfix.report import build_report, write_heats_csv
+
+    with Logbook(path, create=False) as logbook:
+        report = build_report(logbook, date_from, date_to)
+    written = write_heats_csv(report, args.csv) if args.csv else None  # a bad CSV path fails before any output
+    console = Console()
+    console.print(report_renderable(report, path, max(console.width, 80)))
+    if written:
+        console.print(f"Wrote {len(report.heats)} heats to {written}")
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------
+# Drawing
+
+
+def bar(value: float, largest: float, width: int = BAR_WIDTH) -> str:
+    """A horizontal bar of ``value`` against ``largest``, in eighths of a character."""
+    if not largest > 0 or not value > 0 or math.isnan(value):
+        return ""
+    eighths = round(min(value / largest, 1.0) * width * 8)
+    return "█" * (eighths // 8) + (_EIGHTHS[eighths % 8] if eighths % 8 else "")
+
+
+def _money(value: float) -> str:
+    return "–" if math.isnan(value) else f"{value:,.0f}"
+
+
+def _signed(value: float) -> str:
+    if math.isnan(value) or round(value) == 0:
+        return "0"
+    return f"{value:+,.0f}"
+
+
+def _per_t(value: float) -> str:
+    return "–" if math.isnan(value) else f"{value:,.2f}"
+
+
+def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -> RenderableType:
+    """The whole report as one rich renderable, laid out for a terminal ``width`` columns wide (80 or more)."""
+    from rich import box
+    from rich.console import Group
+    from rich.table import Table
+    from rich.text import Text
+
+    cur = report.currency
+    unit = f"{cur}/t" if cur else "per t"
+    period = (f"{report.date_from or 'the start'} to {report.date_to or 'the end'}"
+              if report.date_from or report.date_to else "every heat in the logbook")
+    shop = f" — {report.shop_name}" if report.shop_name else ""
+    head = Text.assemble((f"Addition cost report{shop}\n", "bold"), (f"{period} · logbook {logbook_path}", "dim"))
+    totals = report.totals
+    if not totals["heats"]:
+        return Group(head, Text("No heats were recorded in this period.", style="yellow"))
+
+    in_cur = f" {cur}" if cur else ""
+    tonnes = f"[b]{totals['tonnes']:,.0f}[/] t of bath" if totals["tonnes"] > 0 else "bath weights unknown"
+    summary = Text.from_markup(
+        f"[b]{totals['heats']}[/] heats · {tonnes} · [b]{totals['corrections']}[/] "
+        f"corrections, [b]{totals['repeat_heats']}[/] heats needed more than one\n"
+        f"Additions actually made [b]{_money(totals['cost'])}{in_cur}[/], [b]{_per_t(totals['cost_per_t'])} {unit}[/]\n"
+        f"Planned {_money(totals['planned_cost'])}{in_cur}; actual − planned {_signed(totals['difference'])}{in_cur}")
+
+    def table(title: str, columns: list[tuple[str, str]]) -> Table:
+        made = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, collapse_padding=True, pad_edge=False,
+                     title_style="bold")
+        for name, justify in columns:
+            made.add_column(name, justify=justify, no_wrap=True)
+        return made
+
+    money = f" ({cur})" if cur else ""
+    grade_width = 16 if width < 100 else 28  # room for a grade's full name on a wide terminal
+    heats = table(f"Cost per heat{money}", [("Heat", "left"), ("Started", "left"), ("Grade", "left"), ("t", "right"),
+                                            ("Corr", "right"), ("Planned", "right"), ("Actual", "right"),
+                                            (unit, "right")])
+    for row in report.heats.itertuples(index=False):
+        heats.add_row(row.heat, _when(row.started_at), _short(row.grade, grade_width), _tonnes(row.bath_t),
+                      str(row.corrections), _money(row.planned_cost), _money(row.cost), _per_t(row.cost_per_t))
+
+    chart = Table.grid(padding=(0, 1))
+    chart.add_column(no_wrap=True)
+    chart.add_column(no_wrap=True)
+    chart.add_column(justify="right", no_wrap=True)
+    largest = report.heats["cost_per_t"].max()
+    bar_width = min(60, max(10, width - 8 - 8 - 4))
+    colours = {0: "dim", 1: "cyan", 2: "yellow"}
+    for row in report.heats.itertuples(index=False):
+        style = colours.get(row.corrections, "red")
+        chart.add_row(row.heat, Text(bar(row.cost_per_t, largest, bar_width), style=style), _per_t(row.cost_per_t))
+    legend = Text.assemble("bars: ", ("one correction", "cyan"), " · ", ("two", "yellow"), " · ",
+                           ("three or more", "red"), " · ", ("none", "dim"), style="dim")
+
+    grades = table(f"Per grade{money}", [("Grade", "left"), ("Heats", "right"), ("t", "right"), ("Planned", "right"),
+                                         ("Actual", "right"), (unit, "right"), (">1 corr", "right"), ("", "left")])
+    largest = report.grades["cost_per_t"].max()
+    for row in report.grades.itertuples(index=False):
+        grades.add_row(_short(row.grade, grade_width), str(row.heats), _tonnes(row.tonnes), _money(row.planned_cost),
+                       _money(row.cost), _per_t(row.cost_per_t), str(row.repeat_heats),
+                       Text(bar(row.cost_per_t, largest, min(40, max(6, width - 72 - grade_width + 16))), style="cyan"))
+
+    materials = table(f"Per material, planned against actual{money}", [
+        ("Material", "left"), ("Planned kg", "right"), ("Actual kg", "right"), ("Planned", "right"),
+        ("Actual", "right"), ("Share", "right")])
+    for row in report.materials.itertuples(index=False):
+        materials.add_row(row.material, f"{row.planned_kg:,.0f}", f"{row.actual_kg:,.0f}", _money(row.planned_cost),
+                          _money(row.cost), f"{row.share:.0%}")
+
+    parts: list[object] = [head, summary, Text(""), heats]
+    if report.heats["cost_per_t"].notna().any():  # nothing to draw when no bath weight is known
+        parts += [Text(f"Cost per tonne by heat ({unit})", style="bold"), chart, legend, Text("")]
+    parts += [grades, materials]
+    repeat = report.repeat_heats
+    if len(repeat):
+        again = table(f"Heats that needed more than one correction{money}", [
+            ("Heat", "left"), ("Started", "left"), ("Grade", "left"), ("Corr", "right"), ("Actual", "right"),
+            ("vs plan", "right"), (unit, "right")])
+        for row in repeat.itertuples(index=False):
+            again.add_row(row.heat, _when(row.started_at), _short(row.grade, grade_width), str(row.corrections),
+                          _money(row.cost), _signed(row.difference), _per_t(row.cost_per_t))
+        parts.append(again)
+    if report.notes:
+        parts.append(Text("Notes: " + "; ".join(report.notes) + ".", style="dim"))
+    return Group(*parts)
+
+
+def _short(grade: str, width: int = 16) -> str:
+    return grade if len(grade) <= width else grade[: width - 1] + "…"
+
+
+def _when(moment) -> str:
+    return moment.strftime("%d %b %H:%M")
+
+
+def _tonnes(value: float) -> str:
+    return "–" if math.isnan(value) else f"{value:,.0f}"
