@@ -34,7 +34,8 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
                     f"for this grade: {', '.join(anywhere)}).")
         stocked = [m for m in carriers if heat.stock_kg.get(m.name, m.stock_kg) != 0]
         if not stocked:
-            return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} are out of stock."
+            verb = "is" if len(carriers) == 1 else "are"
+            return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} {verb} out of stock."
         if free_kg is not None and final_kg - heat.bath_kg >= free_kg - 1.0:
             return (f"{element} is short because the vessel is full: all {free_kg:,.0f} kg of free capacity "
                     "is used.")
