@@ -1,0 +1,1 @@
+"""The terminal screen (Textual). Only this package imports Textual; the core never does."""

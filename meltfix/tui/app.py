@@ -1,0 +1,69 @@
+"""The Textual application: holds the shop's data and opens the trim screen.
+
+Other screens plug in by name: ``EXTRA_SCREENS`` maps a key to a module that defines
+``make_screen(app: MeltfixApp) -> Screen``. The app offers them ``app.book``,
+``app.logbook_path``, ``app.tickets_dir`` and ``app.heat_on_screen``. They are imported when
+first opened, which keeps them off the trim screen's start-up.
+"""
+
+from __future__ import annotations
+
+import importlib
+from pathlib import Path
+
+from textual.app import App
+
+from meltfix.heat import Heat
+from meltfix.recipes import RecipeBook
+from meltfix.tui.screens.trim import TrimScreen
+
+EXTRA_SCREENS = {
+    "replay": "meltfix.tui.screens.replay",
+    "logbook": "meltfix.tui.screens.logbook",
+}
+
+
+class MeltfixApp(App[None]):
+    CSS_PATH = "app.tcss"
+    TITLE = "meltfix"
+
+    def __init__(self, book: RecipeBook, heat: Heat, *, heat_path: Path | None = None,
+                 logbook_path: Path | None = None, tickets_dir: Path | None = None, light: bool = False) -> None:
+        super().__init__()
+        self.book = book
+        self.heat = heat
+        self.heat_path = heat_path
+        self.logbook_path = logbook_path
+        """The logbook file; None = the logbook module's own default (its environment variable)."""
+        self.tickets_dir = tickets_dir if tickets_dir is not None else Path.cwd()
+        self.light = light
+
+    def on_mount(self) -> None:
+        if self.light:  # set only when asked: a theme change restyles every widget
+            self.theme = "textual-light"
+        # Pushed rather than returned by get_default_screen, which would skip the screen's CSS_PATH.
+        self.push_screen(TrimScreen(self.book, self.heat, heat_path=self.heat_path, logbook_path=self.logbook_path,
+                                    tickets_dir=self.tickets_dir))
+
+    @property
+    def heat_on_screen(self) -> Heat:
+        """The heat as typed on the trim screen (the last one that held together)."""
+        trim = next((s for s in self.screen_stack if isinstance(s, TrimScreen)), None)
+        return self.heat if trim is None else trim.heat_on_screen
+
+    def action_open_extra(self, name: str) -> None:
+        """Open one of the ``EXTRA_SCREENS``."""
+        label = name.capitalize()
+        try:
+            screen = importlib.import_module(EXTRA_SCREENS[name]).make_screen(self)
+        except Exception as exc:  # a fault in another screen is reported, the trim screen stays usable
+            self.notify(f"{type(exc).__name__}: {exc}", title=f"{label} could not open", severity="error")
+            return
+        self.push_screen(screen)
+
+
+def make_app(book: RecipeBook, heat: Heat, *, heat_path: Path | None = None, logbook_path: Path | None = None,
+             tickets_dir: Path | None = None, light: bool = False) -> MeltfixApp:
+    """The one way the command line, the tests and the benchmark build the app."""
+    return MeltfixApp(book, heat, heat_path=heat_path, logbook_path=logbook_path, tickets_dir=tickets_dir,
+                      light=light)

@@ -1,0 +1,106 @@
+"""The screen's inputs as typed, turned into a Heat or into one reason per field at fault.
+
+Kept free of Textual so the rules (what is a valid cell, which field an error belongs to) are
+plain functions, and the screen only shows their answer.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+from meltfix.analysis import Analysis, parse_reading
+from meltfix.elements import PPM_ELEMENTS, parse_number
+from meltfix.errors import InputError
+from meltfix.heat import Heat, validate_heat
+from meltfix.recipes import RecipeBook
+
+SOURCE = "screen"
+# "60,000" or "60.000": a thousands separator or a decimal mark? Guessing would put a 60 kg or a
+# 60 t bath in the plan, so such a weight is refused with the reason.
+_GROUPED = re.compile(r"^\d{1,3}([.,]\d{3})+$")
+# Keys of Draft.errors besides "analysis.<symbol>": whole-heat fields and the materials' overrides.
+BATH, CAPACITY, GRADE, ANALYSIS, MATERIALS = "bath_kg", "capacity_kg", "grade", "analysis", "materials"
+
+
+@dataclass(frozen=True)
+class HeatInputs:
+    """What the user has typed: texts exactly as entered, nothing parsed yet."""
+
+    grade: str
+    bath_text: str
+    capacity_text: str
+    stage: str
+    cells: Mapping[str, str] = field(default_factory=dict)
+    """Element symbol -> cell text (wt %, or ppm for N, O, B, H); empty = not measured."""
+
+
+@dataclass(frozen=True)
+class Draft:
+    """A heat ready to plan, or the reasons it is not (field key -> reason in plain words)."""
+
+    heat: Heat | None
+    errors: Mapping[str, str]
+
+
+def cell_key(symbol: str) -> str:
+    return f"{ANALYSIS}.{symbol}"
+
+
+def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
+    """Replace the base heat's grade, weights, stage and analysis with the typed inputs.
+
+    ``base`` carries what the screen does not type: the heat's id, temperature and this heat's
+    material overrides. Every field is checked, so all faults show at once, not one at a time.
+    """
+    errors: dict[str, str] = {}
+    bath_kg = _weight(inputs.bath_text, BATH, errors, required=True)
+    capacity_kg = _weight(inputs.capacity_text, CAPACITY, errors, required=False)
+    pct: dict[str, float] = {}
+    below: set[str] = set()
+    for symbol, raw in inputs.cells.items():
+        if not raw.strip():
+            continue
+        try:
+            reading = parse_reading(raw, SOURCE, cell_key(symbol), ppm=symbol in PPM_ELEMENTS)
+        except InputError as exc:
+            errors[cell_key(symbol)] = exc.message
+            continue
+        pct[symbol] = reading.pct
+        if reading.below_limit:
+            below.add(symbol)
+    analysis = Analysis(pct=pct, below_limit=frozenset(below))
+    if analysis.total_pct > 100:
+        errors[ANALYSIS] = f"the elements add up to {analysis.total_pct:.3f} %, over 100 %"
+    if errors:
+        return Draft(None, errors)
+    heat = base.with_changes(grade=inputs.grade, bath_kg=bath_kg, capacity_kg=capacity_kg,
+                             stage=inputs.stage, analysis=analysis)
+    try:
+        validate_heat(heat, book, SOURCE)
+    except InputError as exc:
+        key = exc.field if exc.field in (BATH, CAPACITY, GRADE) else MATERIALS
+        return Draft(None, {key: exc.message if key != MATERIALS else f"{exc.field}: {exc.message}"})
+    return Draft(heat, {})
+
+
+def _weight(raw: str, key: str, errors: dict[str, str], *, required: bool) -> float | None:
+    text = raw.strip().removesuffix("kg").strip().replace("_", "").replace(" ", "")
+    if not text:
+        if required:
+            errors[key] = "is needed (kg)"
+        return None
+    if _GROUPED.match(text):
+        errors[key] = f"'{raw.strip()}' is ambiguous: write the weight in kg without a thousands separator"
+        return None
+    try:
+        value = parse_number(text, SOURCE, key)
+    except InputError as exc:
+        errors[key] = exc.message
+        return None
+    if not math.isfinite(value) or value <= 0:
+        errors[key] = f"must be a weight above 0 kg, got '{raw.strip()}'"
+        return None
+    return value

@@ -1,0 +1,472 @@
+"""The trim screen: the heat and its analysis on the left, the plan on the right.
+
+Every change of an input bumps ``revision`` and asks a thread worker for a new plan; a plan
+that comes back for an older revision is dropped, so the panel only ever calls current a plan
+made from exactly the inputs on screen.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from datetime import datetime
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from textual import on, work
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, VerticalScroll
+from textual.content import Content
+from textual.screen import Screen
+from textual.widget import Widget
+from textual.widgets import Footer, Input, Static
+from textual.worker import Worker, WorkerState, get_current_worker
+
+from meltfix.elements import element_sort_key, normalise_symbol
+from meltfix.errors import InputError
+from meltfix.heat import Heat, load_heat
+from meltfix.paths import demo_dir
+from meltfix.recipes import RecipeBook
+from meltfix.tui.accept import record_accepted
+from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat
+from meltfix.tui.figures import cell_text, kg_text
+from meltfix.tui.messages import PlanFailed, PlanReady
+from meltfix.tui.palette import ScreenActions
+from meltfix.tui.screens.added import AddedDialog
+from meltfix.tui.screens.choice import ChoiceDialog
+from meltfix.tui.screens.help import KeysScreen
+from meltfix.tui.screens.materials import MaterialsDialog
+from meltfix.tui.screens.open_file import OpenFileDialog
+from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
+from meltfix.tui.ticket import write_ticket
+from meltfix.tui.widgets.analysis_grid import AnalysisGrid, CellSpec, window_hint
+from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
+from meltfix.tui.widgets.plan_view import PlanView
+
+if TYPE_CHECKING:
+    from meltfix.planner import Plan, Planner
+    from meltfix.spectro import ImportResult, SpectroSample
+
+_FIELD_NAMES = {BATH: "bath kg", CAPACITY: "vessel kg", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
+MOVING_KEYS = (
+    ("Tab / Shift+Tab", "next / previous field, then the plan and the cautions"),
+    ("↓ ↑", "next / previous field of the heat and the analysis (scroll in the plan)"),
+    ("Enter", "next cell; on the grade: pick the grade; on the stage: change it"),
+    ("letters on the grade", "open the grade picker filtered by what you type"),
+    ("← → Space on the stage", "step between ladle and furnace"),
+    ("Ctrl+P", "command palette: every action by name"),
+    ("Ctrl+Q", "quit"),
+)
+
+
+class TrimScreen(Screen[None]):
+    CSS_PATH = "trim.tcss"
+    AUTO_FOCUS = ".cell"  # the analysis is what changes most between two plans
+    COMMANDS = {ScreenActions}
+    BINDINGS = [
+        Binding("f1", "keys", "Help", key_display="F1", tooltip="List every key", id="trim.keys"),
+        Binding("f2", "pick_grade", "Grade", key_display="F2", tooltip="Pick the grade, typing to filter",
+                id="trim.grade"),
+        Binding("f3", "open_heat", "Open", key_display="F3", tooltip="Open a heat file (HEAT.toml)", id="trim.open"),
+        Binding("f4", "read_export", "Spectro", key_display="F4",
+                tooltip="Read a spectrometer export into the analysis", id="trim.spectro"),
+        Binding("f5", "materials", "Materials", key_display="F5",
+                tooltip="Switch materials off or on, change price or stock, lock an amount", id="trim.materials"),
+        Binding("f6", "accept", "Accept", key_display="F6", tooltip="Accept the plan and record it in the logbook",
+                id="trim.accept"),
+        Binding("f7", "ticket", "Ticket", key_display="F7", tooltip="Write the plan as a ticket for the furnace crew",
+                id="trim.ticket"),
+        Binding("f8", "record_added", "Added", key_display="F8",
+                tooltip="Record what actually went in (after accepting)", id="trim.added"),
+        Binding("f9", "app.open_extra('replay')", "Replay", key_display="F9", show=False,
+                tooltip="Step through a recorded heat", id="trim.replay"),
+        Binding("f10", "app.open_extra('logbook')", "Logbook", key_display="F10", show=False,
+                tooltip="The shift's heats and their costs", id="trim.logbook"),
+        Binding("ctrl+n", "add_element", "Element", show=False, tooltip="Add a cell for another element",
+                id="trim.element"),
+        Binding("ctrl+r", "revert", "Revert", show=False, tooltip="Back to the heat as opened", id="trim.revert"),
+        Binding("ctrl+t", "toggle_dark", "Light/dark", show=False, tooltip="Switch between light and dark colours",
+                id="trim.dark"),
+        Binding("down", "step_field(1)", show=False),
+        Binding("up", "step_field(-1)", show=False),
+    ]
+
+    def __init__(self, book: RecipeBook, heat: Heat, *, heat_path: Path | None = None,
+                 logbook_path: Path | None = None, tickets_dir: Path) -> None:
+        super().__init__()
+        self.book = book
+        self.logbook_path = logbook_path
+        """The logbook file; None = the logbook's own default (its environment variable)."""
+        self.tickets_dir = tickets_dir
+        self.base = heat
+        """The heat minus what is typed on screen: its id, temperature and material overrides."""
+        self.opened = heat
+        self.heat_path = heat_path
+        self.revision = 0
+        self.current: tuple[Heat, Plan] | None = None
+        """The heat and plan for exactly the inputs on screen, once the worker has made it."""
+        self.accepted: tuple[int, Plan] | None = None
+        """The logbook's id of the plan accepted for this heat, and that plan."""
+        self.imported: tuple[SpectroSample, dict[str, str]] | None = None
+        """The spectrometer sample last read into the analysis, and the cells it filled."""
+        self.plannable = False
+        """The inputs hold together and the planner accepted them (a plan is, or is about to be, current)."""
+        self._planner: Planner | None = None
+        self._inputs: HeatInputs | None = None
+        self._binding_state: tuple[bool, bool] | None = None
+
+    # -- layout ---------------------------------------------------------------------------
+    def compose(self) -> ComposeResult:
+        heat = self.base
+        yield Static(id="banner")
+        with Horizontal(id="body"):
+            with VerticalScroll(id="inputs") as inputs:
+                inputs.border_title = "Heat"
+                yield HeatForm(heat.grade, f"{heat.bath_kg:g}",
+                               "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage, id="form")
+                yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
+            yield PlanView(id="plan")
+        yield Footer(compact=True, show_command_palette=False)
+
+    def on_mount(self) -> None:
+        self._update_banner()
+        self.inputs_changed(base_changed=True)
+
+    async def _show_heat(self, heat: Heat) -> None:
+        """Put a whole heat on screen (opening a file, reverting) and plan it."""
+        self.base = heat
+        self.accepted = None
+        self.imported = None
+        self._sync_bindings()
+        self.query_one(HeatForm).set_values(heat.grade, f"{heat.bath_kg:g}",
+                                            "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage)
+        await self._set_rows(heat.grade, _cell_texts(heat))
+        self._update_banner()
+        self.inputs_changed(base_changed=True)
+
+    def _row_specs(self, grade_name: str, texts: Mapping[str, str], extra: frozenset[str] = frozenset()) -> list[CellSpec]:
+        """One cell per element of the grade (and its indices), per element with a value, and ``extra``."""
+        grade = self.book.grade(grade_name)
+        wanted = set(grade.elements) | {s for index in grade.indices for s in index.terms} | extra
+        symbols = sorted(wanted | {s for s, t in texts.items() if t.strip()}, key=element_sort_key)
+        return [CellSpec(s, texts.get(s, ""), window_hint(grade, s)) for s in symbols]
+
+    async def _set_rows(self, grade_name: str, texts: Mapping[str, str], extra: frozenset[str] = frozenset()) -> None:
+        await self.query_one(AnalysisGrid).set_rows(self._row_specs(grade_name, texts, extra))
+
+    def _update_banner(self) -> None:
+        heat = self.base
+        temperature = "" if heat.temperature_c is None else f" · {heat.temperature_c:.0f} °C"
+        self.query_one("#banner", Static).update(Content.assemble(
+            ("meltfix", "bold"), (f" · {self.book.settings.shop_name}", "$foreground-muted"),
+            " · heat ", (heat.heat_id, "bold"), temperature))
+
+    # -- inputs -> plan -------------------------------------------------------------------
+    def inputs_changed(self, *, base_changed: bool = False) -> None:
+        """Re-read every input; plan in the background when they hold together, else say why not."""
+        form, grid, view = self.query_one(HeatForm), self.query_one(AnalysisGrid), self.query_one(PlanView)
+        inputs = HeatInputs(form.grade, form.bath_text, form.capacity_text, form.stage, grid.texts())
+        if inputs == self._inputs and not base_changed:
+            return  # a cell re-mounted or re-set to the same text: nothing to plan again
+        self._inputs = inputs
+        self.revision += 1
+        self.current = None
+        draft = build_heat(self.base, inputs, self.book)
+        form.show_errors(draft.errors)
+        grid.show_errors(draft.errors)
+        self.plannable = draft.heat is not None
+        if draft.heat is None:
+            view.mark_stale(_summary(draft.errors))
+        else:
+            view.mark_updating()
+            self.plan_in_background(draft.heat, self.revision)
+        self._sync_bindings()
+
+    @work(thread=True, exclusive=True, exit_on_error=False, group="planner")
+    def plan_in_background(self, heat: Heat, revision: int) -> None:
+        if self._planner is None:
+            from meltfix.planner import Planner  # SciPy loads here, off the screen's start-up path
+
+            self._planner = Planner(self.book)
+        try:
+            plan = self._planner.plan(heat)
+        except InputError as exc:
+            self.post_message(PlanFailed(revision, exc.message))
+            return
+        if not get_current_worker().is_cancelled:
+            self.post_message(PlanReady(revision, heat, plan))
+
+    @on(PlanReady)
+    def _plan_ready(self, message: PlanReady) -> None:
+        if message.revision != self.revision:
+            return  # made for inputs that have changed since
+        self.current = (message.heat, message.plan)
+        self.query_one(PlanView).show(message.heat, message.plan, self.book.grade(message.heat.grade))
+
+    @on(PlanFailed)
+    def _plan_failed(self, message: PlanFailed) -> None:
+        if message.revision == self.revision:
+            self._no_plan(message.reason)
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        # The one place a planner fault lands: shown as the reason, never a traceback on screen.
+        if event.worker.group == "planner" and event.state == WorkerState.ERROR:
+            error = event.worker.error
+            self._no_plan(f"the planner failed ({type(error).__name__}: {error})")
+
+    def _no_plan(self, reason: str) -> None:
+        self.plannable = False
+        self.query_one(PlanView).mark_stale(reason)
+        self._sync_bindings()
+
+    def _sync_bindings(self) -> None:
+        """Refresh the footer only when what can run has changed: a refresh rebuilds every key in it."""
+        state = (self.plannable, self.accepted is not None)
+        if state != self._binding_state:
+            self._binding_state = state
+            self.refresh_bindings()
+
+    @on(Input.Changed, ".cell, #bath, #capacity")
+    @on(CycleField.Changed)
+    def _input_changed(self) -> None:
+        self.inputs_changed()
+
+    @on(Input.Submitted, ".cell, #bath, #capacity")
+    def _submitted(self, event: Input.Submitted) -> None:
+        fields = self._fields()
+        if event.input is fields[-1]:
+            self.query_one("#plan-body").focus()
+        else:
+            self.action_step_field(1)
+
+    @on(GradeField.PickRequested)
+    def _grade_requested(self, message: GradeField.PickRequested) -> None:
+        self.action_pick_grade(message.typed)
+
+    def _fields(self) -> list[Widget]:
+        return [self.query_one(GradeField), self.query_one("#bath"), self.query_one("#capacity"),
+                self.query_one(CycleField), *self.query(".cell")]
+
+    # -- actions --------------------------------------------------------------------------
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action in ("accept", "ticket"):
+            # Greyed (None) while the inputs cannot be planned. While a plan is on its way (a few
+            # ms) the key stays lit and the action itself waits for the plan to be current.
+            return self.plannable or None
+        if action == "record_added":
+            return self.accepted is not None or None
+        return True
+
+    def action_step_field(self, step: int) -> None:
+        fields = self._fields()
+        focused = self.focused
+        if focused in fields:
+            fields[max(0, min(len(fields) - 1, fields.index(focused) + step))].focus()
+        else:
+            fields[0].focus()
+
+    def action_keys(self) -> None:
+        self.app.push_screen(KeysScreen(
+            [("Trim screen", self.BINDINGS), ("Materials (F5)", MaterialsDialog.BINDINGS),
+             ("Pick lists and questions", ChoiceDialog.BINDINGS + PromptDialog.BINDINGS)],
+            extra=MOVING_KEYS))
+
+    def action_pick_grade(self, typed: str = "") -> None:
+        items = [(name, f"{name}  ·  {grade.family}  ·  {grade.standard}".rstrip(" ·"))
+                 for name, grade in self.book.grades.items()]
+
+        async def chosen(name: str | None) -> None:
+            if name is None:
+                return
+            form = self.query_one(HeatForm)
+            form.query_one(GradeField).set_grade(name)
+            await self._set_rows(name, self.query_one(AnalysisGrid).texts())
+            self.inputs_changed()
+
+        self.app.push_screen(ChoiceDialog("Grade", items, typed=typed, current=self.query_one(HeatForm).grade),
+                             chosen)
+
+    def action_open_heat(self) -> None:
+        folder = self.heat_path.parent if self.heat_path else _demo_folder("heats")
+
+        def read(path: Path) -> tuple[Path, Heat]:
+            return path, load_heat(path, self.book)
+
+        async def opened(result: tuple[Path, Heat] | None) -> None:
+            if result is not None:
+                self.heat_path, heat = result
+                self.opened = heat
+                await self._show_heat(heat)
+
+        self.app.push_screen(OpenFileDialog("Open a heat file", folder, [".toml"], read), opened)
+
+    def action_read_export(self) -> None:
+        from meltfix.spectro import read_export
+
+        folder = _demo_folder("spectro")
+
+        def read(path: Path) -> ImportResult:
+            return read_export(path, settings=self.book.settings)
+
+        def samples_read(result: ImportResult | None) -> None:
+            if result is None:
+                return
+            samples = list(result.samples)
+            if not samples:
+                self.notify("The export holds no sample.", title="Spectrometer", severity="warning")
+            elif len(samples) == 1:
+                self.call_later(self._use_sample, samples[0])
+            else:
+                items = [(str(k), f"{s.sample_id}  ·  {len(s.accepted_burns)} burns" + ("  ·  flagged" if s.flags else ""))
+                         for k, s in enumerate(samples)]
+
+                def picked(key: str | None) -> None:
+                    if key is not None:
+                        self.call_later(self._use_sample, samples[int(key)])
+
+                self.app.push_screen(ChoiceDialog("Which sample?", items, current=items[-1][0]), picked)
+
+        self.app.push_screen(OpenFileDialog("Read a spectrometer export", folder, [".csv", ".txt", ".tsv"], read),
+                             samples_read)
+
+    async def _use_sample(self, sample: SpectroSample) -> None:
+        """A new sample replaces the whole analysis: cells it does not report are emptied."""
+        grade = self.query_one(HeatForm).grade
+        texts = _cell_texts(sample)
+        await self._set_rows(grade, texts)
+        self.imported = (sample, texts)
+        remarks = list(sample.flags)
+        # The export may name the sample's heat and grade: a mismatch is worth a second look.
+        if sample.heat and sample.heat != self.base.heat_id:
+            remarks.append(f"the export names heat {sample.heat}, this is heat {self.base.heat_id}")
+        if sample.grade and sample.grade != grade:
+            remarks.append(f"the export names grade {sample.grade}; the screen plans for {grade} (F2 changes it)")
+        flags = "\n".join(f"• {remark}" for remark in remarks)
+        self.notify(f"Analysis from sample {sample.sample_id}" + (f"\n{flags}" if flags else ""), title="Spectrometer",
+                    severity="warning" if flags else "information", timeout=12 if flags else 4)
+        self.inputs_changed()
+
+    def action_materials(self) -> None:
+        def closed(heat: Heat | None) -> None:
+            if heat is not None and heat != self.base:
+                self.base = heat
+                self.inputs_changed(base_changed=True)
+
+        self.app.push_screen(MaterialsDialog(self.book, self.base, self.query_one(HeatForm).grade), closed)
+
+    def action_accept(self) -> None:
+        from meltfix.logbook import Logbook
+
+        if self.current is None:
+            self.notify("The plan is being brought up to date; try again in a moment.", title="Accept")
+            return
+        heat, plan = self.current
+        try:
+            with Logbook(self.logbook_path, book=self.book) as records:
+                accepted = record_accepted(records, heat, plan, self._imported_sample())
+        except Exception as exc:  # a logbook fault is reported; the plan on screen stays as it is
+            self.notify(str(exc), title="Not recorded", severity="error")
+            return
+        self.accepted = (accepted.plan_id, plan)
+        self._sync_bindings()
+        sample = f"sample {accepted.sample_id}" + ("" if accepted.sample_is_new else " (already in the logbook)")
+        closest = " — closest plan: the grade is NOT met" if plan.status != "optimal" else ""
+        self.notify(f"Plan {accepted.plan_id} recorded for heat {heat.heat_id}, {sample}{closest}", title="Accepted",
+                    severity="warning" if closest else "information")
+
+    def _imported_sample(self) -> SpectroSample | None:
+        """The spectrometer sample the analysis on screen is, unless a cell was changed since it was read."""
+        if self.imported is None or self._inputs is None:
+            return None
+        sample, texts = self.imported
+        return sample if _filled(self._inputs.cells) == _filled(texts) else None
+
+    def action_record_added(self) -> None:
+        if self.accepted is None:
+            return
+        plan_id, plan = self.accepted
+
+        def recorded(made: list[tuple[str, float]] | None) -> None:
+            if made is None:
+                return
+            from meltfix.logbook import Logbook
+
+            try:
+                with Logbook(self.logbook_path, book=self.book) as records:
+                    records.record_additions(plan.heat_id, made, plan_id)
+            except Exception as exc:  # reported, never lost silently
+                self.notify(str(exc), title="Not recorded", severity="error")
+                return
+            lines = ", ".join(f"{material} {kg_text(kg)} kg" for material, kg in made)
+            self.notify(f"Heat {plan.heat_id}: {lines}", title="Recorded as added")
+
+        self.app.push_screen(AddedDialog(plan), recorded)
+
+    def action_ticket(self) -> None:
+        if self.current is None:
+            self.notify("The plan is being brought up to date; try again in a moment.", title="Ticket")
+            return
+        heat, plan = self.current
+        try:
+            path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now())
+        except OSError as exc:
+            self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
+            return
+        self.notify(str(path), title="Ticket written")
+
+    def action_add_element(self) -> None:
+        grid = self.query_one(AnalysisGrid)
+
+        def parse(text: str) -> str:
+            symbol = normalise_symbol(text, "screen", "element")
+            if symbol == "Fe":
+                raise InputError("screen", "element", "iron is the balance and has no cell")
+            if symbol in grid.symbols:
+                raise InputError("screen", "element", f"{symbol} already has a cell")
+            return symbol
+
+        async def added(symbol: object) -> None:
+            if symbol is BACKED_OUT:
+                return
+            await self._set_rows(self.query_one(HeatForm).grade, grid.texts(), frozenset({str(symbol)}))
+            grid.cell(str(symbol)).focus()
+
+        self.app.push_screen(PromptDialog("Add an element", "Element symbol (e.g. Al, N, Ti)", "", parse), added)
+
+    async def action_revert(self) -> None:
+        await self._show_heat(self.opened)
+        self.notify(f"Back to heat {self.opened.heat_id} as opened", title="Revert")
+
+    def action_toggle_dark(self) -> None:
+        self.app.theme = "textual-light" if self.app.current_theme.dark else "textual-dark"
+
+    # -- for other screens ----------------------------------------------------------------
+    @property
+    def heat_on_screen(self) -> Heat:
+        """The heat as currently typed when it holds together, else the last good one."""
+        return self.current[0] if self.current else self.base
+
+
+def _cell_texts(source: Heat | SpectroSample) -> dict[str, str]:
+    """Grid texts for the analysis of a heat or a spectrometer sample."""
+    analysis = source.analysis
+    return {s: cell_text(s, pct, s in analysis.below_limit) for s, pct in analysis.pct.items()}
+
+
+def _filled(texts: Mapping[str, str]) -> dict[str, str]:
+    return {symbol: text.strip() for symbol, text in texts.items() if text.strip()}
+
+
+def _summary(errors: Mapping[str, str]) -> str:
+    (key, reason), *rest = errors.items()
+    name = _FIELD_NAMES.get(key, key.removeprefix("analysis."))
+    more = f" (and {len(rest)} more)" if rest else ""
+    return f"{name}: {reason}{more}"
+
+
+def _demo_folder(name: str) -> Path:
+    try:
+        folder = demo_dir() / name
+    except FileNotFoundError:
+        return Path.cwd()
+    return folder if folder.is_dir() else Path.cwd()

@@ -1,0 +1,91 @@
+"""The plain-text ticket for the furnace crew: what to add, what the bath should become, and the cautions.
+
+Plain text on purpose: it is printed or shown on a pulpit screen, and must read the same anywhere.
+"""
+
+from __future__ import annotations
+
+import re
+import textwrap
+from datetime import datetime
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from meltfix.recipes import RecipeBook
+from meltfix.tui.figures import content_text, kg_text, money_text, unit_of
+
+if TYPE_CHECKING:  # the planner pulls in SciPy; the ticket needs only its types
+    from meltfix.heat import Heat
+    from meltfix.planner import Plan
+
+_WIDTH = 72
+
+
+def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime) -> str:
+    """The ticket as text lines of at most 72 characters (longer names are left whole)."""
+    grade = book.grade(plan.grade)
+    lines = [
+        f"ADDITION TICKET — {book.settings.shop_name}",
+        f"Heat {plan.heat_id}   grade {plan.grade}   stage {heat.stage}   written {written:%Y-%m-%d %H:%M}",
+        f"Bath {plan.bath_kg:,.0f} kg -> {plan.final_kg:,.0f} kg after the additions dissolve",
+        "",
+    ]
+    if plan.status != "optimal":
+        lines += ["*** CLOSEST PLAN: THE GRADE IS NOT MET — see 'Out of reach' below ***", ""]
+    lines.append("ADD")
+    if plan.additions:
+        lines.append(f"  {'material':<30}{'kg':>10}")
+        for addition in plan.additions:
+            packs = "" if addition.packs is None else (
+                f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of {addition.pack_kg:g} kg")
+            lines.append(f"  {addition.material:<30}{kg_text(addition.kg):>10}{packs}")
+        lines.append(f"  {'total':<30}{kg_text(plan.added_kg):>10}")
+    else:
+        lines.append("  nothing: the bath is already where it should be")
+    lines += ["", f"Cost {money_text(plan.total_cost)} {plan.currency} "
+                  f"({money_text(plan.cost_per_t)} {plan.currency}/t)   "
+                  f"temperature change {-plan.temperature_drop_c:+.1f} °C", ""]
+    lines.append("CHEMISTRY (wt %, N O B H in ppm)")
+    lines.append(f"  {'':<4}{'now':>9}{'after':>9}{'min':>9}{'aim':>9}{'max':>9}")
+    for symbol in grade.elements:
+        low, high = grade.window_pct[symbol]
+        aim = grade.aim_pct.get(symbol)
+        now = heat.analysis.pct.get(symbol)
+        cells = [
+            "—" if now is None else content_text(symbol, now),
+            content_text(symbol, plan.predicted_pct.get(symbol, 0.0)),
+            content_text(symbol, low) if low > 0 else "",
+            "" if aim is None else content_text(symbol, aim),
+            content_text(symbol, high),
+        ]
+        flag = "  <- out" if any(v.element == symbol for v in plan.violations) else ""
+        lines.append(f"  {symbol:<4}" + "".join(f"{c:>9}" for c in cells) + flag)
+    if plan.violations:
+        lines += ["", "OUT OF REACH"]
+        for violation in plan.violations:
+            head = (f"{violation.element} {violation.limit} {content_text(violation.element, violation.limit_pct)}"
+                    f" {unit_of(violation.element)}: ")
+            lines += _bullet(head + violation.reason)
+    lines += ["", "CAUTIONS"]
+    for caution in plan.cautions:
+        lines += _bullet(caution)
+    return "\n".join(lines) + "\n"
+
+
+def _bullet(text: str) -> list[str]:
+    return textwrap.wrap(text, _WIDTH, initial_indent="  - ", subsequent_indent="    ", break_on_hyphens=False)
+
+
+def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime) -> Path:
+    """Write the ticket as ``<heat>-ticket.txt`` in ``folder``; an earlier ticket is never overwritten."""
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "_", plan.heat_id).strip("._") or "heat"
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / f"{stem}-ticket.txt"
+    number = 2
+    while path.exists():
+        path = folder / f"{stem}-ticket-{number}.txt"
+        number += 1
+    # "x" mode: should another writer take the name in between, fail rather than overwrite.
+    with path.open("x", encoding="utf-8") as handle:
+        handle.write(ticket_text(heat, plan, book, written))
+    return path

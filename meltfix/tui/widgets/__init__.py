@@ -1,0 +1,1 @@
+"""Widgets of the trim screen, one area per module."""

@@ -1,0 +1,96 @@
+"""The element grid: one cell per element (wt %, or ppm for N, O, B, H), each with its reason when wrong."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.content import Content
+from textual.widgets import Input, Label, Static
+
+from meltfix.recipes import Grade
+from meltfix.tui.draft import cell_key
+from meltfix.tui.figures import content_text, unit_of
+from meltfix.tui.widgets.reason import ReasonLine
+
+
+@dataclass(frozen=True)
+class CellSpec:
+    """One row of the grid: the element, what its cell holds, and the grade's window as a hint."""
+
+    symbol: str
+    text: str
+    hint: str
+
+
+def window_hint(grade: Grade, symbol: str) -> str:
+    """The grade's window for an element, in the element's unit ("" when the grade has none)."""
+    if symbol not in grade.window_pct:
+        return ""
+    low, high = grade.window_pct[symbol]
+    if low <= 0:
+        return f"≤ {content_text(symbol, high)}"
+    return f"{content_text(symbol, low)}–{content_text(symbol, high)}"
+
+
+class CellRow(Vertical):
+    """One element: symbol, cell, then unit and window; the reason line appears under it."""
+
+    def __init__(self, spec: CellSpec) -> None:
+        super().__init__(classes="cell-row", id=f"row-{spec.symbol}")
+        self.spec = spec
+
+    @property
+    def symbol(self) -> str:
+        return self.spec.symbol
+
+    def compose(self) -> ComposeResult:
+        spec = self.spec
+        with Horizontal(classes="cell-line"):
+            yield Label(spec.symbol, classes="cell-symbol")
+            yield Input(spec.text, id=f"cell-{spec.symbol}", compact=True, classes="cell")
+            yield Label(f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-hint")
+        yield ReasonLine()
+
+    def show_reason(self, reason: str | None) -> None:
+        self.query_one(Input).set_class(reason is not None, "-bad")
+        self.query_one(ReasonLine).show(reason)
+
+
+class AnalysisGrid(Vertical):
+    """All cells of the bath analysis. The parent sets rows and errors; cells post Input.Changed."""
+
+    def __init__(self, rows: Sequence[CellSpec], *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self._rows = tuple(rows)
+
+    @property
+    def symbols(self) -> tuple[str, ...]:
+        return tuple(row.symbol for row in self._rows)
+
+    def compose(self) -> ComposeResult:
+        yield Static(Content.assemble(("Analysis", "bold"), ("  wt %, ppm for N O B H", "$foreground-muted")),
+                     id="grid-title")
+        yield ReasonLine(id="reason-analysis")
+        for spec in self._rows:
+            yield CellRow(spec)
+
+    async def set_rows(self, rows: Sequence[CellSpec]) -> None:
+        """Rebuild the cells (another grade, another sample, one more element)."""
+        self._rows = tuple(rows)
+        await self.query(CellRow).remove()
+        await self.mount_all([CellRow(spec) for spec in self._rows])
+
+    def cell(self, symbol: str) -> Input:
+        return self.query_one(f"#cell-{symbol}", Input)
+
+    def texts(self) -> dict[str, str]:
+        return {row.symbol: row.query_one(Input).value for row in self.query(CellRow)}
+
+    def show_errors(self, errors: Mapping[str, str]) -> None:
+        """Mark each bad cell in place and write its reason right under it; clear the others."""
+        for row in self.query(CellRow):
+            row.show_reason(errors.get(cell_key(row.symbol)))
+        self.query_one("#reason-analysis", ReasonLine).show(errors.get("analysis"))

@@ -1,0 +1,135 @@
+"""The heat's own fields: grade, bath weight, vessel capacity and stage."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+from textual import events
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.content import Content
+from textual.message import Message
+from textual.widgets import Input, Label, Static
+
+from meltfix.tui.draft import BATH, CAPACITY, GRADE
+from meltfix.tui.widgets.reason import ReasonLine
+
+
+class GradeField(Static, can_focus=True):
+    """Shows the grade; Enter, or typing a letter, asks for the grade picker (to filter by that letter)."""
+
+    @dataclass
+    class PickRequested(Message):
+        typed: str
+        """What the user had started typing: the picker's first filter text."""
+
+    def __init__(self, grade: str, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.grade = grade
+
+    def set_grade(self, grade: str) -> None:
+        self.grade = grade
+        self.refresh()
+
+    def render(self) -> Content:
+        return Content.assemble((self.grade, "bold"), ("  ▸", "$foreground-muted"))
+
+    def on_key(self, event: events.Key) -> None:
+        if event.key in ("enter", "space"):
+            typed = ""
+        elif event.is_printable and event.character:
+            typed = event.character
+        else:
+            return
+        event.stop()
+        self.post_message(self.PickRequested(typed))
+
+
+class CycleField(Static, can_focus=True):
+    """One of a few fixed words; Space, Enter, ← or → step through them."""
+
+    @dataclass
+    class Changed(Message):
+        field: "CycleField"
+        value: str
+
+    def __init__(self, choices: Sequence[str], value: str, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.choices = tuple(choices) if value in choices else (*choices, value)
+        self.value = value
+
+    def render(self) -> Content:
+        return Content.assemble(("◂ ", "$foreground-muted"), (self.value, "bold"), (" ▸", "$foreground-muted"))
+
+    def on_key(self, event: events.Key) -> None:
+        step = {"space": 1, "enter": 1, "right": 1, "left": -1}.get(event.key)
+        if step is None:
+            return
+        event.stop()
+        self.value = self.choices[(self.choices.index(self.value) + step) % len(self.choices)]
+        self.refresh()
+        self.post_message(self.Changed(self, self.value))
+
+
+class HeatForm(Vertical):
+    """Grade, bath, capacity and stage; typing posts Input.Changed, the screen does the rest."""
+
+    STAGES = ("ladle", "furnace")
+
+    def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self._initial = (grade, bath_text, capacity_text, stage)
+
+    def compose(self) -> ComposeResult:
+        grade, bath_text, capacity_text, stage = self._initial
+        with Horizontal(classes="form-row"):
+            yield Label("Grade", classes="form-label")
+            yield GradeField(grade, id="grade")
+        yield ReasonLine(id="reason-grade")
+        with Horizontal(classes="form-row"):
+            yield Label("Bath kg", classes="form-label")
+            yield Input(bath_text, id="bath", compact=True, classes="form-input")
+        yield ReasonLine(id="reason-bath")
+        with Horizontal(classes="form-row"):
+            yield Label("Vessel kg", classes="form-label")
+            yield Input(capacity_text, id="capacity", compact=True, classes="form-input",
+                        placeholder="not limited")
+        yield ReasonLine(id="reason-capacity")
+        with Horizontal(classes="form-row"):
+            yield Label("Stage", classes="form-label")
+            yield CycleField(self.STAGES, stage, id="stage")
+
+    @property
+    def grade(self) -> str:
+        return self.query_one(GradeField).grade
+
+    @property
+    def bath_text(self) -> str:
+        return self.query_one("#bath", Input).value
+
+    @property
+    def capacity_text(self) -> str:
+        return self.query_one("#capacity", Input).value
+
+    @property
+    def stage(self) -> str:
+        return self.query_one(CycleField).value
+
+    def set_values(self, grade: str, bath_text: str, capacity_text: str, stage: str) -> None:
+        self.query_one(GradeField).set_grade(grade)
+        with self.prevent(Input.Changed):
+            self.query_one("#bath", Input).value = bath_text
+            self.query_one("#capacity", Input).value = capacity_text
+        stage_field = self.query_one(CycleField)
+        if stage not in stage_field.choices:
+            stage_field.choices = (*stage_field.choices, stage)
+        stage_field.value = stage
+        stage_field.refresh()
+
+    def show_errors(self, errors: Mapping[str, str]) -> None:
+        """Mark each field at fault in place, with its reason on the line below."""
+        for key, widget_id in ((GRADE, "grade"), (BATH, "bath"), (CAPACITY, "capacity")):
+            reason = errors.get(key)
+            self.query_one(f"#{widget_id}").set_class(reason is not None, "-bad")
+            self.query_one(f"#reason-{widget_id}", ReasonLine).show(reason)

@@ -1,0 +1,139 @@
+"""The plan panel: status, additions, totals, chemistry gauges, what binds, and the cautions.
+
+The panel never decides whether its plan is current: the screen says so (``show`` for a plan
+that matches the inputs, ``mark_updating`` / ``mark_stale`` otherwise), and the panel makes the
+difference impossible to miss.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from rich import box
+from rich.table import Table
+from textual.app import ComposeResult
+from textual.containers import Vertical, VerticalScroll
+from textual.content import Content
+from textual.widgets import Static
+
+from meltfix.heat import Heat
+from meltfix.recipes import Grade
+from meltfix.tui.figures import content_text, kg_text, money_text, packs_text, unit_of
+from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
+
+if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
+    from meltfix.planner import Plan
+
+
+class PlanView(Vertical):
+    """The right-hand panel of the trim screen."""
+
+    def __init__(self, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.plan: Plan | None = None
+        """The plan on display (current or not: see ``is_current``)."""
+        self.is_current = False
+
+    def compose(self) -> ComposeResult:
+        yield Static("◌ planning…", id="plan-status")
+        with VerticalScroll(id="plan-body", can_focus=True) as body:
+            body.border_title = "Plan"
+            yield Static(id="plan-additions")
+            yield Static(id="plan-totals")
+            yield Static(id="plan-out-of-reach")
+            yield ChemistryGauges(id="plan-gauges")
+            yield Static(id="plan-binding")
+            yield Static(id="plan-notes")
+        with VerticalScroll(id="plan-cautions", can_focus=True) as cautions:
+            cautions.border_title = "Cautions"
+            yield Static(id="plan-cautions-text")
+
+    # -- what the screen calls ------------------------------------------------------------
+    def show(self, heat: Heat, plan: Plan, grade: Grade) -> None:
+        """Show a plan that matches the inputs on screen."""
+        self.plan, self.is_current = plan, True
+        self.remove_class("-stale")
+        self.set_class(plan.status != "optimal", "-closest")
+        if plan.status == "optimal":
+            status = Content.assemble(("● current", "bold $text-success"), " · every window met")
+        else:
+            status = Content.assemble(("▲ current · closest plan", "bold $text-error"),
+                                      " · the grade cannot be met, see why below")
+        self.query_one("#plan-status", Static).update(status)
+        self.query_one("#plan-additions", Static).update(_additions_table(plan))
+        self.query_one("#plan-totals", Static).update(_totals(plan))
+        out = self.query_one("#plan-out-of-reach", Static)
+        out.update(_out_of_reach(plan))
+        out.display = bool(plan.violations)
+        self.query_one(ChemistryGauges).show(gauge_rows(grade, heat.analysis.pct, plan.predicted_pct))
+        binding = self.query_one("#plan-binding", Static)
+        binding.update(_binding(plan))
+        binding.display = bool(plan.binding)
+        notes = self.query_one("#plan-notes", Static)
+        notes.update(Content.assemble(("Notes: ", "bold"), " ".join(plan.notes)))
+        notes.display = bool(plan.notes)
+        self.query_one("#plan-cautions-text", Static).update(
+            Content("\n").join(Content.assemble(("• ", "bold $text-warning"), caution) for caution in plan.cautions))
+        cautions = self.query_one("#plan-cautions")
+        cautions.border_title = f"Cautions ({len(plan.cautions)})"
+
+    def mark_updating(self) -> None:
+        """The inputs changed and a new plan is on its way: the one shown is no longer current.
+
+        Only the status line says so: the new plan is milliseconds away, and dimming the whole
+        panel for that long would only flicker.
+        """
+        self.is_current = False
+        self.query_one("#plan-status", Static).update(Content.styled("◌ updating…", "$foreground-muted"))
+
+    def mark_stale(self, reason: str) -> None:
+        """No plan can be made for the inputs: keep the old one visible, plainly marked as old."""
+        self.is_current = False
+        self.add_class("-stale")
+        prefix = "✗ the plan below is for earlier inputs: " if self.plan is not None else "✗ no plan: "
+        self.query_one("#plan-status", Static).update(Content.assemble((prefix, "bold $text-error"), reason))
+
+
+def _additions_table(plan: Plan) -> Table:
+    cur = plan.currency
+    table = Table(box=box.SIMPLE_HEAD, expand=True, padding=(0, 1), pad_edge=False, show_edge=False,
+                  header_style="bold")
+    table.add_column("Add", ratio=1, overflow="fold")
+    table.add_column("kg (packs)", justify="right", no_wrap=True)
+    table.add_column(cur, justify="right", no_wrap=True)
+    for addition in plan.additions:
+        packs = packs_text(addition)
+        table.add_row(addition.material, kg_text(addition.kg) + (f" ({packs})" if packs else ""),
+                      money_text(addition.cost))
+    if not plan.additions:
+        table.add_row("nothing to add", "", "")
+    return table
+
+
+def _totals(plan: Plan) -> Content:
+    cur = plan.currency
+    return Content.assemble(
+        ("Total ", "bold"), (f"{money_text(plan.total_cost)} {cur}", "bold"),
+        f" · {money_text(plan.cost_per_t)} {cur}/t\n",
+        (f"bath +{kg_text(plan.added_kg)} kg → {plan.final_kg:,.0f} kg · {-plan.temperature_drop_c:+.1f} °C",
+         "$foreground-muted"),
+    )
+
+
+def _out_of_reach(plan: Plan) -> Content:
+    lines = [Content.styled("Out of reach", "bold $text-error")]
+    for v in plan.violations:
+        unit = unit_of(v.element)
+        lines.append(Content.assemble(
+            (f"{v.element} {v.limit} {content_text(v.element, v.limit_pct)} {unit}", "bold"),
+            f": {content_text(v.element, v.predicted_pct)} {unit} after, off by "
+            f"{content_text(v.element, v.by_pct)}. ", v.reason))
+    return Content("\n").join(lines)
+
+
+def _binding(plan: Plan) -> Content:
+    lines = [Content.styled("What the cost hangs on", "bold")]
+    for b in plan.binding:
+        lines.append(Content.assemble(f"{b.name}: ", (f"{money_text(b.saving)} {plan.currency}", "bold"),
+                                      f" saved per {b.unit}"))
+    return Content("\n").join(lines)

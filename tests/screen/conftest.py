@@ -1,0 +1,44 @@
+"""Shared pieces of the trim-screen tests: the demo shop, and waiting for the planner worker."""
+
+from __future__ import annotations
+
+import asyncio
+from collections.abc import Awaitable, Callable
+from pathlib import Path
+
+import pytest
+from textual.app import App
+from textual.pilot import Pilot
+
+from meltfix.commands.screen import first_demo_heat
+from meltfix.heat import Heat, load_heat
+from meltfix.recipes import RecipeBook, load_recipes
+
+
+@pytest.fixture(scope="session")
+def demo_book() -> RecipeBook:
+    return load_recipes()
+
+
+@pytest.fixture(scope="session")
+def demo_heat_path() -> Path:
+    return first_demo_heat()
+
+
+@pytest.fixture(scope="session")
+def demo_heat(demo_book: RecipeBook, demo_heat_path: Path) -> Heat:
+    return load_heat(demo_heat_path, demo_book)
+
+
+async def _settle(pilot: Pilot) -> None:
+    """Wait until every planner worker has finished and its message has been shown."""
+    app: App = pilot.app
+    for _ in range(3):  # a message handled may start a new worker; a couple of rounds is plenty
+        # An exclusive worker cancels the one before it: that is expected, not a failure.
+        await asyncio.gather(*(worker.wait() for worker in list(app.workers)), return_exceptions=True)
+        await pilot.pause()
+
+
+@pytest.fixture
+def settle() -> Callable[[Pilot], Awaitable[None]]:
+    return _settle

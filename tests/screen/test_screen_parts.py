@@ -1,0 +1,109 @@
+"""The screen's plain parts, without a terminal: typed inputs -> heat, the crew ticket, a quiet solver."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import textwrap
+from datetime import datetime
+
+from meltfix.planner import Planner
+from meltfix.tui.draft import ANALYSIS, BATH, CAPACITY, HeatInputs, build_heat, cell_key
+from meltfix.tui.figures import kg_text
+from meltfix.tui.ticket import ticket_text, write_ticket
+
+
+def _inputs(heat, **changes) -> HeatInputs:
+    fields = {"grade": heat.grade, "bath_text": "60000", "capacity_text": "65000", "stage": "ladle",
+              "cells": {"C": "0,40", "Mn": "0.52", "N": "68", "Al": "<0.002"}}
+    fields.update(changes)
+    return HeatInputs(**fields)
+
+
+def test_typed_inputs_become_a_heat(demo_book, demo_heat) -> None:
+    draft = build_heat(demo_heat, _inputs(demo_heat), demo_book)
+    assert draft.errors == {}
+    analysis = draft.heat.analysis
+    assert analysis.pct["C"] == 0.40  # decimal comma
+    assert abs(analysis.pct["N"] - 0.0068) < 1e-15  # N typed in ppm: 68 ppm = 0.0068 wt %
+    assert analysis.pct["Al"] == 0.002 and "Al" in analysis.below_limit
+    assert draft.heat.capacity_kg == 65000 and draft.heat.bath_kg == 60000
+
+
+def test_every_bad_field_gets_its_own_reason(demo_book, demo_heat) -> None:
+    draft = build_heat(demo_heat, _inputs(demo_heat, bath_text="60,000", capacity_text="",
+                                          cells={"C": "0.4x", "Mn": "-0.5", "Si": "120"}), demo_book)
+    assert draft.heat is None
+    assert "ambiguous" in draft.errors[BATH]  # 60 kg or 60 t? never guessed
+    assert CAPACITY not in draft.errors  # empty = not limited
+    assert "not a number" in draft.errors[cell_key("C")]
+    assert "negative" in draft.errors[cell_key("Mn")]
+    assert "above 100" in draft.errors[cell_key("Si")]
+
+
+def test_whole_heat_faults_name_their_field(demo_book, demo_heat) -> None:
+    small = build_heat(demo_heat, _inputs(demo_heat, capacity_text="50000"), demo_book)
+    assert "less than the bath" in small.errors[CAPACITY]
+    over = build_heat(demo_heat, _inputs(demo_heat, cells={"Mn": "60", "Cr": "50"}), demo_book)
+    assert "over 100" in over.errors[ANALYSIS]
+
+
+def test_ticket_holds_additions_chemistry_and_cautions(demo_book, demo_heat, tmp_path) -> None:
+    plan = Planner(demo_book).plan(demo_heat)
+    when = datetime(2026, 3, 4, 5, 6)
+    text = ticket_text(demo_heat, plan, demo_book, when)
+    assert f"Heat {demo_heat.heat_id}" in text and "2026-03-04 05:06" in text
+    for addition in plan.additions:
+        assert addition.material in text and kg_text(addition.kg) in text
+    for symbol in demo_book.grade(plan.grade).elements:
+        assert any(line.strip().startswith(symbol + " ") for line in text.splitlines())
+    flat = " ".join(text.split())
+    for caution in plan.cautions:
+        assert " ".join(caution.split()) in flat
+    assert all(len(line) <= 72 for line in text.splitlines() if not any(a.material in line for a in plan.additions))
+    first = write_ticket(tmp_path, demo_heat, plan, demo_book, when)
+    second = write_ticket(tmp_path, demo_heat, plan, demo_book, when)
+    assert first.name == f"{demo_heat.heat_id}-ticket.txt" and second.name == f"{demo_heat.heat_id}-ticket-2.txt"
+    assert first.read_text(encoding="utf-8") == text  # the first ticket is never overwritten
+
+
+def test_closest_plan_ticket_says_so(demo_book, demo_heat) -> None:
+    heat = demo_heat.with_changes(capacity_kg=demo_heat.bath_kg + 500,
+                                  analysis=type(demo_heat.analysis)({**demo_heat.analysis.pct, "Cu": 0.45}))
+    plan = Planner(demo_book).plan(heat)
+    text = ticket_text(heat, plan, demo_book, datetime(2026, 1, 1))
+    assert "CLOSEST PLAN" in text and "OUT OF REACH" in text and "Cu max" in text
+
+
+def test_solver_writes_nothing_to_the_terminal() -> None:
+    """HiGHS writes below Python's sys.stdout; a single line would corrupt the running screen
+    (DESIGN §7). Optimal, whole-pack and closest plans, at the file-descriptor level."""
+    code = textwrap.dedent("""
+        from meltfix.analysis import Analysis
+        from meltfix.commands.screen import first_demo_heat
+        from meltfix.heat import load_heat
+        from meltfix.planner import Planner, PlanOptions
+        from meltfix.recipes import load_recipes
+        book = load_recipes()
+        heat = load_heat(first_demo_heat(), book)
+        planner = Planner(book)
+        planner.plan(heat)
+        planner.plan(heat, PlanOptions(continuous=True))
+        planner.plan(heat.with_changes(capacity_kg=heat.bath_kg + 500,
+                                       analysis=Analysis({**heat.analysis.pct, "Cu": 0.45})))
+    """)
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout == "" and done.stderr == ""
+
+
+def test_gauge_marks_now_after_and_aim_in_order() -> None:
+    from meltfix.tui.widgets.gauge import GaugeRow, gauge_line
+
+    # Mn 0.75-1.00 %, aim 0.88; bath at 0.80, plan takes it to 0.95: ○ before ┿ before ●.
+    line = gauge_line(GaugeRow("Mn", 0.75, 1.00, 0.88, 0.80, 0.95), 30).plain
+    rail = line[line.index("0.750") + 6:]
+    assert rail.index("○") < rail.index("┿") < rail.index("●")
+    assert "0.800 → 0.950" in line and line.rstrip().endswith("1.000")
+    # Far below the window now: the now marker waits at the rail's left end as an arrow.
+    low = gauge_line(GaugeRow("C", 0.38, 0.43, None, 0.10, 0.40), 20, labels=False).plain
+    assert "◀" in low and "●" in low and low.index("◀") < low.index("●")
