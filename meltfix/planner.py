@@ -14,13 +14,14 @@ from __future__ import annotations
 
 import math
 import warnings
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 from scipy.optimize import Bounds, LinearConstraint, OptimizeResult, linprog, milp
 
 from meltfix.cautions import plan_cautions
+from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.elements import element_sort_key
 from meltfix.errors import InputError
 from meltfix.heat import Heat, validate_heat
@@ -60,6 +61,9 @@ class PlanOptions:
     mip_rel_gap: float = 1e-6
     """Relative optimality gap for plans with whole packs."""
     time_limit_s: float = 20.0
+    closest_tolerance: float = 0.02
+    """When no plan meets the grade: how much more than the least possible violation (relative)
+    the closest plan may keep, when that saves cost."""
 
 
 @dataclass(frozen=True)
@@ -243,6 +247,17 @@ class Planner:
         # maximum and at zero against a minimum, so the plan is safe whatever the true value.
         below = np.array([s in heat.analysis.below_limit for s in elements])
         now_low = np.where(below, 0.0, now)
+        # Aluminium the dissolved oxygen binds is gone before any stays in the bath: the Al row
+        # starts lower by it (below 0 % is a debt the additions pay first), still linear.
+        owed = aluminium_owed_pct(heat, grade)
+        debt = np.array([owed.get(s, 0.0) / 100.0 for s in elements])
+        now, now_low = now - debt, now_low - debt
+        for s, pct in owed.items():
+            notes.append(f"{bath * pct / 100.0:,.1f} kg of {s} goes to deoxidation ({heat.dissolved_o_ppm:g} ppm "
+                         "dissolved O bound as Al2O3) before any stays in the bath; the heat of that reaction is "
+                         "not credited to the temperature")
+        if heat.dissolved_o_ppm and not owed:
+            notes.append(f"the dissolved O reading is not used: grade {grade.name} sets no Al window")
         for s in grade.window_pct:
             if s not in heat.analysis.pct:
                 notes.append(f"{s} is not in the analysis and is taken as 0 %")
@@ -278,7 +293,9 @@ class Planner:
             k = row_of[symbol]
             # A content cannot go below 0 % or above 100 %: such a limit is no row. (An index can:
             # Mn - 20 S >= 0 is a real limit, so its limits are always rows.)
-            add_limit(symbol, yields[k], now_low[k], now[k], low if low > 0 else None, high if high < 100 else None)
+            # ... except an element that starts in debt to deoxidation: its 0 % floor must be reached.
+            add_limit(symbol, yields[k], now_low[k], now[k], low if low > 0 or symbol in owed else None,
+                      high if high < 100 else None)
         for index in grade.indices:
             weights = np.array([index.terms.get(s, 0.0) for s in elements])
             # A negative weight (a ratio such as Mn - 20 S) flips which end of a below-limit
@@ -364,14 +381,17 @@ class Planner:
         model = self._build(heat, options)
         solution, duals = _solve_model(model, model.c, model.a_ub, model.b_ub, model.a_eq, model.b_eq,
                                        model.lb, model.ub, options)
-        status = "optimal"
+        status, least = "optimal", None
         if solution is None:
             status = "closest"
-            solution = self._closest(model, options)
-        return self._result(heat, model, solution, status, options, duals)
+            solution, least = self._closest(model, options)
+        return self._result(heat, model, solution, status, options, duals, least)
 
-    def _closest(self, model: _Model, options: PlanOptions) -> np.ndarray:
-        """Elastic windows: least total violation first (relative to each limit), then cost."""
+    def _closest(self, model: _Model, options: PlanOptions) -> tuple[np.ndarray, np.ndarray]:
+        """Elastic windows: least total violation first (relative to each limit), then cost.
+
+        Returns the closest plan and the least-violation plan it started from (the reasons for a
+        miss are read from the latter: it shows which limit stops the heat getting closer)."""
         n_rows = len(model.window_rows)
         n_vars = len(model.c)
         slack = np.zeros((model.a_ub.shape[0], n_rows))
@@ -394,50 +414,37 @@ class Planner:
         least = float(violation.sum())
         cap_row = np.concatenate([np.zeros(n_vars), weights])
         a_ub2 = np.vstack([a_ub, cap_row])
-        # A hair of slack on the least violation keeps phase 2 from buying costly alloys only to
-        # shave a millionth of a per cent off a residual (1e-4 = 0.01 % of a limit).
-        b_ub2 = np.append(model.b_ub, least * (1 + 1e-4) + 1e-4)
+        # Slack on the least violation keeps phase 2 from buying alloys and scrap by the tonne only
+        # to shave a hopeless excess (S at 0.56 % against 0.050 %) by a hundredth of a per cent:
+        # the closest plan may miss by options.closest_tolerance more than the least possible
+        # (plus 1e-4 = 0.01 % of a limit's mass, so a near-zero least is not chased either).
+        b_ub2 = np.append(model.b_ub, least * (1 + options.closest_tolerance) + 1e-4)
         # The hair is for the limits that cannot be met: one that phase 1 met stays met, or the
         # cheaper plan would miss it by a hair and blame it on a reason that is not true.
         ub2 = ub.copy()
         ub2[n_vars:][violation <= 1e-9] = 0.0
         second = np.concatenate([model.c, np.zeros(n_rows)])
         phase2, _ = _solve_model(model, second, a_ub2, b_ub2, a_eq, model.b_eq, lb, ub2, options)
-        return (phase2 if phase2 is not None else phase1)[:n_vars]
+        return (phase2 if phase2 is not None else phase1)[:n_vars], phase1[:n_vars]
 
     def _result(self, heat: Heat, model: _Model, solution: np.ndarray, status: str,
-                options: PlanOptions, duals: OptimizeResult | None) -> Plan:
+                options: PlanOptions, duals: OptimizeResult | None, least: np.ndarray | None = None) -> Plan:
         book = self.book
         grade = book.grade(heat.grade)
-        n = model.n_materials
-        kg = np.where(solution[:n] * model.scale > 1e-6, solution[:n] * model.scale, 0.0)
-        if np.any(model.packed):
-            kg = np.where(model.packed, np.round(solution[:n]) * model.scale, kg)
-        additions = []
-        used: list[tuple[Material, float]] = []
-        for j in np.flatnonzero(kg > 0):
-            material = model.materials[j]
-            packs = int(round(kg[j] / material.pack_kg)) if model.packed[j] and material.pack_kg else None
-            additions.append(Addition(material.name, float(kg[j]), float(kg[j] * model.prices[j]), packs,
-                                      material.pack_kg if packs is not None else None))
-            used.append((material, float(kg[j])))
-        final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used)
-        # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
-        # closest plan reports the shortfall it was planned against.
-        lowest = predicted
-        if heat.analysis.below_limit:
-            floor = {s: 0.0 if s in heat.analysis.below_limit else v for s, v in heat.analysis.pct.items()}
-            lowest = bath_after(heat.bath_kg, floor, used)[1]
-        checks = limit_checks(grade, predicted, lowest)
+        additions, used = _additions(model, solution)
+        final_kg, predicted, checks = recheck(heat, grade, used)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
         drop_limit = heat.max_temp_drop_c if heat.max_temp_drop_c is not None else book.settings.max_temp_drop_c
         violations: list[Violation] = []
         if status == "closest":
+            least_used = _additions(model, least)[1] if least is not None else used
+            least_final_kg = recheck(heat, grade, least_used)[0]
+            least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
             for check in checks:
                 if check.margin_pct < -1e-9:
-                    reason = explain_violation(check.element, check.limit, heat, book, model.materials, used,
-                                               final_kg, model.packed.any() and not options.continuous,
-                                               drop, drop_limit)
+                    reason = explain_violation(check.element, check.limit, heat, book, model.materials,
+                                               least_used, least_final_kg, model.packed.any() and not options.continuous,
+                                               least_drop, drop_limit)
                     violations.append(Violation(check.element, check.limit, check.limit_pct,
                                                 check.predicted_pct, -check.margin_pct, reason))
             if not violations:
@@ -503,6 +510,23 @@ class Planner:
         return tuple(sorted(bindings, key=lambda b: -b.saving))
 
 
+def _additions(model: _Model, solution: np.ndarray) -> tuple[list[Addition], list[tuple[Material, float]]]:
+    """The plan's lines from a solver point: masses [kg] (whole packs rounded exactly), costs."""
+    n = model.n_materials
+    kg = np.where(solution[:n] * model.scale > 1e-6, solution[:n] * model.scale, 0.0)
+    if np.any(model.packed):
+        kg = np.where(model.packed, np.round(solution[:n]) * model.scale, kg)
+    additions = []
+    used: list[tuple[Material, float]] = []
+    for j in np.flatnonzero(kg > 0):
+        material = model.materials[j]
+        packs = int(round(kg[j] / material.pack_kg)) if model.packed[j] and material.pack_kg else None
+        additions.append(Addition(material.name, float(kg[j]), float(kg[j] * model.prices[j]), packs,
+                                  material.pack_kg if packs is not None else None))
+        used.append((material, float(kg[j])))
+    return additions, used
+
+
 def _or_inf(value: float | None) -> float:
     return math.inf if value is None else value
 
@@ -566,24 +590,42 @@ def _solve_mip(c: np.ndarray, a_ub: np.ndarray, b_ub: np.ndarray, a_eq: np.ndarr
         constraints.append(LinearConstraint(a_ub, -np.inf, b_ub))
     if a_eq.size:
         constraints.append(LinearConstraint(a_eq, b_eq, b_eq))
-    # Set at each call, not once at import: a caller's warnings.catch_warnings() (pytest's, for one)
-    # restores the filters it found. Adding the same filter again only moves it to the front.
-    warnings.filterwarnings("ignore", message=r"Unrecognized options detected: \{'mip_heuristic_run_")
-    result = milp(c, constraints=constraints, integrality=integrality, bounds=Bounds(lb, ub),
-                  options={**_HIGHS_OPTIONS, **_MIP_OPTIONS, "mip_rel_gap": options.mip_rel_gap,
-                           "time_limit": options.time_limit_s})
+    # SciPy passes the heuristic switches on to HiGHS but warns that it does not know them.
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Unrecognized options detected: \{'mip_heuristic_run_")
+        result = milp(c, constraints=constraints, integrality=integrality, bounds=Bounds(lb, ub),
+                      options={**_HIGHS_OPTIONS, **_MIP_OPTIONS, "mip_rel_gap": options.mip_rel_gap,
+                               "time_limit": options.time_limit_s})
     return result.x if result.x is not None and result.status in (0, 1) else None
 
 
+def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]]
+            ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
+    """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
+    by the plain mass balance: the plan's own re-check, also against a grade other than the one
+    planned for (robust mode plans to tightened windows and reports against the real ones)."""
+    owed = aluminium_owed_pct(heat, grade)
+    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
+    # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
+    # closest plan reports the shortfall it was planned against.
+    lowest = predicted
+    if heat.analysis.below_limit:
+        floor = {s: 0.0 if s in heat.analysis.below_limit else v for s, v in heat.analysis.pct.items()}
+        lowest = bath_after(heat.bath_kg, floor, used, owed)[1]
+    return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))
+
+
 def limit_checks(grade: Grade, predicted: Mapping[str, float],
-                  lowest: Mapping[str, float] | None = None) -> tuple[LimitCheck, ...]:
+                  lowest: Mapping[str, float] | None = None, floors: frozenset[str] = frozenset()
+                  ) -> tuple[LimitCheck, ...]:
     """Every limit of the grade against the predicted analysis; ``lowest`` (default: the same) has
     below-limit readings at 0 and is used wherever the low end is the safe one (minimums, negative
-    weights)."""
+    weights). A window minimum of 0 is checked only for the elements in ``floors`` (those in debt to
+    deoxidation, which can end below 0 %)."""
     lowest = predicted if lowest is None else lowest
     checks = []
     for symbol, (low, high) in grade.window_pct.items():
-        if low > 0:
+        if low > 0 or symbol in floors:
             value = lowest.get(symbol, 0.0)
             checks.append(LimitCheck(symbol, "min", low, value, value - low))
         value = predicted.get(symbol, 0.0)

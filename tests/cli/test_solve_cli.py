@@ -126,8 +126,10 @@ def test_closest_plan_exits_3_with_the_reason(capsys: pytest.CaptureFixture[str]
     assert plan["status"] == "closest"
     (violation,) = plan["violations"]
     assert violation["element"] == "Cu" and violation["limit"] == "max"
-    # By hand: the 1 000 kg of room dilutes 0.40 % Cu to at best 0.40 * 20 / 21 = 0.381 %.
-    assert violation["by"] == pytest.approx(0.40 * 20 / 21 - 0.30, rel=1e-3)
+    # By hand: the 1 000 kg of room dilutes 0.40 % Cu to at best 0.40 * 20 / 21 = 0.381 %; the closest
+    # plan may keep up to 2 % more violation than that least one to save cost (PlanOptions).
+    least = 0.40 * 20 / 21 - 0.30
+    assert least * (1 - 1e-6) <= violation["by"] <= least * 1.03
     assert "only 1,000 kg of capacity is free" in violation["reason"]
     status, out, _ = solve(capsys, recipes, HEATS / "copper.toml")
     assert status == 3 and "Why the grade cannot be met" in out

@@ -37,8 +37,9 @@ def test_temperature_limit_is_named_as_the_reason_for_a_shortfall() -> None:
     plan = plan_heat(heat("Mn", 100_000.0, {"Mn": 0.30, "C": 0.1}), shop, NO_AIM)
     assert plan.status == "closest"
     # 2 °C at 1.8 °C per kg/t allows 1.111 kg/t x 100 t = 111.1 kg of FeMn (hand check); the closest
-    # plan may stop a hair short (its cost phase is allowed 0.01 % of a limit's mass of violation).
-    assert kg_of(plan, "FeMn") == pytest.approx(2.0 / 1.8 * 100.0, rel=2e-3)
+    # plan may stop short of that (it keeps up to 2 % more than the least violation to save cost),
+    # but the reason names the limit that stops the least-violation plan.
+    assert 0.0 < kg_of(plan, "FeMn") <= 2.0 / 1.8 * 100.0 + 1e-6
     assert "chill the bath beyond the 2 °C" in plan.violations[0].reason
 
 

@@ -252,9 +252,9 @@ def test_planner_cost_equals_cbc_on_random_heats(packs: bool) -> None:
             least_status, least = cbc_model(book, heat, use_aim, continuous=not packs, elastic=True)
             assert least_status == "Optimal", where
             ours = weighted_violation(plan, heat.bath_kg)
-            # Least first; the planner then may leave up to 1e-4 (1 + least) unbought for cost, on
+            # Least first; the planner then may leave up to 0.02 least + 1e-4 unbought for cost, on
             # top of its own phase 1, which is optimal to its relative MIP gap (1e-6).
-            assert least * (1 - 1e-7) - 1e-6 <= ours <= least * (1 + 1e-6) * (1 + 1e-4) + 1e-4 + 1e-6, where
+            assert least * (1 - 1e-7) - 1e-6 <= ours <= least * (1 + 1e-6) * (1 + 0.02) + 1e-4 + 1e-6, where
     # The random heats exercise every branch, not only the easy one.
     assert counts["optimal"] >= HEATS // 2 and counts["closest"] >= HEATS // 20
     if packs:
