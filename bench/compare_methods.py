@@ -8,10 +8,11 @@ window, cost per tonne, where the hand method breaks a window meltfix keeps, hea
 bring inside and why. Then each plan meets an uncertain world (Monte Carlo, seeded, the same draws
 for both methods): recoveries off by up to ±10 % relative, the bath weight off by up to ±3 %, and
 both samples read with the spectrometer's repeatability (meltfix.spectro, sigma = r / 2.8, the
-ISO 5725 relation, from memory). A second sample out of a window gets one correction, planned by
-the same method from what the melter then believes; the share of heats truly inside every window
-afterwards is the figure that matters. Last, throughput: meltfix plans per second in one process
-and on all cores. Figures print as tables; nothing here is a pass/fail test.
+ISO 5725 relation, from memory); the draws are those of meltfix.uncertainty, behind `solve --odds`.
+A second sample out of a window gets one correction, planned by the same method from what the
+melter then believes; the share of heats truly inside every window afterwards is the figure that
+matters. Last, throughput: meltfix plans per second in one process and on all cores. Figures print
+as tables; nothing here is a pass/fail test.
 """
 
 from __future__ import annotations
@@ -33,21 +34,18 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 
 from meltfix.analysis import Analysis
+from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.handmethod import hand_plan
 from meltfix.heat import Heat
 from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import Grade, RecipeBook, load_recipes
-from meltfix.spectro import default_curve
+from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.uncertainty import LimitSet, Spread, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from population import population  # bench/ is on sys.path when this file runs as a script
 
 METHODS = ("meltfix", "hand")
-_RECOVERY_ERROR = 0.10
-"""Largest relative error of a recovery (uniform; a true recovery never exceeds 1)."""
-_BATH_ERROR = 0.03
-"""Largest relative error of the bath weight (uniform)."""
-_R_TO_SIGMA = 2.8
-"""Repeatability limit r = 2.8 sigma for two results (ISO 5725-6, from memory)."""
+SPREAD = Spread()
+"""Recoveries off by up to ±10 % relative, the bath weight by up to ±3 %, analyses per the repeatability curves."""
 _TOL_PCT = 1e-9
 
 
@@ -155,75 +153,32 @@ def _plan_chunk(indices: Sequence[int], methods: Sequence[str]) -> tuple[dict[st
 # Monte Carlo: the plans in an uncertain world, vectorised over the draws of one heat
 
 
-class _Limits:
-    """A grade's windows and indices as arrays over a list of element symbols, to test many analyses at once."""
-
-    def __init__(self, grade: Grade, symbols: Sequence[str]) -> None:
-        rows, low, high = [], [], []
-        for symbol, (lo, hi) in grade.window_pct.items():
-            rows.append(np.array([s == symbol for s in symbols], dtype=float))
-            low.append(lo)
-            high.append(hi)
-        for index in grade.indices:
-            rows.append(np.array([index.terms.get(s, 0.0) for s in symbols]))
-            low.append(-np.inf if index.min_value is None else index.min_value)
-            high.append(np.inf if index.max_value is None else index.max_value)
-        self.weights = np.array(rows).T
-        self.low, self.high = np.array(low), np.array(high)
-
-    def inside(self, pct: np.ndarray) -> np.ndarray:
-        """Per analysis (rows of ``pct`` [wt %]), whether every limit holds."""
-        value = pct @ self.weights
-        return np.all((value >= self.low - _TOL_PCT) & (value <= self.high + _TOL_PCT), axis=-1)
-
-
-def _sigma_pct(symbols: Sequence[str], pct: np.ndarray) -> np.ndarray:
-    """Standard deviation of one reported analysis [wt %] per element, from the repeatability curves."""
-    curves = [default_curve(s) for s in symbols]
-    limit = np.vectorize(lambda k, c: curves[k].limit_pct(c), otypes=[float])
-    return limit(np.arange(len(symbols)), pct) / _R_TO_SIGMA
-
-
 def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> dict[str, Draws]:
     heat = _HEATS[index]
     book, grade = _BOOK, _BOOK.grade(heat.grade)
     materials = book.materials
-    watched = set(heat.analysis.pct) | set(grade.window_pct) | {s for ix in grade.indices for s in ix.terms}
-    symbols = sorted(watched | {s for m in materials for s in m.composition_pct} - {"Fe"}) + ["Fe"]
-    content = np.array([[m.composition_pct.get(s, 0.0) / 100.0 for m in materials] for s in symbols])
-    recovery = np.array([[m.recovery.get(s, 1.0) for m in materials] for s in symbols])
-    limits = _Limits(grade, symbols)
+    watched = watched_symbols(heat, grade)
+    symbols = world_symbols(heat, grade, materials)
+    limits = LimitSet(grade, symbols)
     rng = np.random.default_rng([seed, 1, index])
 
     # The true world of each draw, shared by both methods (common random numbers).
-    error = rng.uniform(-_RECOVERY_ERROR, _RECOVERY_ERROR, size=(draws, *recovery.shape))
-    error[:, -1, :] = 0.0  # the iron balance of an addition is not what goes astray
-    true_yield = content * np.minimum(recovery * (1.0 + error), 1.0)  # (draw, element, material)
-    true_bath_kg = heat.bath_kg * (1.0 + rng.uniform(-_BATH_ERROR, _BATH_ERROR, size=draws))
-    measured = np.array([heat.analysis.get(s) for s in symbols])
-    true_pct = np.maximum(measured - _sigma_pct(symbols, measured) * rng.standard_normal((draws, len(symbols))), 0.0)
-    for k, s in enumerate(symbols):
-        if s in heat.analysis.below_limit:  # reported "<L": anywhere between 0 and L
-            true_pct[:, k] = rng.uniform(0.0, measured[k], size=draws)
-    true_pct[:, -1] = 0.0
-    true_kg = true_bath_kg[:, None] * true_pct / 100.0
+    world = draw_world(heat, materials, symbols, draws, rng, SPREAD, aluminium_owed_pct(heat, grade))
     noise = rng.standard_normal((draws, len(symbols)))  # the second sample's reading error
 
     prices = np.array([heat.price_per_kg.get(m.name, m.price_per_kg) for m in materials])
     result = {}
     for method, plan in first.items():
-        element_kg = true_kg + true_yield @ plan.kg
-        bath_kg = true_bath_kg + (element_kg - true_kg).sum(axis=1)
-        pct = 100.0 * element_kg / bath_kg[:, None]
+        bath_kg, element_kg, pct = world.after(plan.kg)
         in_first = limits.inside(pct)
-        read = np.maximum(pct + _sigma_pct(symbols, pct) * noise, 0.0)
+        read = np.maximum(pct + analysis_sigma_pct(symbols, pct) * noise, 0.0)
         to_correct = np.flatnonzero(~limits.inside(read))
         final = in_first.copy()
         cost_per_t = 0.0
         for d in to_correct:
             kg = _correction_kg(method, heat, plan, {s: round(float(read[d, k]), 4) for k, s in enumerate(symbols)
                                                        if s in watched})
-            dissolved_kg = true_yield[d] @ kg
+            dissolved_kg = world.yield_frac[d] @ kg
             final_kg = bath_kg[d] + dissolved_kg.sum()
             final[d] = limits.inside(100.0 * (element_kg[d] + dissolved_kg) / final_kg)
             cost_per_t += float(prices @ kg) / (final_kg / 1000.0)
@@ -400,8 +355,8 @@ def tables(results: Results, book: RecipeBook, currency: str) -> list[Table]:
     d = results.draws
     total = n * results.n_draws
     mc = Table(title=f"In an uncertain world: {results.n_draws} draws a heat, {total:,} in all",
-               caption=f"recoveries off by up to ±{100 * _RECOVERY_ERROR:.0f} %, bath weight by up to "
-                       f"±{100 * _BATH_ERROR:.0f} %, both samples read with the spectrometer's repeatability",
+               caption=f"recoveries off by up to ±{100 * SPREAD.recovery_rel:.0f} %, bath weight by up to "
+                       f"±{100 * SPREAD.bath_rel:.0f} %, both samples read with the spectrometer's repeatability",
                title_justify="left", caption_justify="left")
     mc.add_column("")
     mc.add_column("meltfix", justify="right")

@@ -15,7 +15,10 @@ from meltfix.errors import InputError
 from meltfix.recipes import RecipeBook, number, read_toml, require, table, text
 
 _HEAT_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "analysis", "temperature_c", "max_temp_drop_c",
-              "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg"}
+              "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg", "dissolved_o_ppm"}
+# Oxygen dissolved in liquid iron saturates (against FeO) at about 0.23 % = 2300 ppm at 1600 °C
+# (from memory): a probe reading above this bound is a slip of the pen (wt % typed as ppm, say).
+_MAX_DISSOLVED_O_PPM = 2500.0
 
 
 @dataclass(frozen=True)
@@ -42,6 +45,9 @@ class Heat:
     """This heat's price overrides [currency/kg]."""
     stock_kg: Mapping[str, float] = field(default_factory=dict)
     """This heat's stock overrides [kg]."""
+    dissolved_o_ppm: float | None = None
+    """Oxygen dissolved in the bath by an oxygen probe [ppm]; None = not measured. Distinct from any
+    O in the analysis: it is the oxygen aluminium will bind before any Al stays in the bath."""
 
     def with_changes(self, **changes: Any) -> "Heat":
         return replace(self, **changes)
@@ -60,6 +66,9 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
         if heat.capacity_kg < heat.bath_kg:
             raise InputError(source, "capacity_kg",
                              f"{heat.capacity_kg:g} kg is less than the bath itself ({heat.bath_kg:g} kg)")
+    if heat.dissolved_o_ppm is not None and not 0 <= heat.dissolved_o_ppm <= _MAX_DISSOLVED_O_PPM:
+        raise InputError(source, "dissolved_o_ppm", f"{heat.dissolved_o_ppm!r} ppm is outside 0..{_MAX_DISSOLVED_O_PPM:g} "
+                         "ppm (oxygen saturates liquid iron at about 2300 ppm)")
     names = set(book.material_names)
     for label, entries in (("switch_off", heat.switched_off), ("lock_kg", heat.locked_kg),
                            ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg)):
@@ -89,6 +98,7 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
     capacity = data.get("capacity_kg")
     temperature = data.get("temperature_c")
     drop = data.get("max_temp_drop_c")
+    oxygen = data.get("dissolved_o_ppm")
     switch_off = data.get("switch_off", [])
     if not isinstance(switch_off, list) or not all(isinstance(n, str) for n in switch_off):
         raise InputError(source, "switch_off", "expected a list of material names")
@@ -109,6 +119,7 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
         locked_kg=MappingProxyType(_weights(data.get("lock_kg", {}), source, "lock_kg")),
         price_per_kg=MappingProxyType(_weights(data.get("price_per_kg", {}), source, "price_per_kg")),
         stock_kg=MappingProxyType(_weights(data.get("stock_kg", {}), source, "stock_kg")),
+        dissolved_o_ppm=None if oxygen is None else number(oxygen, source, "dissolved_o_ppm"),
     )
 
 
@@ -131,7 +142,7 @@ def heat_to_toml(heat: Heat) -> str:
 
     lines = [f"heat = {json.dumps(heat.heat_id)}", f"grade = {json.dumps(heat.grade)}",
              f"bath_kg = {num(heat.bath_kg)}", f"stage = {json.dumps(heat.stage)}"]
-    for key in ("capacity_kg", "temperature_c", "max_temp_drop_c"):
+    for key in ("capacity_kg", "temperature_c", "max_temp_drop_c", "dissolved_o_ppm"):
         value = getattr(heat, key)
         if value is not None:
             lines.append(f"{key} = {num(value)}")

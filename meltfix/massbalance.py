@@ -14,13 +14,19 @@ from meltfix.recipes import Material
 
 
 def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],
-               additions: Iterable[tuple[Material, float]]) -> tuple[float, dict[str, float]]:
+               additions: Iterable[tuple[Material, float]],
+               owed_pct: Mapping[str, float] | None = None) -> tuple[float, dict[str, float]]:
     """Bath mass [kg] and analysis [wt %] after dissolving ``additions`` (material, kg).
 
     Element mass after: W*c + sum(a*r*x); bath mass after: W + sum(x * sum_i a_i*r_i), iron
-    balance included, so the bath grows only by what actually dissolves.
+    balance included, so the bath grows only by what actually dissolves. ``owed_pct`` [wt % of the
+    bath now] is taken off the start before the additions count: the aluminium dissolved oxygen
+    binds (meltfix.deoxidation), so a content can come out below 0 % when the debt is not paid.
+    The bath mass is left as it is: the alumina leaving takes under 0.1 % of it at 400 ppm O.
     """
     element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in analysis_pct.items()}
+    for symbol, pct in (owed_pct or {}).items():
+        element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
     final_kg = bath_kg
     for material, kg in additions:
         for symbol, pct in material.composition_pct.items():

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from rich.console import Console, Group
 from rich.panel import Panel
 from rich.table import Table
@@ -9,9 +11,22 @@ from rich.text import Text
 
 from meltfix.planner import Plan
 
+if TYPE_CHECKING:  # the odds are computed only when asked for; rendering needs no NumPy of its own
+    from meltfix.uncertainty import Odds
 
-def plan_renderable(plan: Plan) -> Group:
-    """The plan as rich tables: additions, predicted chemistry, binding limits, cautions."""
+
+def odds_text(odds: Odds) -> Text:
+    """One line: the heat's in-spec odds and its weakest limits."""
+    weakest = sorted(((p, label) for label, p in odds.limits.items() if p < 1.0))[:3]
+    line = f"In-spec odds {100 * odds.heat:.1f} % ({odds.draws:,} draws, seed {odds.seed})"
+    if weakest:
+        line += " · weakest: " + ", ".join(f"{label} {100 * p:.1f} %" for p, label in weakest)
+    return Text(line, style="bold" if odds.heat >= 0.9 else "bold yellow")
+
+
+def plan_renderable(plan: Plan, odds: Odds | None = None) -> Group:
+    """The plan as rich tables: additions, predicted chemistry, binding limits, cautions; with
+    ``odds``, a line of in-spec odds under the chemistry."""
     cur = plan.currency
     title = f"Heat {plan.heat_id} · {plan.grade} · " + (
         "[green]all windows met[/]" if plan.status == "optimal" else "[bold red]closest plan: windows missed[/]")
@@ -44,6 +59,8 @@ def plan_renderable(plan: Plan) -> Group:
         chem.add_row(*row, style=style)
 
     parts: list[object] = [Text.from_markup(title), adds, chem]
+    if odds is not None:
+        parts.append(odds_text(odds))
     if plan.violations:
         parts.append(Panel("\n".join(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. {v.reason}"
                                      for v in plan.violations), title="Why the grade cannot be met", border_style="red"))
@@ -61,5 +78,5 @@ def plan_renderable(plan: Plan) -> Group:
     return Group(*parts)
 
 
-def print_plan(plan: Plan, console: Console | None = None) -> None:
-    (console or Console()).print(plan_renderable(plan))
+def print_plan(plan: Plan, console: Console | None = None, odds: Odds | None = None) -> None:
+    (console or Console()).print(plan_renderable(plan, odds))
