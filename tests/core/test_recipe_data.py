@@ -262,7 +262,7 @@ def test_shop_settings(book: RecipeBook) -> None:
     settings = book.settings
     assert settings.shop_name == "Kestrel Bend Foundry & Steel"
     assert settings.currency == "EUR"
-    assert (settings.aim_penalty, settings.large_addition_kg_per_t, settings.max_temp_drop_c) == (5.0, 10.0, 25.0)
+    assert (settings.aim_penalty, settings.large_addition_kg_per_t, settings.max_temp_drop_c) == (2.0, 10.0, 25.0)
 
 
 def test_most_stocks_are_finite(book: RecipeBook) -> None:
