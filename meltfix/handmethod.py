@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from meltfix.elements import element_sort_key
 from meltfix.heat import Heat, validate_heat
 from meltfix.massbalance import bath_after, single_addition_kg, temperature_drop_c
-from meltfix.planner import Addition, LimitCheck, limit_checks
+from meltfix.planner import Addition, LimitCheck, recheck
 from meltfix.recipes import Grade, Material, RecipeBook
 
 # The sheet order: the big carbon-free alloys first, then those that carry carbon; magnesium (the
@@ -256,8 +256,7 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> H
         trim.note(f"the additions had not settled after {rules.max_passes} passes")
 
     used = [(trim.by_name[name], kg) for name, kg in trim.kg.items() if kg > 0]
-    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used)
-    lowest = bath_after(heat.bath_kg, trim.low_analysis, used)[1]  # minimums as the planner checks them
+    final_kg, predicted, checks = recheck(heat, grade, used)  # judged exactly as the planner's plans
     additions = []
     for material, kg in used:
         price = heat.price_per_kg.get(material.name, material.price_per_kg)
@@ -271,7 +270,7 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> H
         bath_kg=heat.bath_kg,
         final_kg=final_kg,
         predicted_pct=predicted,
-        checks=limit_checks(grade, predicted, lowest),
+        checks=checks,
         passes=passes,
         temperature_drop_c=temperature_drop_c(heat.bath_kg, used) if used else 0.0,
         notes=tuple(trim.notes),
