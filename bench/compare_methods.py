@@ -38,7 +38,7 @@ from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.handmethod import hand_plan
 from meltfix.heat import Heat
-from meltfix.planner import PlanOptions, Planner
+from meltfix.planner import LIMIT_TOL_PCT, PlanOptions, Planner
 from meltfix.recipes import RecipeBook, load_recipes
 from meltfix.uncertainty import LimitSet, Spread, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from population import population  # bench/ is on sys.path when this file runs as a script
@@ -46,7 +46,6 @@ from population import population  # bench/ is on sys.path when this file runs a
 METHODS = ("meltfix", "hand")
 SPREAD = Spread()
 """Recoveries off by up to ±10 % relative, the bath weight by up to ±3 %, analyses per the repeatability curves."""
-_TOL_PCT = 1e-9
 
 
 # ---------------------------------------------------------------------------------------------
@@ -131,7 +130,7 @@ def _hand(index: int, heat: Heat) -> Outcome:
     plan = hand_plan(heat, _BOOK)
     return Outcome(index, heat.grade, plan.in_spec, plan.total_cost, plan.final_kg,
                    _kg_vector((a.material, a.kg) for a in plan.additions),
-                   tuple(f"{c.element} {c.limit}" for c in plan.checks if c.margin_pct < -_TOL_PCT),
+                   tuple(f"{c.element} {c.limit}" for c in plan.checks if c.margin_pct < -LIMIT_TOL_PCT),
                    plan.notes, plan.temperature_drop_c)
 
 
@@ -166,7 +165,7 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
     world = draw_world(heat, materials, symbols, draws, rng, SPREAD, aluminium_owed_pct(heat, grade))
     noise = rng.standard_normal((draws, len(symbols)))  # the second sample's reading error
 
-    prices = np.array([heat.price_per_kg.get(m.name, m.price_per_kg) for m in materials])
+    prices = np.array([heat.material_price_per_kg(m) for m in materials])
     result = {}
     for method, plan in first.items():
         bath_kg, element_kg, pct = world.after(plan.kg)
@@ -188,8 +187,8 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
 
 def _correction_kg(method: str, heat: Heat, first: Outcome, reading_pct: dict[str, float]) -> np.ndarray:
     """The method's correction from the second sample, on the bath the melter believes is there."""
-    stock = {m.name: max(0.0, heat.stock_kg.get(m.name, m.stock_kg) - first.kg[j])
-             for j, m in enumerate(_BOOK.materials) if heat.stock_kg.get(m.name, m.stock_kg) is not None}
+    stock = {m.name: max(0.0, heat.material_stock_kg(m) - first.kg[j])
+             for j, m in enumerate(_BOOK.materials) if heat.material_stock_kg(m) is not None}
     capacity = None if heat.capacity_kg is None else max(heat.capacity_kg, first.final_kg)
     second = heat.with_changes(bath_kg=first.final_kg, analysis=Analysis(reading_pct), capacity_kg=capacity,
                                stock_kg=stock, locked_kg={})

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from types import MappingProxyType
 
 from meltfix.elements import PPM_PER_PCT, element_sort_key, normalise_symbol, parse_number
@@ -35,6 +35,12 @@ class Analysis:
 
     def get(self, symbol: str, default: float = 0.0) -> float:
         return self.pct.get(symbol, default)
+
+    @property
+    def lowest_pct(self) -> dict[str, float]:
+        """Contents [wt %] with each below-limit reading at 0, the low end of what it may be: the
+        safe reading against a minimum."""
+        return {s: 0.0 if s in self.below_limit else v for s, v in self.pct.items()}
 
 
 @dataclass(frozen=True)

@@ -21,9 +21,9 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from meltfix.elements import element_sort_key
-from meltfix.heat import Heat, validate_heat
+from meltfix.heat import Heat, usable_materials, validate_heat
 from meltfix.massbalance import bath_after, single_addition_kg, temperature_drop_c
-from meltfix.planner import Addition, LimitCheck, recheck
+from meltfix.planner import LIMIT_TOL_PCT, Addition, LimitCheck, addition, recheck
 from meltfix.recipes import Grade, Material, RecipeBook
 
 # The sheet order: the big carbon-free alloys first, then those that carry carbon; magnesium (the
@@ -32,7 +32,6 @@ from meltfix.recipes import Grade, Material, RecipeBook
 # (common practice). Other elements go between.
 _FIRST = ("Ni", "Mo", "Cu", "Cr", "Mn", "V", "Nb", "Ti", "B", "Mg")
 _LAST = ("Si", "C", "Al")
-_MARGIN_TOL_PCT = 1e-9
 
 
 @dataclass(frozen=True)
@@ -74,7 +73,7 @@ class HandPlan:
     @property
     def in_spec(self) -> bool:
         """True when the predicted analysis meets every limit of the grade."""
-        return all(check.margin_pct >= -_MARGIN_TOL_PCT for check in self.checks)
+        return all(check.margin_pct >= -LIMIT_TOL_PCT for check in self.checks)
 
     @property
     def cost_per_t(self) -> float:
@@ -119,7 +118,7 @@ class _Trim:
         self.kg: dict[str, float] = dict(heat.locked_kg)
         self.by_name = {m.name: m for m in materials}
         # For raising, an element reported below its detection limit counts as zero, as in the planner.
-        self.low_analysis = {s: 0.0 if s in heat.analysis.below_limit else v for s, v in heat.analysis.pct.items()}
+        self.low_analysis = heat.analysis.lowest_pct
         self.full = False
         self.notes: list[str] = []
 
@@ -128,7 +127,7 @@ class _Trim:
         return bath_after(self.heat.bath_kg, analysis_pct, used)
 
     def stock_left_kg(self, material: Material) -> float:
-        stock = self.heat.stock_kg.get(material.name, material.stock_kg)
+        stock = self.heat.material_stock_kg(material)
         return math.inf if stock is None else max(0.0, stock - self.kg.get(material.name, 0.0))
 
     def note(self, text: str) -> None:
@@ -238,8 +237,7 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> H
     """Trim ``heat`` the way a melter does by hand (see the module notes). Raises InputError on a bad heat."""
     validate_heat(heat, book)
     grade = book.grade(heat.grade)
-    usable = [m for m in book.materials
-              if m.name not in heat.switched_off and (m.name not in grade.forbidden or m.name in heat.locked_kg)]
+    usable = usable_materials(heat, book)
     trim = _Trim(heat, usable)
     clean = sorted((m for m in usable if m.kind == "dilution"), key=lambda m: m.price_per_kg)
     sheet = [(symbol, usual_materials(grade, usable, symbol)) for symbol in sheet_order(grade)]
@@ -257,11 +255,8 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> H
 
     used = [(trim.by_name[name], kg) for name, kg in trim.kg.items() if kg > 0]
     final_kg, predicted, checks = recheck(heat, grade, used)  # judged exactly as the planner's plans
-    additions = []
-    for material, kg in used:
-        price = heat.price_per_kg.get(material.name, material.price_per_kg)
-        packs = round(kg / material.pack_kg) if material.pack_kg and material.name not in heat.locked_kg else None
-        additions.append(Addition(material.name, kg, kg * price, packs, material.pack_kg if packs is not None else None))
+    additions = [addition(material, kg, heat.material_price_per_kg(material), material.name not in heat.locked_kg)
+                 for material, kg in used]
     return HandPlan(
         heat_id=heat.heat_id,
         grade=heat.grade,

@@ -12,7 +12,8 @@ from typing import Any
 
 from meltfix.analysis import Analysis, analysis_from_table
 from meltfix.errors import InputError
-from meltfix.recipes import RecipeBook, number, read_toml, require, table, text
+from meltfix.recipes import (Material, RecipeBook, ShopSettings, identifier, known_keys, number, read_toml,
+                             require, table, text)
 
 _HEAT_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "analysis", "temperature_c", "max_temp_drop_c",
               "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg", "dissolved_o_ppm"}
@@ -52,6 +53,28 @@ class Heat:
     def with_changes(self, **changes: Any) -> "Heat":
         return replace(self, **changes)
 
+    def material_price_per_kg(self, material: Material) -> float:
+        """What ``material`` costs on this heat [currency/kg]: the heat's override, else the book's price."""
+        return self.price_per_kg.get(material.name, material.price_per_kg)
+
+    def material_stock_kg(self, material: Material) -> float | None:
+        """How much of ``material`` this heat may use [kg]: the heat's override, else the book's stock;
+        None = unlimited."""
+        return self.stock_kg.get(material.name, material.stock_kg)
+
+    def drop_limit_c(self, settings: ShopSettings) -> float | None:
+        """Largest temperature drop the additions may cause [°C]: the heat's own, else the shop's;
+        None = not limited."""
+        return self.max_temp_drop_c if self.max_temp_drop_c is not None else settings.max_temp_drop_c
+
+
+def usable_materials(heat: Heat, book: RecipeBook) -> list[Material]:
+    """The book's materials this heat may receive: not switched off, and not forbidden by its grade
+    unless locked (a lock is the user's explicit choice), in the book's order."""
+    forbidden = book.grade(heat.grade).forbidden
+    return [m for m in book.materials
+            if m.name not in heat.switched_off and (m.name not in forbidden or m.name in heat.locked_kg)]
+
 
 def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat:
     """Check a heat against the recipe book; raise InputError naming the field at fault."""
@@ -77,7 +100,7 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
                 raise InputError(source, f"{label}.{name}" if label != "switch_off" else label,
                                  f"no material named '{name}' in the recipe book")
     for name, kg in heat.locked_kg.items():
-        stock = heat.stock_kg.get(name, book.material(name).stock_kg)
+        stock = heat.material_stock_kg(book.material(name))
         if stock is not None and kg > stock + 1e-9:
             raise InputError(source, f"lock_kg.{name}", f"{kg:g} kg is more than the {stock:g} kg in stock")
         if name in heat.switched_off:
@@ -92,9 +115,7 @@ def _weights(raw: Any, source: object, key: str) -> dict[str, float]:
 
 
 def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat:
-    for key in data:
-        if key not in _HEAT_KEYS:
-            raise InputError(source, key, f"unknown key (expected one of: {', '.join(sorted(_HEAT_KEYS))})")
+    known_keys(data, _HEAT_KEYS, source, "")
     capacity = data.get("capacity_kg")
     temperature = data.get("temperature_c")
     drop = data.get("max_temp_drop_c")
@@ -102,11 +123,8 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
     switch_off = data.get("switch_off", [])
     if not isinstance(switch_off, list) or not all(isinstance(n, str) for n in switch_off):
         raise InputError(source, "switch_off", "expected a list of material names")
-    heat_id = data.get("heat", default_id)
-    if isinstance(heat_id, int) and not isinstance(heat_id, bool):
-        heat_id = str(heat_id)
     return Heat(
-        heat_id=text(heat_id, source, "heat"),
+        heat_id=identifier(data.get("heat", default_id), source, "heat"),
         grade=text(require(data, "grade", source, ""), source, "grade"),
         bath_kg=number(require(data, "bath_kg", source, ""), source, "bath_kg", positive=True),
         analysis=analysis_from_table(table(require(data, "analysis", source, ""), source, "analysis"),

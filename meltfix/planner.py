@@ -24,7 +24,7 @@ from meltfix.cautions import plan_cautions
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.elements import element_sort_key
 from meltfix.errors import InputError
-from meltfix.heat import Heat, validate_heat
+from meltfix.heat import Heat, usable_materials, validate_heat
 from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.reasons import explain_violation
 from meltfix.recipes import Grade, Material, RecipeBook
@@ -46,6 +46,9 @@ _MIP_OPTIONS = {"mip_heuristic_run_rins": False, "mip_heuristic_run_rens": False
 # A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
 # as HiGHS's own MIP feasibility tolerance does.
 _INTEGRALITY_TOL = 1e-6
+LIMIT_TOL_PCT = 1e-9
+"""A limit is missed only beyond float noise [wt %]: a content equal to its limit is inside. Every
+module that judges a limit (plans, the hand method, replays, the odds) counts it this way."""
 
 
 @dataclass(frozen=True)
@@ -230,8 +233,7 @@ class Planner:
     def _build(self, heat: Heat, options: PlanOptions) -> _Model:
         book = self.book
         grade = book.grade(heat.grade)
-        materials = [m for m in book.materials
-                     if m.name not in heat.switched_off and (m.name not in grade.forbidden or m.name in heat.locked_kg)]
+        materials = usable_materials(heat, book)
         n = len(materials)
         bath = heat.bath_kg
         notes: list[str] = []
@@ -262,8 +264,8 @@ class Planner:
             if s not in heat.analysis.pct:
                 notes.append(f"{s} is not in the analysis and is taken as 0 %")
 
-        prices = np.array([heat.price_per_kg.get(m.name, m.price_per_kg) for m in materials])
-        stock = np.array([_or_inf(heat.stock_kg.get(m.name, m.stock_kg)) for m in materials])
+        prices = np.array([heat.material_price_per_kg(m) for m in materials])
+        stock = np.array([_or_inf(heat.material_stock_kg(m)) for m in materials])
         locked = np.array([m.name in heat.locked_kg for m in materials], dtype=bool)  # bool even when empty
         lock_kg = np.array([heat.locked_kg.get(m.name, 0.0) for m in materials])
         pack = np.array([m.pack_kg or 0.0 for m in materials])
@@ -310,7 +312,7 @@ class Planner:
             capacity_row = len(rows)
             rows.append(g.copy())
             rhs.append(heat.capacity_kg - bath)
-        max_drop = heat.max_temp_drop_c if heat.max_temp_drop_c is not None else book.settings.max_temp_drop_c
+        max_drop = heat.drop_limit_c(book.settings)
         if max_drop is not None:
             temperature_row = len(rows)
             rows.append(chill * 1000.0 / bath)
@@ -434,14 +436,14 @@ class Planner:
         additions, used = _additions(model, solution)
         final_kg, predicted, checks = recheck(heat, grade, used)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
-        drop_limit = heat.max_temp_drop_c if heat.max_temp_drop_c is not None else book.settings.max_temp_drop_c
+        drop_limit = heat.drop_limit_c(book.settings)
         violations: list[Violation] = []
         if status == "closest":
             least_used = _additions(model, least)[1] if least is not None else used
             least_final_kg = recheck(heat, grade, least_used)[0]
             least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
             for check in checks:
-                if check.margin_pct < -1e-9:
+                if check.margin_pct < -LIMIT_TOL_PCT:
                     reason = explain_violation(check.element, check.limit, heat, book, model.materials,
                                                least_used, least_final_kg, model.packed.any() and not options.continuous,
                                                least_drop, drop_limit)
@@ -520,11 +522,16 @@ def _additions(model: _Model, solution: np.ndarray) -> tuple[list[Addition], lis
     used: list[tuple[Material, float]] = []
     for j in np.flatnonzero(kg > 0):
         material = model.materials[j]
-        packs = int(round(kg[j] / material.pack_kg)) if model.packed[j] and material.pack_kg else None
-        additions.append(Addition(material.name, float(kg[j]), float(kg[j] * model.prices[j]), packs,
-                                  material.pack_kg if packs is not None else None))
+        additions.append(addition(material, float(kg[j]), float(model.prices[j]), bool(model.packed[j])))
         used.append((material, float(kg[j])))
     return additions, used
+
+
+def addition(material: Material, kg: float, price_per_kg: float, packed: bool) -> Addition:
+    """A plan line for ``kg`` [kg] of ``material`` at ``price_per_kg`` [currency/kg]; ``packed``: the
+    amount is counted in whole packs (a loose, locked or continuous amount is not)."""
+    packs = int(round(kg / material.pack_kg)) if packed and material.pack_kg else None
+    return Addition(material.name, kg, kg * price_per_kg, packs, material.pack_kg if packs is not None else None)
 
 
 def _or_inf(value: float | None) -> float:
@@ -610,8 +617,7 @@ def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]]
     # closest plan reports the shortfall it was planned against.
     lowest = predicted
     if heat.analysis.below_limit:
-        floor = {s: 0.0 if s in heat.analysis.below_limit else v for s, v in heat.analysis.pct.items()}
-        lowest = bath_after(heat.bath_kg, floor, used, owed)[1]
+        lowest = bath_after(heat.bath_kg, heat.analysis.lowest_pct, used, owed)[1]
     return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))
 
 

@@ -32,7 +32,7 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
                 return f"No material in the recipe book carries {element}."
             return (f"No usable material carries {element} (those that do are switched off or forbidden "
                     f"for this grade: {', '.join(anywhere)}).")
-        stocked = [m for m in carriers if heat.stock_kg.get(m.name, m.stock_kg) != 0]
+        stocked = [m for m in carriers if heat.material_stock_kg(m) != 0]
         if not stocked:
             verb = "is" if len(carriers) == 1 else "are"
             return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} {verb} out of stock."
@@ -42,9 +42,9 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
         if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
             return (f"{element} is short because more additions would chill the bath beyond the "
                     f"{drop_limit_c:g} °C the heat may lose.")
-        exhausted = [m.name for m, kg in used if m in stocked and _stock(heat, m) is not None
-                     and kg >= _stock(heat, m) - 1e-6]
-        if exhausted and len(exhausted) >= len([m for m in stocked if _stock(heat, m) is not None]):
+        exhausted = [m.name for m, kg in used if m in stocked and heat.material_stock_kg(m) is not None
+                     and kg >= heat.material_stock_kg(m) - 1e-6]
+        if exhausted and len(exhausted) >= len([m for m in stocked if heat.material_stock_kg(m) is not None]):
             return f"{element} is short because the stock of {', '.join(exhausted)} is used up."
         if packs:
             return (f"{element} cannot land inside {low:g}–{high:g} % with whole packs, or raising it would push "
@@ -64,11 +64,7 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
         return f"{figures}, but no clean dilution material is usable; {remedy}."
     if free_kg is not None and needed_kg > free_kg:
         return f"{figures} but only {free_kg:,.0f} kg of capacity is free; {remedy}."
-    stock = [_stock(heat, m) for m in clean]
+    stock = [heat.material_stock_kg(m) for m in clean]
     if all(s is not None for s in stock) and needed_kg > sum(stock):  # type: ignore[arg-type]
         return f"{figures} but only {sum(stock):,.0f} kg of clean material is in stock; {remedy}."  # type: ignore[arg-type]
     return f"{figures} ({added_kg:,.0f} kg is all the plan can add within its limits); {remedy}."
-
-
-def _stock(heat: Heat, material: Material) -> float | None:
-    return heat.stock_kg.get(material.name, material.stock_kg)

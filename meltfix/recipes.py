@@ -175,6 +175,13 @@ def text(value: Any, source: object, field_name: str) -> str:
     return value.strip()
 
 
+def identifier(value: Any, source: object, field_name: str) -> str:
+    """A heat or sample id: a non-empty text, or a whole number written without quotes (24211)."""
+    if isinstance(value, int) and not isinstance(value, bool):
+        value = str(value)
+    return text(value, source, field_name)
+
+
 def table(value: Any, source: object, field_name: str) -> Mapping[str, Any]:
     if not isinstance(value, Mapping):
         raise InputError(source, field_name, f"expected a table, got {value!r}")

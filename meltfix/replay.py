@@ -55,8 +55,9 @@ from meltfix.errors import InputError
 from meltfix.heat import Heat
 from meltfix.massbalance import bath_after, temperature_drop_c
 # limit_checks is the planner's own window and index test; reused so "in spec" means one thing.
-from meltfix.planner import Addition, Plan, Planner, PlanOptions, limit_checks
-from meltfix.recipes import Grade, Material, RecipeBook, known_keys, number, read_toml, require, table, text
+from meltfix.planner import LIMIT_TOL_PCT, Addition, Plan, Planner, PlanOptions, limit_checks
+from meltfix.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require, table,
+                             text)
 
 if TYPE_CHECKING:  # a replay from a file never opens the logbook
     from meltfix.logbook import HeatHistory
@@ -65,8 +66,6 @@ _RECORD_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "max_temp_drop_c", "s
 _SAMPLE_KEYS = {"id", "time", "temperature_c", "analysis"}
 _ADDITION_KEYS = {"time", "material", "kg"}
 _STAGES = ("ladle", "furnace")
-# A limit is missed only beyond float noise: a reading equal to its limit is inside.
-_LIMIT_TOL_PCT = 1e-9
 # Below this catalogue-predicted rise [wt %] a recovery read from two samples is mostly the
 # spectrometer's scatter (a few thousandths of a per cent, common practice), so none is hinted.
 _HINT_MIN_RISE_PCT = 0.01
@@ -162,12 +161,6 @@ def _entries(data: Mapping[str, Any], key: str, source: object) -> list[Mapping[
     return entries
 
 
-def _identifier(value: Any, source: object, field_name: str) -> str:
-    if isinstance(value, int) and not isinstance(value, bool):
-        value = str(value)
-    return text(value, source, field_name)
-
-
 def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> HeatRecord:
     """Build a HeatRecord from parsed TOML; every problem raises InputError naming the field."""
     known_keys(data, _RECORD_KEYS, source, "")
@@ -192,7 +185,7 @@ def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> He
     for n, entry in enumerate(raw_samples, start=1):
         where = f"sample #{n}."
         known_keys(entry, _SAMPLE_KEYS, source, where)
-        sample_id = _identifier(require(entry, "id", source, where), source, f"{where}id")
+        sample_id = identifier(require(entry, "id", source, where), source, f"{where}id")
         where = f"sample '{sample_id}'."
         if sample_id in seen:
             raise InputError(source, f"{where}id", "the same sample id is used twice")
@@ -240,7 +233,7 @@ def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> He
         ))
 
     return HeatRecord(
-        heat_id=_identifier(data.get("heat", default_id), source, "heat"),
+        heat_id=identifier(data.get("heat", default_id), source, "heat"),
         grade=text(require(data, "grade", source, ""), source, "grade"),
         bath_kg=bath_kg,
         samples=tuple(samples),
@@ -435,7 +428,7 @@ class ReplayStep:
 def limit_misses(grade: Grade, pct: Mapping[str, float]) -> tuple[str, ...]:
     """The grade's limits (windows and indices) that ``pct`` [wt %] misses, in words."""
     return tuple(f"{c.element} {c.limit} {c.limit_pct:g} % (is {c.predicted_pct:.4g} %)"
-                 for c in limit_checks(grade, pct) if c.margin_pct < -_LIMIT_TOL_PCT)
+                 for c in limit_checks(grade, pct) if c.margin_pct < -LIMIT_TOL_PCT)
 
 
 def _recovery_hints(bath_kg: float, now: Analysis, used: Sequence[tuple[Material, float]], final_kg: float,
@@ -623,9 +616,7 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
     breaks = []
     if step.heat.capacity_kg is not None and final_kg > step.heat.capacity_kg * (1 + 1e-9):
         breaks.append(f"the bath grows to {final_kg:,.0f} kg, above the vessel's {step.heat.capacity_kg:,.0f} kg")
-    max_drop = step.heat.max_temp_drop_c
-    if max_drop is None:
-        max_drop = book.settings.max_temp_drop_c
+    max_drop = step.heat.drop_limit_c(book.settings)
     drop = temperature_drop_c(step.bath_kg, used) if used else 0.0
     if max_drop is not None and drop > max_drop + 1e-9:
         breaks.append(f"the additions chill the bath by {drop:.0f} °C, more than the {max_drop:g} °C allowed")

@@ -22,14 +22,12 @@ import numpy as np
 
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.heat import Heat
-from meltfix.planner import LimitCheck, Plan, PlanOptions, Planner, limit_checks, recheck
+from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, PlanOptions, Planner, limit_checks, recheck
 from meltfix.recipes import Grade, LinearIndex, Material, RecipeBook
 from meltfix.spectro import default_curve
 
 R_TO_SIGMA = 2.8
 """Repeatability limit r = 2.8 sigma for two results (ISO 5725-6, from memory)."""
-_TOL_PCT = 1e-9
-"""A limit holds within this much [wt %], as the planner's own checks count it."""
 
 
 @dataclass(frozen=True)
@@ -184,7 +182,7 @@ class LimitSet:
     def each(self, pct: np.ndarray) -> np.ndarray:
         """Whether each limit holds per analysis, shape (draws, limits)."""
         value = self.values(pct)
-        return np.where(self.is_min, value >= self.bound - _TOL_PCT, value <= self.bound + _TOL_PCT)
+        return np.where(self.is_min, value >= self.bound - LIMIT_TOL_PCT, value <= self.bound + LIMIT_TOL_PCT)
 
     def inside(self, pct: np.ndarray) -> np.ndarray:
         """Whether every limit holds per analysis, shape (draws,)."""

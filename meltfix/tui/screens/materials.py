@@ -73,8 +73,8 @@ class MaterialsDialog(ModalScreen[Heat]):
             use = Content.styled("off", "$text-error")
         else:
             use = Content.styled("on", "$text-success")
-        price = heat.price_per_kg.get(name, material.price_per_kg)
-        stock = heat.stock_kg.get(name, material.stock_kg)
+        price = heat.material_price_per_kg(material)
+        stock = heat.material_stock_kg(material)
         marks = {key: "*" if name in getattr(heat, field) else " " for key, field in _OVERRIDES.items()}
         return (use, name,
                 Text(money_text(price) + marks["price"], justify="right"),
