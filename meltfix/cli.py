@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from meltfix import __version__
 from meltfix.errors import InputError
 
+# Exit status (DESIGN §6): every window met / bad input / only a closest plan exists.
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_CLOSEST = 3

@@ -11,9 +11,9 @@ import json
 import sys
 from pathlib import Path
 
+from meltfix.cli import EXIT_BAD_INPUT, EXIT_CLOSEST, EXIT_OK
 from meltfix.errors import InputError
 
-EXIT_OK, EXIT_BAD_INPUT, EXIT_CLOSEST = 0, 2, 3
 # "Worst" status of a batch: a heat that could not be read at all outranks a closest plan.
 _SEVERITY = {EXIT_OK: 0, EXIT_CLOSEST: 1, EXIT_BAD_INPUT: 2}
 # Memory grows with draws x elements x materials (about 5 kB a draw for the demo shop).
