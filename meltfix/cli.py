@@ -25,6 +25,7 @@ COMMANDS = {
     "import": ("import_export", "read a spectrometer export (burns averaged, outliers flagged)"),
     "report": ("report", "the supervisor's cost report from the logbook"),
     "replay": ("replay", "step through a recorded heat beside the plans meltfix would make"),
+    "recoveries": ("recoveries", "learn each material's real recoveries from the logbook and propose updates"),
     "screen": ("screen", "open the terminal screen (the default when no command is given)"),
 }
 

@@ -1,0 +1,129 @@
+"""`meltfix recoveries [--logbook PATH | --demo] [--from DATE] [--to DATE] [--min-cases N] [--json] [--recipes DIR]`.
+
+Each material's real recovery of each element, learnt from consecutive samples in the logbook and
+the additions made between them, with a 95 % confidence interval; where the interval excludes the
+recipe book's value (and there are enough cases) an update is proposed as lines to paste into
+materials.toml. The recipes are never edited. The maths is in :mod:`meltfix.recovery_fit`.
+
+``--json`` prints one object ``{"estimates": [{"material", "element", "catalogue", "estimate",
+"ci_low", "ci_high", "cases", "propose"}], "skipped": N, "notes": [...]}`` (``ci_low`` and
+``ci_high`` are null for a single case). Exit 0; 2 for bad input (no logbook, a bad date).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from meltfix.commands.report import parse_date
+from meltfix.errors import InputError
+
+if TYPE_CHECKING:
+    from rich.console import RenderableType
+
+    from meltfix.recovery_fit import RecoveryFit
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    source = parser.add_mutually_exclusive_group()
+    source.add_argument("--logbook", metavar="PATH", type=Path,
+                        help="logbook file (default: $MELTFIX_LOGBOOK, else meltfix/logbook.sqlite in the "
+                        "user's data folder)")
+    source.add_argument("--demo", action="store_true",
+                        help="the demo shop's week of heats (built on first use, a few seconds)")
+    parser.add_argument("--from", dest="date_from", metavar="DATE",
+                        help="first day, YYYY-MM-DD (heats that started on or after it)")
+    parser.add_argument("--to", dest="date_to", metavar="DATE", help="last day, YYYY-MM-DD (inclusive)")
+    parser.add_argument("--min-cases", metavar="N", default="5",
+                        help="fewest cases (sample pairs) before an update is proposed (default: 5)")
+    parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
+
+
+def _min_cases(value: object) -> int:
+    text = str(value).strip()
+    if not text.isdigit() or int(text) < 2:
+        raise InputError("command line", "--min-cases",
+                         f"'{value}' is not a whole number of at least 2 (an interval needs two cases)")
+    return int(text)
+
+
+def run(args: argparse.Namespace) -> int:
+    from meltfix.logbook import Logbook, default_logbook_path
+    from meltfix.recipes import load_recipes
+
+    date_from = parse_date(args.date_from, "--from") if args.date_from else None
+    date_to = parse_date(args.date_to, "--to") if args.date_to else None
+    if date_from and date_to and date_from > date_to:
+        raise InputError("command line", "--from", f"{date_from} is after --to {date_to}")
+    min_cases = _min_cases(args.min_cases)
+    book = load_recipes(args.recipes)
+    if args.demo:
+        from meltfix.demo_logbook import demo_logbook_path
+
+        path = demo_logbook_path()
+    else:
+        path = args.logbook or default_logbook_path()
+        if not path.exists():
+            raise InputError(path, "", "no logbook here yet (one is created when the first heat is recorded); "
+                                       "`meltfix recoveries --demo` shows the demo shop's week")
+    from meltfix.recovery_fit import fit_logbook, toml_snippet
+
+    with Logbook(path, create=False) as logbook:
+        fit = fit_logbook(logbook, book, date_from, date_to, min_cases)
+    if args.json:
+        print(json.dumps(fit.to_json()))
+        return 0
+
+    from rich.console import Console
+
+    console = Console()
+    console.print(fit_renderable(fit, path))
+    snippet = toml_snippet(fit, book)
+    if snippet:
+        console.print("\n[bold]Proposed lines for materials.toml[/] [dim](check them first; nothing was "
+                      "changed)[/]")
+        console.print(snippet, markup=False, highlight=False, soft_wrap=True)
+    console.print("[dim]meltfix advises; a qualified person decides, under local codes and the shop's own "
+                  "procedures.[/]")
+    return 0
+
+
+def _fraction(value: float | None) -> str:
+    return "–" if value is None else f"{value:.3f}"
+
+
+def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
+    """The estimates as a rich table, with the notes under it."""
+    from rich import box
+    from rich.console import Group
+    from rich.table import Table
+    from rich.text import Text
+
+    head = Text.assemble(("Recoveries learnt from the logbook\n", "bold"), (f"logbook {logbook_path}", "dim"))
+    notes = Text("\n".join(f"· {note}" for note in fit.notes), style="dim")
+    if not fit.estimates:
+        return Group(head, Text("No case to learn from: no sample pair with additions between them "
+                                "passed the checks below.", style="yellow"), notes)
+    level = f"{fit.confidence * 100:g} % CI"
+    table = Table(box=box.SIMPLE_HEAD, collapse_padding=True, pad_edge=False)
+    # Figures never wrap; a long material name does, so the table fits 80 columns.
+    table.add_column("Material", max_width=22)
+    for name, justify in (("El", "left"), ("Catalogue", "right"), ("Estimate", "right"),
+                          (level, "right"), ("Cases", "right"), ("Proposal", "left")):
+        table.add_column(name, justify=justify, no_wrap=True, min_width=len(name))
+    for found in fit.estimates:
+        interval = "–" if found.ci_low is None else f"{found.ci_low:.3f}–{found.ci_high:.3f}"
+        if found.propose:
+            proposal = Text(f"→ {found.proposed:g}", style="bold green")
+        elif found.cases < fit.min_cases:
+            proposal = Text("too few cases", style="dim")
+        elif found.ci_low is not None and found.ci_low <= found.catalogue <= found.ci_high:
+            proposal = Text("keep", style="dim")
+        else:
+            proposal = Text("data contradict the balance", style="yellow")
+        table.add_row(found.material, found.element, _fraction(found.catalogue), _fraction(found.estimate),
+                      interval, str(found.cases), proposal)
+    return Group(head, table, notes)

@@ -1,0 +1,238 @@
+"""Recoveries learnt from the logbook: the mass balance inverted, the least squares, the skips."""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import replace
+from datetime import datetime, timedelta
+from pathlib import Path
+from types import MappingProxyType
+
+import numpy as np
+import pytest
+
+from meltfix.analysis import Analysis
+from meltfix.demo_logbook import build_demo_logbook
+from meltfix.heat import Heat
+from meltfix.logbook import Logbook
+from meltfix.massbalance import bath_after
+from meltfix.planner import Planner
+from meltfix.recipes import Material, RecipeBook, load_recipes
+from meltfix.recovery_fit import (RecoveryEstimate, RecoveryFit, fit_logbook, pair_cases, toml_snippet,
+                                  weighted_ratio)
+from meltfix.spectro import default_curve
+from meltfix.uncertainty import R_TO_SIGMA
+
+# A manganese alloy (balance iron), a silicon alloy and a silicomanganese, so cases can be worked by hand.
+MATERIALS = """
+[[material]]
+name = "FeMn test"
+price_per_kg = 1.4
+composition = { Mn = 80.0 }
+recovery = { Mn = 0.90 }
+
+[[material]]
+name = "FeSi test"
+price_per_kg = 1.6
+composition = { Si = 75.0 }
+recovery = { Si = 0.80 }
+
+[[material]]
+name = "SiMn test"
+price_per_kg = 1.3
+composition = { Mn = 66.0, Si = 17.0 }
+recovery = { Mn = 0.90, Si = 0.80 }
+"""
+GRADE = """
+name = "Test steel"
+[window]
+C = [0.10, 0.60]
+Si = [0.10, 0.60]
+Mn = [0.30, 1.60]
+"""
+TRUE_MN_RECOVERY = 0.80  # what the bath really takes up from "FeMn test"; the recipe book says 0.90
+DAY = datetime(2026, 3, 9, 6, 0)
+
+
+@pytest.fixture(scope="module")
+def hand_book(tmp_path_factory: pytest.TempPathFactory) -> RecipeBook:
+    folder = tmp_path_factory.mktemp("book")
+    (folder / "grades").mkdir()
+    (folder / "materials.toml").write_text(MATERIALS, encoding="utf-8")
+    (folder / "grades" / "test.toml").write_text(GRADE, encoding="utf-8")
+    return load_recipes(folder)
+
+
+def _really(material: Material) -> Material:
+    """The material as the bath really takes it: Mn recovery of "FeMn test" lower than the book's."""
+    if material.name != "FeMn test":
+        return material
+    return replace(material, recovery=MappingProxyType({**material.recovery, "Mn": TRUE_MN_RECOVERY}))
+
+
+def _measured(true_pct: dict[str, float], rng: np.random.Generator | None) -> Analysis:
+    """The spectrometer's reading: exact, or with normal scatter of sigma = r(c) / 2.8 rounded as printed."""
+    if rng is None:
+        return Analysis(dict(true_pct))
+    return Analysis({s: round(p + float(rng.normal(0.0, default_curve(s).limit_pct(p) / R_TO_SIGMA)), 3)
+                     for s, p in true_pct.items()})
+
+
+def _write_week(path: Path, book: RecipeBook, rng: np.random.Generator | None, heats: int = 14) -> None:
+    """Heats of two samples each with a manganese trim between them (every third a silicon trim
+    instead), plus one heat with a third sample after a 5 kg top-up, and one whose manganese comes
+    half from each manganese alloy. Each heat has one alloy whose recovery is unknown to the fit, so
+    the bath it grows is exact and so is every estimate when the analyses are."""
+    layout = np.random.default_rng(7)  # the heats themselves do not depend on the noise
+    planner = Planner(book)
+    with Logbook(path, book) as logbook:
+        for k in range(heats + 2):
+            heat_id, when = f"T-{k + 1}", DAY + timedelta(hours=2 * k)
+            bath_kg = float(layout.uniform(15_000, 25_000))
+            true_pct = {"C": float(layout.uniform(0.15, 0.30)), "Si": float(layout.uniform(0.15, 0.25)),
+                        "Mn": float(layout.uniform(0.35, 0.60))}
+            first = _measured(true_pct, rng)
+            logbook.record_sample(heat_id, "S1", first, when=when)
+            heat = Heat(heat_id, "Test steel", bath_kg, first)
+            plan_id = logbook.record_plan(heat, planner.plan(heat), when + timedelta(minutes=2))
+            made = [("FeMn test", 5.0 * round(float(layout.uniform(80, 200)) / 5.0))]
+            if k % 3 == 0:
+                made = [("FeSi test", 5.0 * round(float(layout.uniform(30, 60)) / 5.0))]
+            if k == heats + 1:  # manganese half from each alloy: no single material to credit
+                made = [("FeMn test", 60.0), ("SiMn test", 75.0)]
+            logbook.record_additions(heat_id, made, plan_id, when + timedelta(minutes=4))
+            true_kg, true_pct = bath_after(bath_kg, true_pct, [(_really(book.material(m)), kg) for m, kg in made])
+            logbook.record_sample(heat_id, "S2", _measured(true_pct, rng), when=when + timedelta(minutes=12))
+            if k == heats:  # a 5 kg top-up: a rise of about 0.02 % Mn, well inside the analysis scatter
+                logbook.record_additions(heat_id, [("FeMn test", 5.0)], None, when + timedelta(minutes=15))
+                true_kg, true_pct = bath_after(true_kg, true_pct, [(_really(book.material("FeMn test")), 5.0)])
+                logbook.record_sample(heat_id, "S3", _measured(true_pct, rng), when=when + timedelta(minutes=25))
+
+
+def _fit(tmp_path: Path, book: RecipeBook, rng: np.random.Generator | None) -> RecoveryFit:
+    path = tmp_path / ("noisy.sqlite" if rng is not None else "exact.sqlite")
+    _write_week(path, book, rng)
+    with Logbook(path, book, create=False) as logbook:
+        return fit_logbook(logbook, book)
+
+
+def _one(fit: RecoveryFit, material: str, element: str):
+    (found,) = [e for e in fit.estimates if (e.material, e.element) == (material, element)]
+    return found
+
+
+def test_one_case_inverts_the_mass_balance_exactly(hand_book: RecipeBook) -> None:
+    # By hand (DESIGN §2), 40 kg of an alloy of 80 % Mn (balance iron) into 10 000 kg at 0.50 % Mn with a
+    # true recovery 0.80: Mn 50 + 40 x 0.80 x 0.80 = 75.6 kg; bath 10 000 + 40 x (0.64 + 0.20) = 10 033.6 kg;
+    # c2 = 75.6 / 10 033.6. The estimator does not know r: with the book's 0.90 the bath would be
+    # 10 000 + 40 x (0.72 + 0.20) = 10 036.8 kg, of which 28.8 kg is this alloy's Mn, so
+    # D = c2 (10 036.8 - 28.8) - 50 and A = 32 (1 - c2); D / A = (75.6 x 10 008 / 10 033.6 - 50)
+    # / (32 x 9 958 / 10 033.6) = (75.6 x 10 008 - 50 x 10 033.6) / (32 x 9 958) = 254 924.8 / 318 656 = 0.80.
+    femn = hand_book.material("FeMn test")
+    c2_pct = 100.0 * 75.6 / 10_033.6
+    cases, skipped = pair_cases("H", "S1", "S2", 10_000.0, Analysis({"Mn": 0.50}), Analysis({"Mn": c2_pct}),
+                                [(femn, 40.0)])
+    assert skipped == []
+    (case,) = cases
+    assert case.basis_kg == pytest.approx(32 * 9_958 / 10_033.6, rel=1e-12)
+    assert case.implied == pytest.approx(254_924.8 / 318_656, abs=1e-12)
+    assert case.implied == pytest.approx(0.80, abs=1e-12)
+
+
+def test_weighted_ratio_matches_least_squares_and_the_t_table() -> None:
+    basis = np.array([1.0, 2.0, 3.0, 4.0, 5.0])
+    dissolved = 0.8 * basis + np.array([0.01, -0.02, 0.0, 0.02, -0.01])
+    weight = np.array([1.0, 2.0, 0.5, 1.0, 4.0])
+    slope, std_error, half = weighted_ratio(basis, dissolved, weight, np.zeros(5, dtype=int))
+    # Reference: NumPy's least squares on the system scaled by sqrt(w).
+    root = np.sqrt(weight)
+    (expected,), (ssr,), *_ = np.linalg.lstsq((root * basis)[:, None], root * dissolved, rcond=None)
+    assert slope[0] == pytest.approx(expected, rel=1e-12)
+    assert std_error[0] == pytest.approx(np.sqrt(ssr / 4 / np.sum(weight * basis**2)), rel=1e-9)
+    # Student's t, 0.975 quantile with 4 degrees of freedom: 2.776 (NIST/SEMATECH e-Handbook of
+    # Statistical Methods, table of critical values of the t distribution, §1.3.6.7.2; from memory).
+    assert half[0] / std_error[0] == pytest.approx(2.776, abs=5e-4)
+
+
+def test_a_single_case_has_an_estimate_but_no_interval() -> None:
+    slope, std_error, half = weighted_ratio(np.array([2.0, 1.0, 3.0]), np.array([1.6, 0.8, 2.5]),
+                                            np.ones(3), np.array([0, 1, 1]))
+    assert slope[0] == pytest.approx(0.8) and np.isnan(std_error[0]) and np.isnan(half[0])
+    assert np.isfinite(half[1])
+
+
+def test_without_noise_the_estimate_is_the_true_recovery(tmp_path: Path, hand_book: RecipeBook) -> None:
+    fit = _fit(tmp_path, hand_book, rng=None)
+    mn = _one(fit, "FeMn test", "Mn")
+    assert mn.estimate == pytest.approx(TRUE_MN_RECOVERY, abs=1e-9)
+    assert mn.cases == 10 and mn.propose
+    # The silicon alloy behaves as the book says, is found to, and gets no proposal.
+    si = _one(fit, "FeSi test", "Si")
+    assert si.estimate == pytest.approx(0.80, abs=1e-9) and not si.propose
+
+
+def test_with_analysis_scatter_the_interval_holds_the_truth_and_the_update_is_proposed(
+        tmp_path: Path, hand_book: RecipeBook) -> None:
+    fit = _fit(tmp_path, hand_book, rng=np.random.default_rng(20260309))
+    mn = _one(fit, "FeMn test", "Mn")
+    assert mn.ci_low < TRUE_MN_RECOVERY < mn.ci_high < 0.90
+    assert mn.propose and mn.proposed == pytest.approx(round(mn.estimate, 2))
+    assert [(e.material, e.element) for e in fit.proposals] == [("FeMn test", "Mn")]
+    assert fit.to_json()["estimates"][0].keys() == {"material", "element", "catalogue", "estimate", "ci_low",
+                                                    "ci_high", "cases", "propose"}
+
+    snippet = toml_snippet(fit, hand_book)
+    assert tomllib.loads(snippet) == {"recovery": {"Mn": mn.proposed}}
+
+
+def test_the_snippet_keeps_the_other_elements_of_the_material(hand_book: RecipeBook) -> None:
+    proposal = RecoveryEstimate("SiMn test", "Mn", 0.90, 0.8234, 0.80, 0.85, 0.01, 12, True)
+    fit = RecoveryFit((proposal,), (), (), 12, (), 5, 0.95)
+    snippet = toml_snippet(fit, hand_book)
+    assert snippet.splitlines()[0] == '# [[material]] name = "SiMn test": replace its recovery line with'
+    # Silicon keeps the book's 0.80: pasting the line in place of the old one loses nothing.
+    assert tomllib.loads(snippet) == {"recovery": {"Mn": 0.82, "Si": 0.8}}
+    assert "Mn was 0.9, 12 cases, 95 % CI 0.800-0.850" in snippet
+    assert toml_snippet(RecoveryFit((replace(proposal, propose=False),), (), (), 12, (), 5, 0.95), hand_book) == ""
+
+
+def test_small_rises_and_shared_elements_are_skipped_and_said_so(tmp_path: Path, hand_book: RecipeBook) -> None:
+    fit = _fit(tmp_path, hand_book, rng=None)
+    small = [(s.heat_id, s.sample_from, s.sample_to, s.element) for s in fit.skipped if s.reason == "small rise"]
+    assert ("T-15", "S2", "S3", "Mn") in small
+    # The top-up's predicted rise, 5 x 0.80 x 0.90 / ~20 t = about 0.02 % Mn, is under three repeatability
+    # limits (3 x 0.018 x sqrt(0.9 %) = 0.05 % by the spectrometer's curve).
+    assert not any(c.sample_to == "S3" for c in fit.cases)
+    mixed = [(s.heat_id, s.element) for s in fit.skipped if s.reason == "mixed"]
+    assert mixed == [("T-16", "Mn")]
+    notes = " ".join(fit.notes)
+    assert "under 3 repeatability limits" in notes and "no single material brought 80 %" in notes
+    assert fit.to_json()["skipped"] == len(fit.skipped)
+
+
+def test_a_heat_that_cannot_be_read_is_named_not_fatal(tmp_path: Path, hand_book: RecipeBook) -> None:
+    path = tmp_path / "log.sqlite"
+    with Logbook(path, hand_book) as logbook:  # two samples and an addition, but never planned
+        logbook.record_sample("U-1", "S1", Analysis({"Mn": 0.4}), when=DAY)
+        logbook.record_additions("U-1", [("FeMn test", 100.0)], None, DAY + timedelta(minutes=3))
+        logbook.record_sample("U-1", "S2", Analysis({"Mn": 0.8}), when=DAY + timedelta(minutes=10))
+        fit = fit_logbook(logbook, hand_book)
+    assert fit.estimates == () and fit.heats == 1
+    assert fit.heats_skipped[0].startswith("U-1 (plans: the heat was never planned")
+
+
+def test_on_the_demo_week_the_estimates_land_near_the_simulated_recoveries(tmp_path: Path) -> None:
+    book = load_recipes()
+    path = tmp_path / "demo.sqlite"
+    build_demo_logbook(path, book)
+    with Logbook(path, create=False) as logbook:
+        fit = fit_logbook(logbook, book)
+    # meltfix.demo_logbook scales each heat's recoveries by a factor drawn from N(0.98, 0.03) (clipped
+    # to 0.85..1.05, a recovery never above 1) and weighs the bath with a 2 % scatter: on average the
+    # bath takes up 0.98 of the book's recovery.
+    solid = [e for e in fit.estimates if e.cases >= 8]
+    assert len(solid) >= 5
+    for found in solid:
+        assert found.estimate == pytest.approx(min(0.98 * found.catalogue, 1.0), abs=0.03), found
+    inside = [e.ci_low <= min(0.98 * e.catalogue, 1.0) <= e.ci_high for e in solid]
+    assert sum(inside) >= 0.8 * len(solid)
