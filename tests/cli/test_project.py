@@ -63,3 +63,14 @@ def test_wheel_carries_recipes_and_demo(tmp_path: Path) -> None:
     out = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, env={"PYTHONPATH": str(site), "PATH": ""},
                          capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
+
+
+def test_readme_heat_example_plans(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """The HEAT.toml shown in the README is a real heat file for the built-in shop."""
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    example = re.search(r"```toml\n(.*?)```", readme, re.S)
+    assert example is not None
+    heat = tmp_path / "example.toml"
+    heat.write_text(example.group(1), encoding="utf-8")
+    assert main(["solve", str(heat), "--json"]) == 0
+    assert '"status": "optimal"' in capsys.readouterr().out
