@@ -17,7 +17,7 @@ import json
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from meltfix.commands.report import parse_date
+from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
 from meltfix.errors import InputError
 
 if TYPE_CHECKING:
@@ -27,15 +27,7 @@ if TYPE_CHECKING:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    source = parser.add_mutually_exclusive_group()
-    source.add_argument("--logbook", metavar="PATH", type=Path,
-                        help="logbook file (default: $MELTFIX_LOGBOOK, else meltfix/logbook.sqlite in the "
-                        "user's data folder)")
-    source.add_argument("--demo", action="store_true",
-                        help="the demo shop's week of heats (built on first use, a few seconds)")
-    parser.add_argument("--from", dest="date_from", metavar="DATE",
-                        help="first day, YYYY-MM-DD (heats that started on or after it)")
-    parser.add_argument("--to", dest="date_to", metavar="DATE", help="last day, YYYY-MM-DD (inclusive)")
+    add_logbook_arguments(parser)
     parser.add_argument("--min-cases", metavar="N", default="5",
                         help="fewest cases (sample pairs) before an update is proposed (default: 5)")
     parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
@@ -51,24 +43,13 @@ def _min_cases(value: object) -> int:
 
 
 def run(args: argparse.Namespace) -> int:
-    from meltfix.logbook import Logbook, default_logbook_path
+    from meltfix.logbook import Logbook
     from meltfix.recipes import load_recipes
 
-    date_from = parse_date(args.date_from, "--from") if args.date_from else None
-    date_to = parse_date(args.date_to, "--to") if args.date_to else None
-    if date_from and date_to and date_from > date_to:
-        raise InputError("command line", "--from", f"{date_from} is after --to {date_to}")
+    date_from, date_to = date_range(args)
     min_cases = _min_cases(args.min_cases)
     book = load_recipes(args.recipes)
-    if args.demo:
-        from meltfix.demo_logbook import demo_logbook_path
-
-        path = demo_logbook_path()
-    else:
-        path = args.logbook or default_logbook_path()
-        if not path.exists():
-            raise InputError(path, "", "no logbook here yet (one is created when the first heat is recorded); "
-                                       "`meltfix recoveries --demo` shows the demo shop's week")
+    path = logbook_to_read(args, "recoveries")
     from meltfix.recovery_fit import fit_logbook, toml_snippet
 
     with Logbook(path, create=False) as logbook:

@@ -9,64 +9,32 @@ from __future__ import annotations
 
 import argparse
 import math
-import re
-from datetime import date
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from meltfix.errors import InputError
+from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
 
 if TYPE_CHECKING:
     from rich.console import RenderableType
 
     from meltfix.report import CostReport
 
-_ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
 _EIGHTHS = " ▏▎▍▌▋▊▉"
 BAR_WIDTH = 24
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--from", dest="date_from", metavar="DATE",
-                        help="first day of the report, YYYY-MM-DD (heats that started on or after it)")
-    parser.add_argument("--to", dest="date_to", metavar="DATE", help="last day of the report, YYYY-MM-DD (inclusive)")
+    add_logbook_arguments(parser)
     parser.add_argument("--csv", metavar="FILE", type=Path, help="also write one row per heat, with its cost, as CSV")
-    source = parser.add_mutually_exclusive_group()
-    source.add_argument("--logbook", metavar="PATH", type=Path,
-                        help="logbook file (default: $MELTFIX_LOGBOOK, else meltfix/logbook.sqlite in the "
-                        "user's data folder)")
-    source.add_argument("--demo", action="store_true",
-                        help="the demo shop's week of heats (built on first use, a few seconds)")
-
-
-def parse_date(text: str, option: str) -> date:
-    """An ISO date (YYYY-MM-DD) from the command line, or an InputError naming the option."""
-    if not _ISO_DATE.match(text):
-        raise InputError("command line", option, f"'{text}' is not a date in the form YYYY-MM-DD")
-    try:
-        return date.fromisoformat(text)
-    except ValueError as exc:
-        raise InputError("command line", option, f"'{text}' is not a real date ({exc})") from None
 
 
 def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
-    from meltfix.logbook import Logbook, default_logbook_path
+    from meltfix.logbook import Logbook
 
-    date_from = parse_date(args.date_from, "--from") if args.date_from else None
-    date_to = parse_date(args.date_to, "--to") if args.date_to else None
-    if date_from and date_to and date_from > date_to:
-        raise InputError("command line", "--from", f"{date_from} is after --to {date_to}")
-    if args.demo:
-        from meltfix.demo_logbook import demo_logbook_path
-
-        path = demo_logbook_path()
-    else:
-        path = args.logbook or default_logbook_path()
-        if not path.exists():
-            raise InputError(path, "", "no logbook here yet (one is created when the first heat is recorded); "
-                                       "`meltfix report --demo` shows the demo shop's week")
+    date_from, date_to = date_range(args)
+    path = logbook_to_read(args, "report")
     from meltfix.report import build_report, write_heats_csv
 
     with Logbook(path, create=False) as logbook:
