@@ -63,17 +63,29 @@ class Heat:
         return self.stock_kg.get(material.name, material.stock_kg)
 
     def drop_limit_c(self, settings: ShopSettings) -> float | None:
-        """Largest temperature drop the additions may cause [°C]: the heat's own, else the shop's;
-        None = not limited."""
-        return self.max_temp_drop_c if self.max_temp_drop_c is not None else settings.max_temp_drop_c
+        """Largest temperature drop the additions may cause [°C]: the heat's own, else its stage's,
+        else the shop's; None = not limited."""
+        if self.max_temp_drop_c is not None:
+            return self.max_temp_drop_c
+        stage = settings.stages.get(self.stage)
+        if stage is not None and stage.max_temp_drop_c is not None:
+            return stage.max_temp_drop_c
+        return settings.max_temp_drop_c
 
 
 def usable_materials(heat: Heat, book: RecipeBook) -> list[Material]:
-    """The book's materials this heat may receive: not switched off, and not forbidden by its grade
-    unless locked (a lock is the user's explicit choice), in the book's order."""
+    """The book's materials this heat may receive, as they behave at the heat's stage (its
+    recoveries there): allowed at the stage, not switched off, and not forbidden by its grade unless
+    locked (a lock is the user's explicit choice), in the book's order."""
     forbidden = book.grade(heat.grade).forbidden
-    return [m for m in book.materials
-            if m.name not in heat.switched_off and (m.name not in forbidden or m.name in heat.locked_kg)]
+    return [m.at_stage(heat.stage) for m in book.materials
+            if m.allowed_at(heat.stage) and m.name not in heat.switched_off
+            and (m.name not in forbidden or m.name in heat.locked_kg)]
+
+
+def stage_material(heat: Heat, book: RecipeBook, name: str) -> Material:
+    """The book's material ``name`` as it behaves at the heat's stage (its recoveries there)."""
+    return book.material(name).at_stage(heat.stage)
 
 
 def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat:
@@ -89,6 +101,9 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
         if heat.capacity_kg < heat.bath_kg:
             raise InputError(source, "capacity_kg",
                              f"{heat.capacity_kg:g} kg is less than the bath itself ({heat.bath_kg:g} kg)")
+    if heat.stage not in book.settings.stages:
+        raise InputError(source, "stage", f"'{heat.stage}' is not a stage of this shop (shop.toml lists: "
+                         f"{', '.join(book.settings.stages)})")
     if heat.dissolved_o_ppm is not None and not 0 <= heat.dissolved_o_ppm <= _MAX_DISSOLVED_O_PPM:
         raise InputError(source, "dissolved_o_ppm", f"{heat.dissolved_o_ppm!r} ppm is outside 0..{_MAX_DISSOLVED_O_PPM:g} "
                          "ppm (oxygen saturates liquid iron at about 2300 ppm)")
@@ -107,6 +122,9 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
             raise InputError(source, f"lock_kg.{name}", "is locked but also switched off")
         if name in book.grades[heat.grade].forbidden:
             raise InputError(source, f"lock_kg.{name}", f"grade '{heat.grade}' forbids this material")
+        if not book.material(name).allowed_at(heat.stage):
+            raise InputError(source, f"lock_kg.{name}", f"is not added at the {heat.stage} (its stages: "
+                             f"{', '.join(sorted(book.material(name).stages or ()))})")
     return heat
 
 

@@ -30,6 +30,10 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
             anywhere = [m.name for m in book.materials if m.yield_pct(element) > low]
             if not anywhere:
                 return f"No material in the recipe book carries {element}."
+            elsewhere = _other_stages(heat, book, [m for m in book.materials if m.yield_pct(element) > low])
+            if elsewhere:
+                return (f"No material that carries {element} may go in at the {heat.stage}: raising it needs "
+                        f"the {elsewhere}.")
             return (f"No usable material carries {element} (those that do are switched off or forbidden "
                     f"for this grade: {', '.join(anywhere)}).")
         stocked = [m for m in carriers if heat.material_stock_kg(m) != 0]
@@ -61,6 +65,10 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
     clean = [m for m in usable if m.kind == "dilution" and m.composition_pct.get(element, 0.0) < high]
     figures = f"{element} is {now:g} % against a maximum of {high:g} %: it needs about {needed_kg:,.0f} kg of clean material"
     if not clean:
+        elsewhere = _other_stages(heat, book, [m for m in book.materials if m.kind == "dilution"
+                                         and m.composition_pct.get(element, 0.0) < high])
+        if elsewhere:
+            return f"{figures}, but none may go in at the {heat.stage}: dilution needs the {elsewhere}; {remedy}."
         return f"{figures}, but no clean dilution material is usable; {remedy}."
     if free_kg is not None and needed_kg > free_kg:
         return f"{figures} but only {free_kg:,.0f} kg of capacity is free; {remedy}."
@@ -68,3 +76,10 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
     if all(s is not None for s in stock) and needed_kg > sum(stock):  # type: ignore[arg-type]
         return f"{figures} but only {sum(stock):,.0f} kg of clean material is in stock; {remedy}."  # type: ignore[arg-type]
     return f"{figures} ({added_kg:,.0f} kg is all the plan can add within its limits); {remedy}."
+
+
+def _other_stages(heat: Heat, book: RecipeBook, materials: Sequence[Material]) -> str:
+    """The stages other than the heat's where some of ``materials`` may go, in words ("furnace"),
+    in the shop's order; empty when none of them is barred from the heat's stage."""
+    barred = {s for m in materials if not m.allowed_at(heat.stage) for s in m.stages or ()}
+    return " or the ".join(s for s in book.settings.stages if s in barred)

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import math
 import tomllib
-from collections.abc import Mapping
-from dataclasses import dataclass, field
+from collections.abc import Collection, Mapping
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -19,6 +19,11 @@ from meltfix.elements import element_sort_key, normalise_symbol
 from meltfix.errors import InputError
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
+ADDITION_CLASSES = ("scrap", "treatment", "deoxidiser", "bulk alloy", "carbon", "trim", "late", "wire")
+"""Where a material comes in the order of additions; the shop's ``addition_order`` ranks them."""
+# The class a material takes when its entry names none: by its kind (a wire is told by kg_per_m).
+_CLASS_OF_KIND = {"alloy": "bulk alloy", "carbon": "carbon", "metal": "bulk alloy", "dilution": "scrap",
+                  "deoxidiser": "deoxidiser", "other": "trim"}
 
 
 @dataclass(frozen=True)
@@ -43,6 +48,25 @@ class Material:
     kind: str = "alloy"
     standard: str = ""
     notes: str = ""
+    stages: frozenset[str] | None = None
+    """Stages this material may be added at (shop.toml ``[stage.NAME]``); None = every stage."""
+    recovery_by_stage: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
+    """Recoveries [0..1] that differ at a stage: stage -> element -> fraction, over ``recovery``."""
+    addition_class: str = "bulk alloy"
+    """Where the material comes in the order of additions (one of ADDITION_CLASSES)."""
+    kg_per_m: float | None = None
+    """Mass of cored or solid wire per metre [kg/m]; None = not a wire."""
+
+    def allowed_at(self, stage: str) -> bool:
+        """Whether the material may be added at ``stage``."""
+        return self.stages is None or stage in self.stages
+
+    def at_stage(self, stage: str) -> "Material":
+        """The material as it behaves at ``stage``: that stage's recoveries over the general ones."""
+        changes = self.recovery_by_stage.get(stage)
+        if not changes:
+            return self
+        return replace(self, recovery=MappingProxyType({**self.recovery, **changes}))
 
     def yield_pct(self, symbol: str) -> float:
         """Content of ``symbol`` that reaches the bath [wt % of the material]."""
@@ -87,6 +111,27 @@ class Grade:
 
 
 @dataclass(frozen=True)
+class Stage:
+    """A place in the shop where additions go (furnace, ladle, ladle furnace), from ``[stage.NAME]``."""
+
+    name: str
+    max_temp_drop_c: float | None = None
+    """Largest temperature drop the additions may cause here [°C]; None = the shop's setting."""
+    can_reheat: bool = False
+    """Whether the stage can put heat back into the bath (the arcs of a ladle furnace)."""
+    reheat_cost_per_c: float = 0.0
+    """Cost of heating [currency per °C per tonne of bath]."""
+    reheat_max_c: float = 0.0
+    """Most the stage may heat the bath before the next sample [°C]."""
+    reheat_c_per_min: float = 4.0
+    """Heating rate [°C/min], to say how long the heating takes (common practice: 3-5 °C/min)."""
+
+
+DEFAULT_STAGES: Mapping[str, Stage] = MappingProxyType({"furnace": Stage("furnace"), "ladle": Stage("ladle")})
+"""The stages of a shop whose shop.toml lists none."""
+
+
+@dataclass(frozen=True)
 class ShopSettings:
     """Shop-wide settings from ``shop.toml``; every field has a sensible default."""
 
@@ -102,6 +147,8 @@ class ShopSettings:
     """Most the additions may raise an element the grade sets no window for [wt %]."""
     spectrometer: Mapping[str, Any] = field(default_factory=dict)
     """The instrument's export layout, read by :mod:`meltfix.spectro`."""
+    stages: Mapping[str, Stage] = field(default_factory=lambda: DEFAULT_STAGES)
+    """The shop's stages by name, in the order shop.toml lists them."""
 
 
 @dataclass(frozen=True)
@@ -196,11 +243,14 @@ def known_keys(entry: Mapping[str, Any], allowed: set[str], source: object, wher
 
 
 _MATERIAL_KEYS = {"name", "price_per_kg", "composition", "recovery", "default_recovery", "stock_kg",
-                  "pack_kg", "min_kg", "chill_per_kg_t", "kind", "standard", "notes"}
+                  "pack_kg", "min_kg", "chill_per_kg_t", "kind", "standard", "notes", "stages",
+                  "recovery_by_stage", "addition_class", "kg_per_m"}
 
 
-def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Material:
-    """Build one Material from a ``[[material]]`` TOML table (``where`` prefixes field names)."""
+def parse_material(entry: Mapping[str, Any], source: object, where: str,
+                   stages: Collection[str] = tuple(DEFAULT_STAGES)) -> Material:
+    """Build one Material from a ``[[material]]`` TOML table (``where`` prefixes field names);
+    ``stages`` are the shop's stage names, which ``stages`` and ``recovery_by_stage`` must use."""
     entry = table(entry, source, where.rstrip("."))
     name = text(require(entry, "name", source, where), source, f"{where}name")
     where = f"material '{name}'."
@@ -245,6 +295,12 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Mate
     kind = entry.get("kind", "alloy")
     if kind not in MATERIAL_KINDS:
         raise InputError(source, f"{where}kind", f"'{kind}' is not one of {', '.join(MATERIAL_KINDS)}")
+    kg_per_m = None if entry.get("kg_per_m") is None else number(entry["kg_per_m"], source, f"{where}kg_per_m",
+                                                                  positive=True)
+    addition_class = entry.get("addition_class", "wire" if kg_per_m is not None else _CLASS_OF_KIND[kind])
+    if addition_class not in ADDITION_CLASSES:
+        raise InputError(source, f"{where}addition_class",
+                         f"'{addition_class}' is not one of {', '.join(ADDITION_CLASSES)}")
     return Material(
         name=name,
         price_per_kg=price,
@@ -257,7 +313,46 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str) -> Mate
         kind=kind,
         standard=_optional_text(entry, "standard", source, where),
         notes=_optional_text(entry, "notes", source, where),
+        stages=_material_stages(entry, source, where, stages),
+        recovery_by_stage=_recovery_by_stage(entry, composition, source, where, stages),
+        addition_class=addition_class,
+        kg_per_m=kg_per_m,
     )
+
+
+def _stage_name(value: Any, source: object, field_name: str, stages: Collection[str]) -> str:
+    name = text(value, source, field_name)
+    if name not in stages:
+        raise InputError(source, field_name, f"'{name}' is not a stage of this shop (shop.toml lists: "
+                         f"{', '.join(stages)})")
+    return name
+
+
+def _material_stages(entry: Mapping[str, Any], source: object, where: str,
+                     stages: Collection[str]) -> frozenset[str] | None:
+    if "stages" not in entry:
+        return None
+    raw = entry["stages"]
+    if not isinstance(raw, list) or not raw:
+        raise InputError(source, f"{where}stages", f"expected a non-empty list of stage names, got {raw!r}")
+    return frozenset(_stage_name(name, source, f"{where}stages", stages) for name in raw)
+
+
+def _recovery_by_stage(entry: Mapping[str, Any], composition: Mapping[str, float], source: object, where: str,
+                       stages: Collection[str]) -> Mapping[str, Mapping[str, float]]:
+    """``recovery_by_stage = { ladle = { C = 0.70 } }``: per stage, the recoveries that differ there."""
+    result: dict[str, Mapping[str, float]] = {}
+    for stage, raw in table(entry.get("recovery_by_stage", {}), source, f"{where}recovery_by_stage").items():
+        field_name = f"{where}recovery_by_stage.{stage}"
+        _stage_name(stage, source, field_name, stages)
+        changes = {}
+        for key, value in table(raw, source, field_name).items():
+            symbol = normalise_symbol(key, source, f"{field_name}.{key}")
+            if symbol not in composition:
+                raise InputError(source, f"{field_name}.{key}", f"{symbol} is not in the composition")
+            changes[symbol] = _recovery(value, source, f"{field_name}.{key}")
+        result[stage] = MappingProxyType(changes)
+    return MappingProxyType(result)
 
 
 def _optional_text(entry: Mapping[str, Any], key: str, source: object, where: str) -> str:
@@ -274,7 +369,7 @@ def _recovery(value: Any, source: object, field_name: str) -> float:
     return result
 
 
-def load_materials(folder: Path) -> tuple[Material, ...]:
+def load_materials(folder: Path, stages: Collection[str] = tuple(DEFAULT_STAGES)) -> tuple[Material, ...]:
     files = [folder / "materials.toml"]
     extra = folder / "materials"
     if extra.is_dir():
@@ -290,7 +385,7 @@ def load_materials(folder: Path) -> tuple[Material, ...]:
             if key != "material":
                 raise InputError(path, key, "unknown key (a materials file holds only [[material]] entries)")
         for index, entry in enumerate(entries, start=1):
-            material = parse_material(entry, path, f"material #{index}.")
+            material = parse_material(entry, path, f"material #{index}.", stages)
             if material.name in seen:
                 raise InputError(path, f"material '{material.name}'",
                                  f"duplicate name (also in {seen[material.name].name})")
@@ -385,7 +480,38 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
-              "max_unlisted_rise_pct", "spectrometer"}
+              "max_unlisted_rise_pct", "spectrometer", "stage"}
+_STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
+
+
+def parse_stages(raw: Any, source: object) -> Mapping[str, Stage]:
+    """The ``[stage.NAME]`` tables of shop.toml; none given = furnace and ladle."""
+    if raw is None:
+        return DEFAULT_STAGES
+    stages: dict[str, Stage] = {}
+    for name, spec in table(raw, source, "stage").items():
+        where = f"stage.{name}."
+        spec = table(spec, source, where.rstrip("."))
+        known_keys(spec, _STAGE_KEYS, source, where)
+        can_reheat = spec.get("can_reheat", False)
+        if not isinstance(can_reheat, bool):
+            raise InputError(source, f"{where}can_reheat", f"expected true or false, got {can_reheat!r}")
+        for key in ("reheat_cost_per_c", "reheat_max_c"):
+            if key in spec and not can_reheat:
+                raise InputError(source, f"{where}{key}", "is set but the stage cannot reheat (can_reheat = false)")
+        drop = spec.get("max_temp_drop_c")
+        stages[name] = Stage(
+            name=name,
+            max_temp_drop_c=None if drop is None else number(drop, source, f"{where}max_temp_drop_c"),
+            can_reheat=can_reheat,
+            reheat_cost_per_c=number(spec.get("reheat_cost_per_c", 0.0), source, f"{where}reheat_cost_per_c"),
+            reheat_max_c=number(spec.get("reheat_max_c", 0.0), source, f"{where}reheat_max_c"),
+            reheat_c_per_min=number(spec.get("reheat_c_per_min", Stage.reheat_c_per_min), source,
+                                    f"{where}reheat_c_per_min", positive=True),
+        )
+    if not stages:
+        raise InputError(source, "stage", "lists no stage (leave [stage] out for the default furnace and ladle)")
+    return MappingProxyType(stages)
 
 
 def load_settings(folder: Path) -> ShopSettings:
@@ -406,6 +532,7 @@ def load_settings(folder: Path) -> ShopSettings:
         max_unlisted_rise_pct=number(data.get("max_unlisted_rise_pct", defaults.max_unlisted_rise_pct),
                                      path, "max_unlisted_rise_pct"),
         spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
+        stages=parse_stages(data.get("stage"), path),
     )
 
 
@@ -418,6 +545,7 @@ def load_recipes(folder: Path | str | None = None) -> RecipeBook:
     folder = Path(folder)
     if not folder.is_dir():
         raise InputError(folder, "", "recipes folder not found")
-    materials = load_materials(folder)
+    settings = load_settings(folder)  # first: the materials name the shop's stages
+    materials = load_materials(folder, tuple(settings.stages))
     grades = load_grades(folder, {m.name for m in materials})
-    return RecipeBook(materials=materials, grades=MappingProxyType(grades), settings=load_settings(folder), folder=folder)
+    return RecipeBook(materials=materials, grades=MappingProxyType(grades), settings=settings, folder=folder)

@@ -52,7 +52,7 @@ from typing import TYPE_CHECKING, Any
 from meltfix.analysis import Analysis, analysis_from_table
 from meltfix.elements import parse_number
 from meltfix.errors import InputError
-from meltfix.heat import Heat
+from meltfix.heat import Heat, stage_material
 from meltfix.massbalance import bath_after, temperature_drop_c
 # limit_checks is the planner's own window and index test; reused so "in spec" means one thing.
 from meltfix.planner import LIMIT_TOL_PCT, Addition, Plan, Planner, PlanOptions, limit_checks
@@ -472,7 +472,7 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
                 if a.minute >= sample.minute and (nxt is None or a.minute < nxt.minute)]
         actual = tuple(ActualAddition(a.clock, a.material, a.kg, a.kg * book.material(a.material).price_per_kg)
                        for a in made)
-        used = [(book.material(a.material), a.kg) for a in made]
+        used = [(stage_material(heat, book, a.material), a.kg) for a in made]
         final_kg, predicted = bath_after(bath_kg, sample.analysis.pct, used)
         measured = {} if nxt is None else nxt.analysis.pct
         steps.append(ReplayStep(
@@ -611,7 +611,7 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
     Raises InputError when the planner cannot find the cheapest plan to compare with.
     """
     grade = book.grade(step.heat.grade)
-    used = [(book.material(name), kg) for name, kg in entry]
+    used = [(stage_material(step.heat, book, name), kg) for name, kg in entry]
     final_kg, predicted = bath_after(step.bath_kg, step.sample.analysis.pct, used)
     breaks = []
     if step.heat.capacity_kg is not None and final_kg > step.heat.capacity_kg * (1 + 1e-9):
@@ -624,6 +624,8 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
         material = book.material(name)
         if name in grade.forbidden:
             breaks.append(f"grade {grade.name} must never receive {name}")
+        if not material.allowed_at(step.heat.stage):
+            breaks.append(f"{name} is not added at the {step.heat.stage}")
         if material.stock_kg is not None and kg > material.stock_kg + 1e-9:
             breaks.append(f"{kg:g} kg of {name} is more than the {material.stock_kg:g} kg in stock")
     best = (planner or Planner(book)).plan(step.heat, PlanOptions(use_aim=False))

@@ -21,7 +21,7 @@ from types import MappingProxyType
 import numpy as np
 
 from meltfix.deoxidation import aluminium_owed_pct
-from meltfix.heat import Heat
+from meltfix.heat import Heat, stage_material
 from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, PlanOptions, Planner, limit_checks, recheck
 from meltfix.recipes import Grade, LinearIndex, Material, RecipeBook
 from meltfix.spectro import default_curve
@@ -209,8 +209,10 @@ def _trial(heat: Heat, book: RecipeBook, draws: int, seed: int, spread: Spread) 
     grade = book.grade(heat.grade)
     # Every material of the book, used or not: the draws then do not depend on the plan, so plans
     # for one heat are compared on the same draws.
-    symbols = world_symbols(heat, grade, book.materials)
-    world = draw_world(heat, book.materials, symbols, draws, np.random.default_rng(seed), spread,
+    # The recoveries are those of the heat's stage (a raiser thrown into a ladle recovers less).
+    materials = [m.at_stage(heat.stage) for m in book.materials]
+    symbols = world_symbols(heat, grade, materials)
+    world = draw_world(heat, materials, symbols, draws, np.random.default_rng(seed), spread,
                        aluminium_owed_pct(heat, grade))
     return _Trial(world, {name: j for j, name in enumerate(book.material_names)}, draws, seed)
 
@@ -298,7 +300,7 @@ def robust_plan(heat: Heat, book: RecipeBook, level: float = 0.95, options: Plan
         candidate = Planner(tight_book).plan(heat, options)
         if candidate.status != "optimal":
             break  # the windows cannot tighten this far
-        used = [(book.material(a.material), a.kg) for a in candidate.additions]
+        used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
         candidate = replace(candidate, checks=recheck(heat, grade, used)[2])
         candidate_odds = _judge(trial, grade, candidate)[0]
         if candidate_odds.heat > best.odds.heat:

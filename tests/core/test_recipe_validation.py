@@ -20,6 +20,7 @@ kind = "alloy"
 price_per_kg = 1.4
 composition = { Mn = 78.0, C = 7.0 }
 recovery = { Mn = 0.9 }
+recovery_by_stage = { ladle = { C = 0.7 } }
 stock_kg = 500
 
 [[material]]
@@ -82,8 +83,8 @@ def write(folder: Path, files: Files) -> None:
             path.write_text(content, encoding="utf-8")
 
 
-MATERIAL_KEYS = ("chill_per_kg_t, composition, default_recovery, kind, min_kg, name, notes, pack_kg, "
-                 "price_per_kg, recovery, standard, stock_kg")
+MATERIAL_KEYS = ("addition_class, chill_per_kg_t, composition, default_recovery, kg_per_m, kind, min_kg, name, "
+                 "notes, pack_kg, price_per_kg, recovery, recovery_by_stage, stages, standard, stock_kg")
 
 # (case, change, file at fault relative to the folder, field, message)
 CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
@@ -160,11 +161,37 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
     ("typo in shop.toml", edit("shop.toml", "max_temp_drop_c", "max_temp_drop"),
      "shop.toml", "max_temp_drop",
      "unknown key (expected one of: aim_penalty, currency, large_addition_kg_per_t, max_temp_drop_c, "
-     "max_unlisted_rise_pct, shop_name, spectrometer)"),
+     "max_unlisted_rise_pct, shop_name, spectrometer, stage)"),
     ("negative temperature drop", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = -25.0"),
      "shop.toml", "max_temp_drop_c", "must not be negative, got -25.0"),
     ("grades folder missing", put("grades/g1.toml", None),
      ".", "grades/", "folder is missing"),
+    # Stages, addition classes and wire
+    ("material at an unknown stage", edit("materials.toml", "stock_kg = 500", 'stock_kg = 500\nstages = ["tundish"]'),
+     "materials.toml", "material 'FeMn'.stages", "'tundish' is not a stage of this shop (shop.toml lists: furnace, ladle)"),
+    ("stage the shop does not list", edit("shop.toml", "max_temp_drop_c = 25.0",
+                                          'max_temp_drop_c = 25.0\n[stage.furnace]\n[stage.lf]\ncan_reheat = true'),
+     "materials.toml", "material 'FeMn'.recovery_by_stage.ladle", "'ladle' is not a stage of this shop (shop.toml lists: furnace, lf)"),
+    ("empty stage list", edit("materials.toml", "stock_kg = 500", "stock_kg = 500\nstages = []"),
+     "materials.toml", "material 'FeMn'.stages", "expected a non-empty list of stage names, got []"),
+    ("stage recovery of an absent element", edit("materials.toml", "recovery_by_stage = { ladle = { C = 0.7 } }",
+                                                 "recovery_by_stage = { ladle = { Si = 0.7 } }"),
+     "materials.toml", "material 'FeMn'.recovery_by_stage.ladle.Si", "Si is not in the composition"),
+    ("stage recovery 1.5", edit("materials.toml", "{ C = 0.7 }", "{ C = 1.5 }"),
+     "materials.toml", "material 'FeMn'.recovery_by_stage.ladle.C", "recovery must be above 0 and at most 1, got 1.5"),
+    ("negative kg_per_m", edit("materials.toml", "stock_kg = 500", "stock_kg = 500\nkg_per_m = -0.2"),
+     "materials.toml", "material 'FeMn'.kg_per_m", "must be above 0, got -0.2"),
+    ("unknown addition class", edit("materials.toml", "stock_kg = 500", 'stock_kg = 500\naddition_class = "early"'),
+     "materials.toml", "material 'FeMn'.addition_class",
+     "'early' is not one of scrap, treatment, deoxidiser, bulk alloy, carbon, trim, late, wire"),
+    ("typo in a stage", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = 25.0\n[stage.lf]\ncan_reheet = true"),
+     "shop.toml", "stage.lf.can_reheet",
+     "unknown key (expected one of: can_reheat, max_temp_drop_c, reheat_c_per_min, reheat_cost_per_c, reheat_max_c)"),
+    ("reheat cost at a stage without heating", edit("shop.toml", "max_temp_drop_c = 25.0",
+                                                    "max_temp_drop_c = 25.0\n[stage.ladle]\nreheat_cost_per_c = 0.1"),
+     "shop.toml", "stage.ladle.reheat_cost_per_c", "is set but the stage cannot reheat (can_reheat = false)"),
+    ("can_reheat not a boolean", edit("shop.toml", "max_temp_drop_c = 25.0", '[stage.lf]\ncan_reheat = "yes"'),
+     "shop.toml", "stage.lf.can_reheat", "expected true or false, got 'yes'"),
 ]
 
 

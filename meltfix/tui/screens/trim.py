@@ -53,7 +53,7 @@ MOVING_KEYS = (
     ("↓ ↑", "next / previous field of the heat and the analysis (scroll in the plan)"),
     ("Enter", "next cell; on the grade: pick the grade; on the stage: change it"),
     ("letters on the grade", "open the grade picker filtered by what you type"),
-    ("← → Space on the stage", "step between ladle and furnace"),
+    ("← → Space on the stage", "step through the shop's stages"),
     ("Ctrl+P", "command palette: every action by name"),
     ("Ctrl+Q", "quit"),
 )
@@ -123,7 +123,8 @@ class TrimScreen(Screen[None]):
             with VerticalScroll(id="inputs") as inputs:
                 inputs.border_title = "Heat"
                 yield HeatForm(heat.grade, f"{heat.bath_kg:g}",
-                               "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage, id="form")
+                               "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage,
+                               stages=tuple(self.book.settings.stages), id="form")
                 yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
             yield PlanView(id="plan")
         yield Footer(compact=True, show_command_palette=False)

@@ -75,11 +75,12 @@ class CycleField(Static, can_focus=True):
 class HeatForm(Vertical):
     """Grade, bath, capacity and stage; typing posts Input.Changed, the screen does the rest."""
 
-    STAGES = ("ladle", "furnace")
-
-    def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, *, id: str | None = None) -> None:
+    def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, *,
+                 stages: tuple[str, ...] = ("furnace", "ladle"), id: str | None = None) -> None:
         super().__init__(id=id)
         self._initial = (grade, bath_text, capacity_text, stage)
+        self._stages = stages
+        """The shop's stages, in its order (shop.toml ``[stage.NAME]``)."""
 
     def compose(self) -> ComposeResult:
         grade, bath_text, capacity_text, stage = self._initial
@@ -98,7 +99,7 @@ class HeatForm(Vertical):
         yield ReasonLine(id="reason-capacity")
         with Horizontal(classes="form-row"):
             yield Label("Stage", classes="form-label")
-            yield CycleField(self.STAGES, stage, id="stage")
+            yield CycleField(self._stages, stage, id="stage")
 
     @property
     def grade(self) -> str:
