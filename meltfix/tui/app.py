@@ -9,12 +9,16 @@ first opened, which keeps them off the trim screen's start-up.
 from __future__ import annotations
 
 import importlib
+from collections.abc import Iterator
 from pathlib import Path
 
-from textual.app import App
+from textual.app import App, SystemCommand
+from textual.binding import Binding
+from textual.screen import Screen
 
 from meltfix.heat import Heat
 from meltfix.recipes import RecipeBook
+from meltfix.tui.keys import key_name
 from meltfix.tui.screens.trim import TrimScreen
 
 EXTRA_SCREENS = {
@@ -26,6 +30,11 @@ EXTRA_SCREENS = {
 class MeltfixApp(App[None]):
     CSS_PATH = "app.tcss"
     TITLE = "meltfix"
+    # Keys that mean the same on every screen (with the framework's Ctrl+Q quit and Ctrl+P palette).
+    BINDINGS = [
+        Binding("ctrl+l", "toggle_dark", "Light/dark", show=False, tooltip="Switch between light and dark colours",
+                id="app.dark"),
+    ]
 
     def __init__(self, book: RecipeBook, heat: Heat, *, heat_path: Path | None = None,
                  logbook_path: Path | None = None, tickets_dir: Path | None = None, light: bool = False) -> None:
@@ -44,6 +53,17 @@ class MeltfixApp(App[None]):
         # Pushed rather than returned by get_default_screen, which would skip the screen's CSS_PATH.
         self.push_screen(TrimScreen(self.book, self.heat, heat_path=self.heat_path, logbook_path=self.logbook_path,
                                     tickets_dir=self.tickets_dir))
+
+    def get_key_display(self, binding: Binding) -> str:
+        """Every key in the house spelling (meltfix.tui.keys), in the footer, help and palette alike."""
+        return binding.key_display or key_name(binding.key)
+
+    def get_system_commands(self, screen: Screen) -> Iterator[SystemCommand]:
+        # The framework's "Keys" panel repeats our own help (F1) in other words: leave it out.
+        yield from (command for command in super().get_system_commands(screen) if command.title != "Keys")
+
+    def action_toggle_dark(self) -> None:
+        self.theme = "textual-light" if self.current_theme.dark else "textual-dark"
 
     @property
     def heat_on_screen(self) -> Heat:

@@ -11,6 +11,7 @@ from textual.app import App
 from textual.pilot import Pilot
 
 from meltfix.commands.screen import first_demo_heat
+from meltfix.demo_logbook import build_demo_logbook
 from meltfix.heat import Heat, load_heat
 from meltfix.recipes import RecipeBook, load_recipes
 
@@ -28,6 +29,14 @@ def demo_heat_path() -> Path:
 @pytest.fixture(scope="session")
 def demo_heat(demo_book: RecipeBook, demo_heat_path: Path) -> Heat:
     return load_heat(demo_heat_path, demo_book)
+
+
+@pytest.fixture(scope="session")
+def one_day_logbook(tmp_path_factory: pytest.TempPathFactory, demo_book: RecipeBook) -> Path:
+    """The demo shop's first day (three shifts): quicker to build than the whole week."""
+    path = tmp_path_factory.mktemp("logbook") / "demo-day.sqlite"
+    build_demo_logbook(path, demo_book, days=1)
+    return path
 
 
 async def _settle(pilot: Pilot) -> None:

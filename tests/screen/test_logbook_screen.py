@@ -11,7 +11,6 @@ from rich.console import Console
 from textual.pilot import Pilot
 from textual.widgets import DataTable, OptionList, Static
 
-from meltfix.demo_logbook import build_demo_logbook
 from meltfix.heat import Heat
 from meltfix.logbook import Logbook
 from meltfix.recipes import RecipeBook
@@ -20,14 +19,6 @@ from meltfix.tui.screens.logbook import LogbookScreen
 from meltfix.tui.screens.replay import ReplayScreen
 
 Settle = Callable[[Pilot], Awaitable[None]]
-
-
-@pytest.fixture(scope="session")
-def one_day_logbook(tmp_path_factory: pytest.TempPathFactory, demo_book: RecipeBook) -> Path:
-    """The demo shop's first day (three shifts): quicker to build than the whole week."""
-    path = tmp_path_factory.mktemp("logbook") / "demo-day.sqlite"
-    build_demo_logbook(path, demo_book, days=1)
-    return path
 
 
 def _text(screen: LogbookScreen, selector: str) -> str:
@@ -62,7 +53,7 @@ async def test_lists_shifts_opens_a_heat_history_and_its_replay(
         events = _text(screen, "#logbook-events")
         assert "Sample S1" in events and "Added" in events
 
-        await pilot.press("r")
+        await pilot.press("f9")  # replay, as on the trim screen
         await settle(pilot)
         replay = app.screen
         assert isinstance(replay, ReplayScreen) and replay.record is not None

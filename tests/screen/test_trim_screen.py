@@ -125,17 +125,21 @@ async def test_every_action_is_in_the_palette_and_greyed_when_it_cannot_run(demo
     async with app.run_test(size=(100, 32)) as pilot:
         await settle(pilot)
         screen = app.screen
-        described = {b.description for b in screen.BINDINGS if getattr(b, "description", "")}
+        described = {b.description for b in [*screen.BINDINGS, *type(app).BINDINGS]
+                     if getattr(b, "description", "") and not getattr(b, "system", False)}
         names = {name for name, _, _ in ScreenActions(screen)._commands()}
         assert names == described - {"Added"}  # nothing accepted yet: recording what went in is greyed
+        assert "Light/dark" in names  # the app's own keys, the same on every screen
         await pilot.press("f7")  # the ticket for the crew
         written = list(tmp_path.glob("*-ticket.txt"))
         assert [p.name for p in written] == [f"{demo_heat.heat_id}-ticket.txt"]
         await pilot.press("f1")
         keys_text = " ".join(_shown(app.screen.query_one("#keys-body Static")).split())
-        for binding in screen.BINDINGS:
-            if binding.description:
+        for binding in [*screen.BINDINGS, *type(app).BINDINGS]:
+            if binding.description and binding.tooltip:
                 assert binding.tooltip in keys_text
+        # One spelling of every key: no caret for Ctrl, no lower-case "esc" or "space".
+        assert "Ctrl+L" in keys_text and "Esc" in keys_text and "^" not in keys_text
 
 
 def test_main_screen_snapshot(demo_book, demo_heat, demo_heat_path, snap_compare, settle) -> None:

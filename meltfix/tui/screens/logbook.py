@@ -98,7 +98,7 @@ class _HeatTable(DataTable[Any]):
 
 
 class LogbookScreen(Screen[None]):
-    """A shift's heats and their costs; Enter opens one heat's history, R replays it."""
+    """A shift's heats and their costs; Enter opens one heat's history, F9 replays it."""
 
     CSS_PATH = "logbook.tcss"
     COMMANDS = {ScreenActions}
@@ -106,8 +106,10 @@ class LogbookScreen(Screen[None]):
         Binding("escape", "back", "Back", tooltip="Back to the heat list, or close the logbook", id="logbook.back"),
         Binding("enter", "open_heat", "History", show=False, tooltip="Open the highlighted heat's history",
                 id="logbook.history"),
-        Binding("s", "focus_shifts", "Shifts", tooltip="Choose another shift", id="logbook.shifts"),
-        Binding("r", "replay", "Replay", tooltip="Step through this heat beside the plans meltfix would make",
+        # F9 and F10 mean here what they mean on the trim screen (replay, the logbook's shifts);
+        # the letters s and r stay with the materials dialog (stock, reset).
+        Binding("f10", "focus_shifts", "Shifts", tooltip="Choose another shift", id="logbook.shifts"),
+        Binding("f9", "replay", "Replay", tooltip="Step through this heat beside the plans meltfix would make",
                 id="logbook.replay"),
         Binding("d", "open_demo", "Demo week", tooltip="Open the demo shop's week of heats (built on first use)",
                 id="logbook.demo"),
@@ -242,14 +244,14 @@ class LogbookScreen(Screen[None]):
         self._show_mode("absent")
         self._title("The logbook could not be read", error=True)
         self.query_one("#logbook-message", Static).update(
-            Text.assemble(message.reason, "\n\nPress D to open the demo shop's week instead, Esc to go back."))
+            Text.assemble(message.reason, "\n\nPress d to open the demo shop's week instead, Esc to go back."))
 
     def _absent(self, path: Path, reason: str) -> None:
         self._show_mode("absent")
         self._title(f"Logbook · {path}")
         self.query_one("#logbook-message", Static).update(Text.assemble(
             ("Nothing to list yet. ", "bold"), f"{path}: {reason}.\n\n",
-            "Press D to open the demo shop's week of heats (Kestrel Bend, an invented shop; built on "
+            "Press d to open the demo shop's week of heats (Kestrel Bend, an invented shop; built on "
             "first use, a few seconds), or Esc to go back."))
 
     @on(OptionList.OptionHighlighted, "#logbook-shifts")

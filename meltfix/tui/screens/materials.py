@@ -21,6 +21,7 @@ from meltfix.errors import InputError
 from meltfix.heat import Heat, validate_heat
 from meltfix.recipes import Material, RecipeBook
 from meltfix.tui.figures import kg_text, money_text
+from meltfix.tui.keys import hint
 from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
 from meltfix.tui.widgets.reason import ReasonLine
 
@@ -49,8 +50,7 @@ class MaterialsDialog(ModalScreen[Heat]):
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog dialog-wide", id="materials-box") as box:
             box.border_title = f"Materials for heat {self.heat.heat_id} (this heat only)"
-            yield Label("Space on/off · p price · s stock · l lock kg · r reset · Esc done · * = this heat's own",
-                        classes="dialog-help")
+            yield Label(hint(self.BINDINGS, "* marks this heat's own value"), classes="dialog-help")
             yield ReasonLine(pointer=False)
             yield DataTable(id="materials-table", cursor_type="row", zebra_stripes=True)
 

@@ -52,6 +52,7 @@ from meltfix.replay_render import (
     plan_renderable,
     score_renderable,
 )
+from meltfix.tui.palette import ScreenActions
 
 # Longest and shortest bar of the chemistry path chart [characters]: the longest reads best, the
 # shortest still shows where each sample fell against the window.
@@ -92,14 +93,14 @@ class ReplayScreen(Screen[None]):
     """Walk a recorded heat sample by sample; Ctrl+T switches training mode on and off."""
 
     CSS_PATH = "replay.tcss"
+    COMMANDS = {ScreenActions}
     # Below 120 columns the panels stack (replay.tcss): side by side they need about 116.
     HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (120, "-wide")]
     BINDINGS = [
-        # F-keys as well as letters: the letters type into the trainee's entry while it has focus.
-        Binding("f8,n", "step(1)", "Next", key_display="F8/n", tooltip="Go on to the next sample",
-                id="replay.next"),
-        Binding("f7,p", "step(-1)", "Previous", key_display="F7/p", tooltip="Go back to the sample before",
-                id="replay.previous"),
+        # Letters only: the F-keys keep the trim screen's meanings. While the trainee's entry has
+        # focus the letters type into it; scoring the entry hands the focus back to the body.
+        Binding("n", "step(1)", "Next", tooltip="Go on to the next sample", id="replay.next"),
+        Binding("p", "step(-1)", "Previous", tooltip="Go back to the sample before", id="replay.previous"),
         Binding("ctrl+t", "toggle_training", "Training", tooltip="Enter your own additions before seeing the plan",
                 id="replay.training"),
         Binding("ctrl+o", "pick_record", "Other heat", tooltip="Choose another recorded heat", id="replay.open"),

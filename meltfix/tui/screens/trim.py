@@ -61,32 +61,31 @@ MOVING_KEYS = (
 
 class TrimScreen(Screen[None]):
     CSS_PATH = "trim.tcss"
+    VERTICAL_BREAKPOINTS = [(0, "-short"), (30, "-tall")]
     AUTO_FOCUS = ".cell"  # the analysis is what changes most between two plans
     COMMANDS = {ScreenActions}
     BINDINGS = [
-        Binding("f1", "keys", "Help", key_display="F1", tooltip="List every key", id="trim.keys"),
-        Binding("f2", "pick_grade", "Grade", key_display="F2", tooltip="Pick the grade, typing to filter",
+        Binding("f1", "keys", "Help", tooltip="List every key", id="trim.keys"),
+        Binding("f2", "pick_grade", "Grade", tooltip="Pick the grade, typing to filter",
                 id="trim.grade"),
-        Binding("f3", "open_heat", "Open", key_display="F3", tooltip="Open a heat file (HEAT.toml)", id="trim.open"),
-        Binding("f4", "read_export", "Spectro", key_display="F4",
+        Binding("f3", "open_heat", "Open", tooltip="Open a heat file (HEAT.toml)", id="trim.open"),
+        Binding("f4", "read_export", "Spectro",
                 tooltip="Read a spectrometer export into the analysis", id="trim.spectro"),
-        Binding("f5", "materials", "Materials", key_display="F5",
+        Binding("f5", "materials", "Materials",
                 tooltip="Switch materials off or on, change price or stock, lock an amount", id="trim.materials"),
-        Binding("f6", "accept", "Accept", key_display="F6", tooltip="Accept the plan and record it in the logbook",
+        Binding("f6", "accept", "Accept", tooltip="Accept the plan and record it in the logbook",
                 id="trim.accept"),
-        Binding("f7", "ticket", "Ticket", key_display="F7", tooltip="Write the plan as a ticket for the furnace crew",
+        Binding("f7", "ticket", "Ticket", tooltip="Write the plan as a ticket for the furnace crew",
                 id="trim.ticket"),
-        Binding("f8", "record_added", "Added", key_display="F8",
+        Binding("f8", "record_added", "Added",
                 tooltip="Record what actually went in (after accepting)", id="trim.added"),
-        Binding("f9", "app.open_extra('replay')", "Replay", key_display="F9", show=False,
+        Binding("f9", "app.open_extra('replay')", "Replay", show=False,
                 tooltip="Step through a recorded heat", id="trim.replay"),
-        Binding("f10", "app.open_extra('logbook')", "Logbook", key_display="F10", show=False,
+        Binding("f10", "app.open_extra('logbook')", "Logbook", show=False,
                 tooltip="The shift's heats and their costs", id="trim.logbook"),
         Binding("ctrl+n", "add_element", "Element", show=False, tooltip="Add a cell for another element",
                 id="trim.element"),
         Binding("ctrl+r", "revert", "Revert", show=False, tooltip="Back to the heat as opened", id="trim.revert"),
-        Binding("ctrl+t", "toggle_dark", "Light/dark", show=False, tooltip="Switch between light and dark colours",
-                id="trim.dark"),
         Binding("down", "step_field(1)", show=False),
         Binding("up", "step_field(-1)", show=False),
     ]
@@ -268,7 +267,8 @@ class TrimScreen(Screen[None]):
 
     def action_keys(self) -> None:
         self.app.push_screen(KeysScreen(
-            [("Trim screen", self.BINDINGS), ("Materials (F5)", MaterialsDialog.BINDINGS),
+            [("Trim screen", self.BINDINGS), ("Every screen", self.app.BINDINGS),
+             ("Materials (F5)", MaterialsDialog.BINDINGS),
              ("Pick lists and questions", ChoiceDialog.BINDINGS + PromptDialog.BINDINGS)],
             extra=MOVING_KEYS))
 
@@ -437,9 +437,6 @@ class TrimScreen(Screen[None]):
     async def action_revert(self) -> None:
         await self._show_heat(self.opened)
         self.notify(f"Back to heat {self.opened.heat_id} as opened", title="Revert")
-
-    def action_toggle_dark(self) -> None:
-        self.app.theme = "textual-light" if self.app.current_theme.dark else "textual-dark"
 
     # -- for other screens ----------------------------------------------------------------
     @property

@@ -105,17 +105,17 @@ class ChemistryGauges(Widget):
 
     def show(self, rows: Sequence[GaugeRow]) -> None:
         self._rows = tuple(rows)
+        # The legend rides in the border title: one row less, so every gauge fits at 80x24.
+        ppm = [row.symbol for row in self._rows if unit_of(row.symbol) == "ppm"]
+        self.border_title = "○ now ● after ┿ aim ═ window" + (f" · {' '.join(ppm)} in ppm" if ppm else "")
         self.refresh(layout=True)
 
     def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
-        return len(self._rows) + 1
+        return len(self._rows)
 
     def render(self) -> Content:
         name_width = max([3, *(len(row.symbol) + 1 for row in self._rows)])
         free = self.size.width - _FIXED - name_width
         labels = free - _LABELS >= _RAIL_MIN
         rail_cells = max(6, free - (_LABELS if labels else 0))
-        units = {unit_of(row.symbol) for row in self._rows}
-        legend = Content.assemble(("○ now  ● after  ┿ aim  ═ window", "$foreground-muted"),
-                                  ("   contents in ppm for N O B H" if "ppm" in units else "", "$foreground-muted"))
-        return Content("\n").join([legend, *(gauge_line(row, rail_cells, labels, name_width) for row in self._rows)])
+        return Content("\n").join(gauge_line(row, rail_cells, labels, name_width) for row in self._rows)

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from rich import box
 from rich.table import Table
 from textual.app import ComposeResult
 from textual.containers import Vertical, VerticalScroll
@@ -41,9 +40,10 @@ class PlanView(Vertical):
             yield Static(id="plan-additions")
             yield Static(id="plan-totals")
             yield Static(id="plan-out-of-reach")
-            yield ChemistryGauges(id="plan-gauges")
             yield Static(id="plan-binding")
             yield Static(id="plan-notes")
+        # Outside the scroll: every gauge stays in view however little room the panel has.
+        yield ChemistryGauges(id="plan-gauges")
         with VerticalScroll(id="plan-cautions", can_focus=True) as cautions:
             cautions.border_title = "Cautions"
             yield Static(id="plan-cautions-text")
@@ -96,8 +96,9 @@ class PlanView(Vertical):
 
 def _additions_table(plan: Plan) -> Table:
     cur = plan.currency
-    table = Table(box=box.SIMPLE_HEAD, expand=True, padding=(0, 1), pad_edge=False, show_edge=False,
-                  header_style="bold")
+    # No rule under the header: at 80x24 that row is worth more to the additions themselves.
+    table = Table(box=None, expand=True, padding=(0, 1), pad_edge=False, show_edge=False,
+                  header_style="bold underline")
     table.add_column("Add", ratio=1, overflow="fold")
     table.add_column("kg (packs)", justify="right", no_wrap=True)
     table.add_column(cur, justify="right", no_wrap=True)
