@@ -145,6 +145,8 @@ class ShopSettings:
     """Largest temperature drop the additions may cause [°C]; None = not limited."""
     max_unlisted_rise_pct: float = 0.10
     """Most the additions may raise an element the grade sets no window for [wt %]."""
+    plan_time_limit_s: float = 2.0
+    """Time budget per plan [s]: past it the best plan found is returned, marked, with its gap."""
     spectrometer: Mapping[str, Any] = field(default_factory=dict)
     """The instrument's export layout, read by :mod:`meltfix.spectro`."""
     stages: Mapping[str, Stage] = field(default_factory=lambda: DEFAULT_STAGES)
@@ -480,7 +482,7 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
-              "max_unlisted_rise_pct", "spectrometer", "stage"}
+              "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -531,6 +533,8 @@ def load_settings(folder: Path) -> ShopSettings:
         max_temp_drop_c=None if drop is None else number(drop, path, "max_temp_drop_c"),
         max_unlisted_rise_pct=number(data.get("max_unlisted_rise_pct", defaults.max_unlisted_rise_pct),
                                      path, "max_unlisted_rise_pct"),
+        plan_time_limit_s=number(data.get("plan_time_limit_s", defaults.plan_time_limit_s), path,
+                                 "plan_time_limit_s", positive=True),
         spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
         stages=parse_stages(data.get("stage"), path),
     )

@@ -36,3 +36,20 @@ def test_plain_command_line_loads_neither_textual_nor_pandas() -> None:
         "assert not bad, bad\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_planning_never_imports_scipy() -> None:
+    """The planner runs on highspy; SciPy's optimiser took most of a one-heat `meltfix solve`."""
+    code = (
+        "import sys\n"
+        "import meltfix.planner\n"
+        "assert 'scipy' not in sys.modules\n"
+        "from meltfix.heat import load_heat\n"
+        "from meltfix.paths import demo_dir\n"
+        "from meltfix.recipes import load_recipes\n"
+        "book = load_recipes()\n"
+        "for path in sorted((demo_dir() / 'heats').glob('*.toml')):\n"
+        "    meltfix.planner.plan_heat(load_heat(path, book), book)\n"
+        "assert 'scipy' not in sys.modules, sorted(m for m in sys.modules if m.startswith('scipy'))\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)

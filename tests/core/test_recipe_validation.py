@@ -161,7 +161,7 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
     ("typo in shop.toml", edit("shop.toml", "max_temp_drop_c", "max_temp_drop"),
      "shop.toml", "max_temp_drop",
      "unknown key (expected one of: aim_penalty, currency, large_addition_kg_per_t, max_temp_drop_c, "
-     "max_unlisted_rise_pct, shop_name, spectrometer, stage)"),
+     "max_unlisted_rise_pct, plan_time_limit_s, shop_name, spectrometer, stage)"),
     ("negative temperature drop", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = -25.0"),
      "shop.toml", "max_temp_drop_c", "must not be negative, got -25.0"),
     ("grades folder missing", put("grades/g1.toml", None),
