@@ -114,11 +114,13 @@ class HeatLoad:
 
 
 class ModelShape:
-    """The fixed part of the model for one grade and mode: columns, rows and their coefficients."""
+    """The fixed part of the model for one grade, stage and mode: columns, rows and their coefficients."""
 
-    def __init__(self, book: RecipeBook, grade: Grade, continuous: bool, use_aim: bool) -> None:
+    def __init__(self, book: RecipeBook, grade: Grade, stage: str, continuous: bool, use_aim: bool) -> None:
         self.book, self.grade = book, grade
-        self.materials = book.materials
+        # Every material of the book, as it behaves at this stage (its recoveries there); a heat
+        # bounds the ones it may not use at 0.
+        self.materials = tuple(m.at_stage(stage) for m in book.materials)
         materials = self.materials
         n = self.n_materials = len(materials)
         index_terms = {s for index in grade.indices for s in index.terms}

@@ -188,23 +188,23 @@ class Plan:
 class Planner:
     """Plans heats against one recipe book. Build once, plan many heats, from any number of threads.
 
-    Each (grade, continuous, use_aim) has one model shape; each thread planning at a time takes a
+    Each (grade, stage, continuous, use_aim) has one model shape; each thread planning at a time takes a
     hot HiGHS model of that shape from a pool (building one when all are busy) and gives it back.
     """
 
     def __init__(self, book: RecipeBook) -> None:
         self.book = book
         self._lock = threading.Lock()
-        self._shapes: dict[tuple[str, bool, bool], ModelShape] = {}
-        self._idle: dict[tuple[str, bool, bool], list[HotModel]] = {}
+        self._shapes: dict[tuple[str, str, bool, bool], ModelShape] = {}
+        self._idle: dict[tuple[str, str, bool, bool], list[HotModel]] = {}
 
     @contextmanager
-    def _model(self, grade: str, options: PlanOptions) -> Iterator[HotModel]:
-        key = (grade, options.continuous, options.use_aim)
+    def _model(self, heat: Heat, options: PlanOptions) -> Iterator[HotModel]:
+        key = (heat.grade, heat.stage, options.continuous, options.use_aim)
         with self._lock:
             shape = self._shapes.get(key)
             if shape is None:
-                shape = self._shapes[key] = ModelShape(self.book, self.book.grade(grade), *key[1:])
+                shape = self._shapes[key] = ModelShape(self.book, self.book.grade(heat.grade), *key[1:])
             idle = self._idle.setdefault(key, [])
             model = idle.pop() if idle else None
         if model is None:
@@ -222,7 +222,7 @@ class Planner:
         penalty = options.aim_penalty if options.aim_penalty is not None else settings.aim_penalty
         budget_s = options.time_limit_s if options.time_limit_s is not None else settings.plan_time_limit_s
         deadline = time.monotonic() + budget_s
-        with self._model(heat.grade, options) as model:
+        with self._model(heat, options) as model:
             load = model.shape.load(heat, penalty)
             model.load(load)
             solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options)
