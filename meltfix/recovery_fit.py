@@ -1,8 +1,8 @@
-"""Recoveries learnt from the logbook (DESIGN §3): what each material really brings to the bath.
+"""Recoveries learnt from the logbook: what each material really brings to the bath.
 
 Method. Between two consecutive samples of a heat — bath ``W1`` [kg] at analysis ``c1``, the next
 analysis ``c2`` (fractions) — the additions ``x_j`` made in between obey, for every element they
-carry, the mass balance of DESIGN §2: ``W1 c1 + sum_j a_j r_j x_j = M2 c2`` with
+carry, the mass balance of :mod:`meltfix.massbalance`: ``W1 c1 + sum_j a_j r_j x_j = M2 c2`` with
 ``M2 = W1 + sum_j g_j x_j``. When one material ``j`` brings at least ``MIN_SHARE`` (80 %) of the
 element put in, the case is attributed to it: the other materials count with their catalogue
 recoveries (``S`` [kg] dissolved), and ``M2`` is the catalogue's bath with ``j``'s own term left
@@ -17,11 +17,19 @@ materials or for this material's other elements too, the bath mass is off by a f
 error over ``A``: far less than the analysis error.
 
 Over the cases of one (material, element), ``r`` is the weighted least-squares line through the
-origin, ``r = sum(w A D) / sum(w A^2)``, the weights ``w = 1 / var(D)`` from the analysis error
-(sigma = r(c) / 2.8 of the spectrometer's repeatability curve, :mod:`meltfix.spectro` and
-``[spectrometer.repeatability]`` in shop.toml), the scale from the residuals, so heat-to-heat
-scatter widens the interval: ``r ± t(0.975, n - 1) SE`` (Student's t). Estimate and interval are
-clipped to (0, 1].
+origin, ``r = sum(w A D) / sum(w A^2)``. Two errors move ``D``: the analysis, whose variance ``v``
+comes from the spectrometer's repeatability curve (sigma = r(c) / 2.8, :mod:`meltfix.spectro` and
+``[spectrometer.repeatability]`` in shop.toml), and the recovery itself, which scatters from heat to
+heat (slag, oxygen, stirring) by a standard deviation ``s`` that moves ``D`` by ``s A``: a 300 kg
+addition carries sixty times the scatter of a 5 kg one. So the weights are
+``w = 1 / (v + s^2 A^2)``, with ``s^2`` estimated from a first fit's residuals ``e`` by moments,
+``s^2 = max(0, sum(e^2 - v) / sum(A^2))``. The standard error is the heteroscedasticity-consistent
+HC3 one (MacKinnon & White, J. Econometrics 29 (1985) 305-325), which holds whatever the real shape
+of the scatter: ``SE^2 = sum((w A e / (1 - h))^2) / sum(w A^2)^2`` with leverage
+``h = w A^2 / sum(w A^2)``, and the interval ``r ± t(0.975, n - 1) SE`` (Student's t). With only
+the analysis error in the weights and one residual scale, the interval covered the true recovery
+in 84-87 % of simulated logbooks with a recovery scatter of 0.05; this one in at least 93 %
+(tests/core/test_recovery_fit.py). Estimate and interval are clipped to (0, 1].
 
 Analysis error: a rise of a few repeatability limits is mostly scatter, so a case whose
 catalogue-predicted rise is under ``MIN_RISE_LIMITS`` (3) repeatability limits is skipped, and
@@ -168,8 +176,9 @@ class RecoveryFit:
                      f"{MIN_SHARE * 100:g} % of it; the other materials count with their catalogue recoveries, and "
                      "baths after the first sample grow by the catalogue mass balance.")
         notes.append(f"An update is proposed only with at least {self.min_cases} cases and a "
-                     f"{self.confidence * 100:g} % interval (Student's t) that excludes the catalogue value; "
-                     "estimates are clipped to (0, 1].")
+                     f"{self.confidence * 100:g} % interval that excludes the catalogue value; the interval allows "
+                     "for the recovery's scatter from heat to heat as well as the analysis error (weights with "
+                     "both, a robust HC3 standard error, Student's t); estimates are clipped to (0, 1].")
         notes.append("The recipe book is never changed here: check the proposals against the shop's practice, "
                      "then edit materials.toml by hand.")
         return tuple(notes)
@@ -262,20 +271,41 @@ def record_cases(record: HeatRecord, book: RecipeBook,
 # Estimates
 
 
-def weighted_ratio(basis: np.ndarray, dissolved: np.ndarray, weight: np.ndarray, group: np.ndarray,
-                   confidence: float = CONFIDENCE) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per group: the least-squares slope through the origin of ``dissolved`` on ``basis`` with
-    ``weight``, its standard error and the half-width of its confidence interval (Student's t,
-    n - 1 degrees of freedom). Groups of one case get NaN for both."""
-    groups = int(group.max()) + 1
+def _slope(basis: np.ndarray, dissolved: np.ndarray, weight: np.ndarray, group: np.ndarray,
+           groups: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per group the weighted least-squares slope through the origin, sum(w b^2) per group, and
+    each case's residual."""
     sum_wbb = np.bincount(group, weight * basis * basis, groups)
     slope = np.bincount(group, weight * basis * dissolved, groups) / sum_wbb
-    residual = dissolved - slope[group] * basis
+    return slope, sum_wbb, dissolved - slope[group] * basis
+
+
+def recovery_scatter_variance(basis: np.ndarray, residual: np.ndarray, analysis_variance: np.ndarray,
+                              group: np.ndarray, groups: int) -> np.ndarray:
+    """Per group the variance of the recovery from case to case [1], by moments: each residual's
+    square is about s^2 b^2 plus the analysis variance, so s^2 = sum(e^2 - v) / sum(b^2), at least 0."""
+    excess = np.bincount(group, residual * residual - analysis_variance, groups)
+    return np.maximum(excess / np.bincount(group, basis * basis, groups), 0.0)
+
+
+def weighted_ratio(basis: np.ndarray, dissolved: np.ndarray, weight: np.ndarray, group: np.ndarray,
+                   confidence: float = CONFIDENCE) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per group (see the module's method): the slope through the origin of ``dissolved`` on
+    ``basis`` [kg] weighted by the analysis error (``weight`` = 1 / its variance [1/kg^2]) and the
+    recovery scatter, its HC3 standard error and the half-width of its confidence interval
+    (Student's t, n - 1 degrees of freedom). Groups of one case get NaN for both."""
+    groups = int(group.max()) + 1
+    analysis_variance = 1.0 / weight
+    _, _, first = _slope(basis, dissolved, weight, group, groups)
+    scatter = recovery_scatter_variance(basis, first, analysis_variance, group, groups)
+    weight = 1.0 / (analysis_variance + scatter[group] * basis * basis)
+    slope, sum_wbb, residual = _slope(basis, dissolved, weight, group, groups)
     n = np.bincount(group, minlength=groups)
     dof = n - 1
     with np.errstate(divide="ignore", invalid="ignore"):
-        scale2 = np.bincount(group, weight * residual * residual, groups) / dof
-        std_error = np.where(dof > 0, np.sqrt(scale2 / sum_wbb), np.nan)
+        leverage = weight * basis * basis / sum_wbb[group]
+        score = weight * basis * residual / (1.0 - leverage)
+        std_error = np.where(dof > 0, np.sqrt(np.bincount(group, score * score, groups)) / sum_wbb, np.nan)
     t = stats.t.ppf(0.5 + confidence / 2.0, np.maximum(dof, 1))
     return slope, std_error, np.where(dof > 0, t * std_error, np.nan)
 
