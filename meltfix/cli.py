@@ -14,10 +14,12 @@ from collections.abc import Sequence
 from meltfix import __version__
 from meltfix.errors import InputError
 
-# Exit status (DESIGN §6): every window met / bad input / only a closest plan exists.
+# Exit status (DESIGN §6): every window met at the target odds / bad input / only a closest plan
+# exists / every window met on paper but the odds short of the target.
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_CLOSEST = 3
+EXIT_SHORT = 4
 
 # command -> (module under meltfix.commands, one-line summary)
 COMMANDS = {

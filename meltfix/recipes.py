@@ -67,6 +67,9 @@ class Material:
         if not changes:
             return self
         return replace(self, recovery=MappingProxyType({**self.recovery, **changes}))
+    recovery_scatter: Mapping[str, float] = field(default_factory=dict)
+    """Relative standard deviation of this material's recovery, per element [fraction of the
+    recovery]; an element not listed scatters as the shop's ``[scatter] recovery`` says."""
 
     def yield_pct(self, symbol: str) -> float:
         """Content of ``symbol`` that reaches the bath [wt % of the material]."""
@@ -132,6 +135,28 @@ DEFAULT_STAGES: Mapping[str, Stage] = MappingProxyType({"furnace": Stage("furnac
 
 
 @dataclass(frozen=True)
+class Scatter:
+    """How far a real heat strays from what a plan assumes: shop.toml ``[scatter]``.
+
+    Every error is normal. The defaults are common practice for lump additions to a ladle (from
+    memory): a recovery within about ±10 % of itself in 19 heats out of 20 (a relative standard
+    deviation of 5 %), the bath weight within about ±4 % (2 %), the spectrometer's own repeatability.
+    """
+
+    recovery: float = 0.05
+    """Relative standard deviation of each recovery [fraction of the recovery]; a drawn recovery
+    above 1 counts as 1."""
+    bath: float = 0.02
+    """Relative standard deviation of the bath weight [fraction of the bath]."""
+    analysis: float = 1.0
+    """Multiple of the spectrometer's repeatability sigma for the analysis error (0 = exact)."""
+
+
+ECONOMIC = "economic"
+"""``target_odds = "economic"``: the target that gives the least expected total cost."""
+
+
+@dataclass(frozen=True)
 class ShopSettings:
     """Shop-wide settings from ``shop.toml``; every field has a sensible default."""
 
@@ -151,6 +176,11 @@ class ShopSettings:
     """The instrument's export layout, read by :mod:`meltfix.spectro`."""
     stages: Mapping[str, Stage] = field(default_factory=lambda: DEFAULT_STAGES)
     """The shop's stages by name, in the order shop.toml lists them."""
+    target_odds: float | str = 0.95
+    """Probability [0..1] that a plan must give of landing inside every window, or ``"economic"``."""
+    correction_cost: float = 0.0
+    """Cost of one correction when a heat misses [currency]: furnace time, a sample, energy."""
+    scatter: Scatter = Scatter()
 
 
 @dataclass(frozen=True)
@@ -246,7 +276,7 @@ def known_keys(entry: Mapping[str, Any], allowed: set[str], source: object, wher
 
 _MATERIAL_KEYS = {"name", "price_per_kg", "composition", "recovery", "default_recovery", "stock_kg",
                   "pack_kg", "min_kg", "chill_per_kg_t", "kind", "standard", "notes", "stages",
-                  "recovery_by_stage", "addition_class", "kg_per_m"}
+                  "recovery_by_stage", "addition_class", "kg_per_m", "recovery_scatter"}
 
 
 def parse_material(entry: Mapping[str, Any], source: object, where: str,
@@ -319,6 +349,7 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str,
         recovery_by_stage=_recovery_by_stage(entry, composition, source, where, stages),
         addition_class=addition_class,
         kg_per_m=kg_per_m,
+        recovery_scatter=_recovery_scatter(entry.get("recovery_scatter"), composition, source, where),
     )
 
 
@@ -355,6 +386,25 @@ def _recovery_by_stage(entry: Mapping[str, Any], composition: Mapping[str, float
             changes[symbol] = _recovery(value, source, f"{field_name}.{key}")
         result[stage] = MappingProxyType(changes)
     return MappingProxyType(result)
+
+
+def _recovery_scatter(value: Any, composition: Mapping[str, float], source: object,
+                      where: str) -> Mapping[str, float]:
+    """``recovery_scatter``: one relative standard deviation for every element of the material, or
+    a table of them by element."""
+    field_name = f"{where}recovery_scatter"
+    if value is None:
+        return MappingProxyType({})
+    if isinstance(value, Mapping):
+        scatter = {}
+        for key, sd in value.items():
+            symbol = normalise_symbol(key, source, f"{field_name}.{key}")
+            if symbol not in composition:
+                raise InputError(source, f"{field_name}.{key}", f"{symbol} is not in the composition")
+            scatter[symbol] = number(sd, source, f"{field_name}.{key}")
+        return MappingProxyType(scatter)
+    sd = number(value, source, field_name)
+    return MappingProxyType({s: sd for s in composition if s != "Fe"})
 
 
 def _optional_text(entry: Mapping[str, Any], key: str, source: object, where: str) -> str:
@@ -482,7 +532,8 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
-              "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage"}
+              "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
+              "correction_cost", "scatter"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -537,7 +588,29 @@ def load_settings(folder: Path) -> ShopSettings:
                                  "plan_time_limit_s", positive=True),
         spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
         stages=parse_stages(data.get("stage"), path),
+        target_odds=parse_target_odds(data.get("target_odds", defaults.target_odds), path, "target_odds"),
+        correction_cost=number(data.get("correction_cost", defaults.correction_cost), path, "correction_cost"),
+        scatter=_scatter(table(data.get("scatter", {}), path, "scatter"), path),
     )
+
+
+def parse_target_odds(value: Any, source: object, field_name: str) -> float | str:
+    """A probability strictly between 0 and 1, or ``"economic"``."""
+    if value == ECONOMIC:
+        return ECONOMIC
+    if isinstance(value, str):
+        raise InputError(source, field_name, f"expected a probability such as 0.95 or \"{ECONOMIC}\", got {value!r}")
+    odds = number(value, source, field_name)
+    if not 0.0 < odds < 1.0:
+        raise InputError(source, field_name, f"{value!r} is not a probability between 0 and 1 (e.g. 0.95)")
+    return odds
+
+
+def _scatter(data: Mapping[str, Any], path: Path) -> Scatter:
+    known_keys(data, {"recovery", "bath", "analysis"}, path, "scatter.")
+    defaults = Scatter()
+    return Scatter(*(number(data.get(key, getattr(defaults, key)), path, f"scatter.{key}")
+                     for key in ("recovery", "bath", "analysis")))
 
 
 def load_recipes(folder: Path | str | None = None) -> RecipeBook:

@@ -11,25 +11,43 @@ from rich.text import Text
 
 from meltfix.planner import Plan
 
-if TYPE_CHECKING:  # the odds are computed only when asked for; rendering needs no NumPy of its own
+if TYPE_CHECKING:  # rendering needs no NumPy or SciPy of its own
+    from meltfix.risk import RiskPlan
     from meltfix.uncertainty import Odds
 
 
-def odds_text(odds: Odds) -> Text:
-    """One line: the heat's in-spec odds and its weakest limits."""
+def odds_text(odds: Odds, risk: RiskPlan | None = None) -> Text:
+    """One line: the heat's in-spec odds and its weakest limits; with ``risk``, the target and the
+    expected total cost."""
     weakest = sorted(((p, label) for label, p in odds.limits.items() if p < 1.0))[:3]
     line = f"In-spec odds {100 * odds.heat:.1f} % ({odds.draws:,} draws, seed {odds.seed})"
+    if risk is not None:
+        line += f" · target {100 * risk.target:g} %"
     if weakest:
         line += " · weakest: " + ", ".join(f"{label} {100 * p:.1f} %" for p, label in weakest)
-    return Text(line, style="bold" if odds.heat >= 0.9 else "bold yellow")
+    if risk is not None and risk.correction_cost:
+        cur = risk.plan.currency
+        line += (f"\nExpected total cost {risk.expected_total_cost:,.2f} {cur} (additions + "
+                 f"{100 * (1 - odds.heat):.1f} % × {risk.correction_cost:,.0f} {cur} a correction)")
+    short = odds.heat < (0.9 if risk is None else risk.target)
+    return Text(line, style="bold yellow" if short else "bold")
 
 
-def plan_renderable(plan: Plan, odds: Odds | None = None) -> Group:
+def headline(plan: Plan, risk: RiskPlan | None = None) -> str:
+    """The plan's verdict in markup: never "all windows met" when the odds fall short of the target."""
+    if plan.status != "optimal":
+        return "[bold red]closest plan: windows missed[/]"
+    if risk is not None and not risk.reached:
+        return (f"[bold yellow]windows met on paper, but only {100 * risk.odds.heat:.1f} % odds "
+                f"(target {100 * risk.target:g} %)[/]")
+    return "[green]all windows met[/]" + ("" if risk is None else f" · {100 * risk.odds.heat:.1f} % odds")
+
+
+def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None = None) -> Group:
     """The plan as rich tables: additions, predicted chemistry, binding limits, cautions; with
-    ``odds``, a line of in-spec odds under the chemistry."""
+    ``odds``, a line of in-spec odds under the chemistry (and the target, with ``risk``)."""
     cur = plan.currency
-    title = f"Heat {plan.heat_id} · {plan.grade} · " + (
-        "[green]all windows met[/]" if plan.status == "optimal" else "[bold red]closest plan: windows missed[/]")
+    title = f"Heat {plan.heat_id} · {plan.grade} · " + headline(plan, risk)
     adds = Table(title="Additions", title_justify="left", expand=False)
     adds.add_column("Material")
     adds.add_column("kg", justify="right")
@@ -60,7 +78,7 @@ def plan_renderable(plan: Plan, odds: Odds | None = None) -> Group:
 
     parts: list[object] = [Text.from_markup(title), adds, chem]
     if odds is not None:
-        parts.append(odds_text(odds))
+        parts.append(odds_text(odds, risk))
     if plan.violations:
         parts.append(Panel("\n".join(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. {v.reason}"
                                      for v in plan.violations), title="Why the grade cannot be met", border_style="red"))
@@ -78,5 +96,6 @@ def plan_renderable(plan: Plan, odds: Odds | None = None) -> Group:
     return Group(*parts)
 
 
-def print_plan(plan: Plan, console: Console | None = None, odds: Odds | None = None) -> None:
-    (console or Console()).print(plan_renderable(plan, odds))
+def print_plan(plan: Plan, console: Console | None = None, odds: Odds | None = None,
+               risk: RiskPlan | None = None) -> None:
+    (console or Console()).print(plan_renderable(plan, odds, risk))

@@ -1,7 +1,8 @@
 """`meltfix solve HEAT.toml [HEAT.toml ...] [--recipes DIR] [--json]` (DESIGN §6).
 
-``--odds`` adds the plan's in-spec odds from a seeded Monte Carlo run (meltfix.uncertainty);
-``--sure P`` plans in robust mode, tightening the windows until the odds reach P.
+Every plan is the cheapest whose odds of landing inside every window reach the shop's
+``target_odds`` (meltfix.risk), judged by a seeded Monte Carlo run (meltfix.uncertainty);
+``--sure P`` sets the target for one run, ``--on-paper`` gives the exact-window plan.
 """
 
 from __future__ import annotations
@@ -10,12 +11,17 @@ import argparse
 import json
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from meltfix.cli import EXIT_BAD_INPUT, EXIT_CLOSEST, EXIT_OK
+from meltfix.cli import EXIT_BAD_INPUT, EXIT_CLOSEST, EXIT_OK, EXIT_SHORT
 from meltfix.errors import InputError
 
-# "Worst" status of a batch: a heat that could not be read at all outranks a closest plan.
-_SEVERITY = {EXIT_OK: 0, EXIT_CLOSEST: 1, EXIT_BAD_INPUT: 2}
+if TYPE_CHECKING:  # SciPy and NumPy load when a heat is planned, not to print --help
+    from meltfix.risk import RiskPlan
+
+# "Worst" status of a batch: a heat that could not be read at all outranks a closest plan, which
+# outranks a plan whose odds fall short.
+_SEVERITY = {EXIT_OK: 0, EXIT_SHORT: 1, EXIT_CLOSEST: 2, EXIT_BAD_INPUT: 3}
 # Memory grows with draws x elements x materials (about 5 kB a draw for the demo shop).
 _MAX_DRAWS = 20_000
 
@@ -26,46 +32,34 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="one JSON object per heat (JSON Lines)")
     parser.add_argument("--no-aim", action="store_true", help="cheapest plan inside the windows, ignoring aims")
     parser.add_argument("--continuous", action="store_true", help="allow part packs (bags, bales, coils)")
-    parser.add_argument("--odds", action="store_true",
-                        help="add the odds of landing inside each limit and the grade (recoveries ±10 %%, "
-                             "bath weight ±3 %%, spectrometer repeatability)")
     parser.add_argument("--sure", metavar="P", type=float,
-                        help="robust mode: tighten the windows until the heat lands inside with probability P "
-                             "(e.g. 0.95); implies --odds")
+                        help="the odds of landing inside every window the plan must reach, for this run "
+                             "(e.g. 0.99; default: shop.toml target_odds)")
+    parser.add_argument("--on-paper", action="store_true",
+                        help="plan to the exact windows with no margin for scatter (for comparison)")
     parser.add_argument("--draws", metavar="N", type=int, default=2000, help="Monte Carlo draws per heat (default 2000)")
     parser.add_argument("--seed", metavar="S", type=int, default=0, help="seed of the draws (default 0)")
 
 
 def run(args: argparse.Namespace) -> int:
     from meltfix.heat import load_heat
-    from meltfix.planner import PlanOptions, Planner
+    from meltfix.planner import PlanOptions
     from meltfix.recipes import load_recipes
+    from meltfix.risk import RiskPlanner
 
     if args.sure is not None and not 0.0 < args.sure < 1.0:
         raise InputError("command line", "--sure", f"{args.sure:g} is not a probability between 0 and 1 (e.g. 0.95)")
     if not 1 <= args.draws <= _MAX_DRAWS:
         raise InputError("command line", "--draws", f"{args.draws} is outside 1..{_MAX_DRAWS:,}")
     book = load_recipes(args.recipes)  # a bad recipe book is bad input for every heat: exit 2 at once
-    planner = Planner(book)
+    planner = RiskPlanner(book)
     options = PlanOptions(use_aim=not args.no_aim, continuous=args.continuous)
     worst = EXIT_OK
     for name in args.heats:
-        odds = sure = None
         try:
             heat = load_heat(name, book)
             try:
-                if args.sure is not None:
-                    from meltfix.uncertainty import robust_plan
-
-                    robust = robust_plan(heat, book, args.sure, options, draws=args.draws, seed=args.seed)
-                    plan, odds = robust.plan, robust.odds
-                    sure = {"level": robust.level, "reached": robust.reached, "inset_sigmas": robust.inset_sigmas}
-                else:
-                    plan = planner.plan(heat, options)
-                    if args.odds:
-                        from meltfix.uncertainty import plan_odds
-
-                        odds = plan_odds(heat, book, plan, draws=args.draws, seed=args.seed)
+                risk = planner.plan(heat, args.sure, options, draws=args.draws, seed=args.seed, on_paper=args.on_paper)
             except InputError as exc:  # the planner knows the heat, not its file: name the file
                 raise InputError(name, exc.field, exc.message) from None
         except InputError as exc:
@@ -74,17 +68,19 @@ def run(args: argparse.Namespace) -> int:
                 print(json.dumps({"heat": Path(name).stem, "status": "error", "error": str(exc)}))
             status = EXIT_BAD_INPUT
         else:
-            status = EXIT_OK if plan.status == "optimal" else EXIT_CLOSEST
+            status = exit_status(risk)
             if args.json:
-                line = plan.to_json()
-                if odds is not None:
-                    line["odds"] = odds.to_json()
-                if sure is not None:
-                    line["sure"] = sure
-                print(json.dumps(line))
+                print(json.dumps(risk.to_json()))
             else:
                 from meltfix.render import print_plan
 
-                print_plan(plan, odds=odds)
+                print_plan(risk.plan, odds=risk.odds, risk=risk)
         worst = max(worst, status, key=_SEVERITY.__getitem__)
     return worst
+
+
+def exit_status(risk: RiskPlan) -> int:
+    """0: windows met and the target reached; 4: met on paper, odds short; 3: closest plan."""
+    if risk.plan.status != "optimal":
+        return EXIT_CLOSEST
+    return EXIT_OK if risk.reached else EXIT_SHORT

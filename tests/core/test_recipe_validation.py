@@ -84,7 +84,8 @@ def write(folder: Path, files: Files) -> None:
 
 
 MATERIAL_KEYS = ("addition_class, chill_per_kg_t, composition, default_recovery, kg_per_m, kind, min_kg, name, "
-                 "notes, pack_kg, price_per_kg, recovery, recovery_by_stage, stages, standard, stock_kg")
+                 "notes, pack_kg, price_per_kg, recovery, recovery_by_stage, recovery_scatter, stages, standard, "
+                 "stock_kg")
 
 # (case, change, file at fault relative to the folder, field, message)
 CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
@@ -160,8 +161,9 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
      "grades/g2.toml", "name", "grade 'G1' is already defined in g1.toml"),
     ("typo in shop.toml", edit("shop.toml", "max_temp_drop_c", "max_temp_drop"),
      "shop.toml", "max_temp_drop",
-     "unknown key (expected one of: aim_penalty, currency, large_addition_kg_per_t, max_temp_drop_c, "
-     "max_unlisted_rise_pct, plan_time_limit_s, shop_name, spectrometer, stage)"),
+     "unknown key (expected one of: aim_penalty, correction_cost, currency, large_addition_kg_per_t, "
+     "max_temp_drop_c, max_unlisted_rise_pct, plan_time_limit_s, scatter, shop_name, spectrometer, stage, "
+     "target_odds)"),
     ("negative temperature drop", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = -25.0"),
      "shop.toml", "max_temp_drop_c", "must not be negative, got -25.0"),
     ("grades folder missing", put("grades/g1.toml", None),
