@@ -6,9 +6,9 @@ Every heat of a seeded population (bench/population.py) is planned by meltfix an
 method of the melt shop (meltfix.handmethod), and the plans are compared: heats inside every
 window, cost per tonne, where the hand method breaks a window meltfix keeps, heats neither can
 bring inside and why. Then each plan meets an uncertain world (Monte Carlo, seeded, the same draws
-for both methods): recoveries off by up to ±10 % relative, the bath weight off by up to ±3 %, and
-both samples read with the spectrometer's repeatability (meltfix.spectro, sigma = r / 2.8, the
-ISO 5725 relation, from memory); the draws are those of meltfix.uncertainty, behind `solve --odds`.
+for both methods): recoveries, the bath weight and both samples scatter as the shop's [scatter]
+says (normal errors; the samples with the spectrometer's repeatability, meltfix.spectro, sigma =
+r / 2.8, the ISO 5725 relation, from memory); the draws are those of meltfix.uncertainty.
 A second sample out of a window gets one correction, planned by the same method from what the
 melter then believes; the share of heats truly inside every window afterwards is the figure that
 matters. Last, throughput: meltfix plans per second in one process and on all cores. Figures print
@@ -40,12 +40,10 @@ from meltfix.handmethod import hand_plan
 from meltfix.heat import Heat
 from meltfix.planner import LIMIT_TOL_PCT, PlanOptions, Planner
 from meltfix.recipes import RecipeBook, load_recipes
-from meltfix.uncertainty import LimitSet, Spread, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
+from meltfix.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from population import population  # bench/ is on sys.path when this file runs as a script
 
 METHODS = ("meltfix", "hand")
-SPREAD = Spread()
-"""Recoveries off by up to ±10 % relative, the bath weight by up to ±3 %, analyses per the repeatability curves."""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -162,7 +160,7 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
     rng = np.random.default_rng([seed, 1, index])
 
     # The true world of each draw, shared by both methods (common random numbers).
-    world = draw_world(heat, materials, symbols, draws, rng, SPREAD, aluminium_owed_pct(heat, grade))
+    world = draw_world(heat, materials, symbols, draws, rng, book.settings.scatter, aluminium_owed_pct(heat, grade))
     noise = rng.standard_normal((draws, len(symbols)))  # the second sample's reading error
 
     prices = np.array([heat.material_price_per_kg(m) for m in materials])
@@ -354,8 +352,8 @@ def tables(results: Results, book: RecipeBook, currency: str) -> list[Table]:
     d = results.draws
     total = n * results.n_draws
     mc = Table(title=f"In an uncertain world: {results.n_draws} draws a heat, {total:,} in all",
-               caption=f"recoveries off by up to ±{100 * SPREAD.recovery_rel:.0f} %, bath weight by up to "
-                       f"±{100 * SPREAD.bath_rel:.0f} %, both samples read with the spectrometer's repeatability",
+               caption="recoveries, bath weight and both samples scatter as shop.toml \\[scatter] says "
+                       "(normal errors; the spectrometer's repeatability for the samples)",
                title_justify="left", caption_justify="left")
     mc.add_column("")
     mc.add_column("meltfix", justify="right")

@@ -437,7 +437,7 @@ def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]]
             ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
     """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
     by the plain mass balance: the plan's own re-check, also against a grade other than the one
-    planned for (robust mode plans to tightened windows and reports against the real ones)."""
+    planned for (meltfix.risk plans to tightened windows and reports against the real ones)."""
     owed = aluminium_owed_pct(heat, grade)
     final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
     # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a

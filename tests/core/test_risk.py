@@ -25,7 +25,7 @@ from meltfix.analysis import Analysis
 from meltfix.cli import EXIT_SHORT, main
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
-from meltfix.heat import Heat, load_heat
+from meltfix.heat import Heat, load_heat, stage_material
 from meltfix.planner import PlanOptions, Planner
 from meltfix.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, load_settings, parse_grade, parse_material
 from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
@@ -168,7 +168,7 @@ def independent_odds(heat: Heat, book: RecipeBook, plan_kg: dict[str, float], dr
     element = bath[:, None] * start / 100
     final = bath.copy()
     for name, kg in plan_kg.items():
-        m = book.material(name)
+        m = stage_material(heat, book, name)  # the recoveries at the heat's stage
         for s, pct in m.composition_pct.items():
             sd = 0.0 if s == "Fe" else m.recovery_scatter.get(s, scatter.recovery)
             r = np.minimum(m.recovery.get(s, 1.0) * (1 + sd * rng.standard_normal(draws)), 1.0)
