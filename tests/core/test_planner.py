@@ -224,14 +224,16 @@ def test_capacity_too_small_for_the_dilution_a_residual_needs() -> None:
     assert "cannot be refined out" in violation.reason  # copper stays in liquid steel (common practice)
 
 
-def test_carbon_too_high_points_to_oxidation() -> None:
+def test_carbon_too_high_in_a_ladle_points_back_to_the_furnace() -> None:
     shop = book([CLEAN_IRON, {"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0, "C": 7.0}}],
                 [{"name": "1020", "window": {"C": [0.18, 0.23], "Mn": [0.30, 0.60]}}])
     plan = plan_heat(heat("1020", 30_000.0, {"C": 0.35, "Mn": 0.45}, capacity_kg=31_000.0), shop, NO_AIM)
     assert plan.status == "closest"
     (violation,) = plan.violations
     assert (violation.element, violation.limit) == ("C", "max")
-    assert "in the furnace, oxidation is the remedy" in violation.reason
+    # Nothing at a ladle oxidises carbon out; the furnace's oxygen blow does (meltfix.reasons.REMEDIES,
+    # checked in tests/core/test_reasons.py).
+    assert "take the heat back to the furnace" in violation.reason
     # The free room goes to clean iron (up to the planner's hair), and Mn stays inside its window.
     # By hand: 105 kg of C, the least miss keeps 105 - 0.0023 x 31 000 = 33.7 kg over; 2 % more plus 1e-4
     # of the limit's 69 kg is 34.381 kg, so M >= (105 - 34.381) / 0.0023 = 30 704 kg.
