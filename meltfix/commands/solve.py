@@ -24,6 +24,10 @@ if TYPE_CHECKING:  # SciPy and NumPy load when a heat is planned, not to print -
 _SEVERITY = {EXIT_OK: 0, EXIT_SHORT: 1, EXIT_CLOSEST: 2, EXIT_BAD_INPUT: 3}
 # Memory grows with draws x elements x materials (about 5 kB a draw for the demo shop).
 _MAX_DRAWS = 20_000
+_MAX_JOBS = 64
+# Heats go to the processes in runs of consecutive files, a few runs per process, so each run
+# loads the recipe book once and plans on hot models, and a slow run does not hold the others up.
+_RUNS_PER_JOB = 4
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -39,9 +43,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="plan to the exact windows with no margin for scatter (for comparison)")
     parser.add_argument("--draws", metavar="N", type=int, default=2000, help="Monte Carlo draws per heat (default 2000)")
     parser.add_argument("--seed", metavar="S", type=int, default=0, help="seed of the draws (default 0)")
+    parser.add_argument("--jobs", metavar="N", type=int, default=1,
+                        help="plan the heats in N processes (output stays in the order given; default 1)")
 
 
 def run(args: argparse.Namespace) -> int:
+    if not 1 <= args.jobs <= _MAX_JOBS:
+        raise InputError("command line", "--jobs", f"{args.jobs} is outside 1..{_MAX_JOBS}")
+    if args.jobs > 1 and len(args.heats) > 1:
+        return _run_in_processes(args)
+    return _run_here(args)
+
+
+def _run_here(args: argparse.Namespace) -> int:
     from meltfix.heat import load_heat
     from meltfix.planner import PlanOptions
     from meltfix.recipes import load_recipes
@@ -84,3 +98,45 @@ def exit_status(risk: RiskPlan) -> int:
     if risk.plan.status != "optimal":
         return EXIT_CLOSEST
     return EXIT_OK if risk.reached else EXIT_SHORT
+
+
+def _run_in_processes(args: argparse.Namespace) -> int:
+    """Plan runs of consecutive heats in ``args.jobs`` processes; print each run's output as it
+    comes, in the order the heats were given."""
+    import os
+    import shutil
+    from concurrent.futures import ProcessPoolExecutor
+
+    heats = list(args.heats)
+    size = -(-len(heats) // (args.jobs * _RUNS_PER_JOB))
+    runs = [argparse.Namespace(**{**vars(args), "heats": heats[k:k + size], "jobs": 1})
+            for k in range(0, len(heats), size)]
+    # The workers print into buffers: they format as this terminal would (its width, colour or not).
+    looks = {"COLUMNS": str(shutil.get_terminal_size().columns)}
+    if sys.stdout.isatty() and "NO_COLOR" not in os.environ:
+        looks["FORCE_COLOR"] = "1"
+    worst = EXIT_OK
+    with ProcessPoolExecutor(max_workers=args.jobs, initializer=os.environ.update, initargs=(looks,)) as pool:
+        for status, out, err, error in pool.map(_run_captured, runs):
+            sys.stdout.write(out)
+            sys.stderr.write(err)
+            sys.stdout.flush()
+            if error is not None:  # bad input for every heat (the recipe book, an option): as without --jobs
+                raise InputError(*error)
+            worst = max(worst, status, key=_SEVERITY.__getitem__)
+    return worst
+
+
+def _run_captured(args: argparse.Namespace) -> tuple[int, str, str, tuple[str, str, str] | None]:
+    """One run of heats in a worker process: (exit status, stdout, stderr, the bad-input error that
+    stopped the whole run, if any)."""
+    import contextlib
+    import io
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            status = _run_here(args)
+        except InputError as exc:
+            return EXIT_BAD_INPUT, out.getvalue(), err.getvalue(), (exc.source, exc.field, exc.message)
+    return status, out.getvalue(), err.getvalue(), None

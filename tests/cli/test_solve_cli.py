@@ -120,6 +120,19 @@ def test_several_heats_as_json_lines_in_order_with_the_worst_exit(capsys: pytest
     assert [p["status"] for p in plans] == ["optimal", "closest", "optimal"]
 
 
+def test_jobs_plans_in_processes_and_keeps_the_order_and_the_worst_exit(capsys: pytest.CaptureFixture[str],
+                                                                       recipes: Path, tmp_path: Path) -> None:
+    bad = tmp_path / "bad.toml"
+    bad.write_text('grade = "Trim"\nbath_kg = 0\n[analysis]\nC = 0.4\n', encoding="utf-8")
+    heats = [HEATS / "trim.toml", HEATS / "copper.toml", bad, HEATS / "manganese.toml"] * 5
+    alone = solve(capsys, recipes, *heats, "--json")
+    assert solve(capsys, recipes, *heats, "--json", "--jobs", "3") == alone
+    assert alone[0] == 2 and len(alone[1].splitlines()) == len(heats)
+    assert solve(capsys, recipes, *heats, "--jobs", "2") == solve(capsys, recipes, *heats)
+    status, _, err = solve(capsys, tmp_path / "nowhere", *heats, "--jobs", "2")
+    assert status == 2 and len(err.splitlines()) == 1 and "recipes folder not found" in err
+
+
 def test_closest_plan_exits_3_with_the_reason(capsys: pytest.CaptureFixture[str], recipes: Path) -> None:
     status, out, _ = solve(capsys, recipes, HEATS / "copper.toml", "--json")
     plan = json.loads(out)
