@@ -1,30 +1,40 @@
-"""How fast the planner is on the demo shop: prints figures, asserts nothing (issue 3, item 6).
+"""How fast the planner is, as ratios to floors measured in the same run: prints figures, asserts nothing.
 
-    /tmp/venv/bin/python bench/plan_speed.py [--heats 1000] [--repeat 20] [--seed 7]
+    python3 bench/plan_speed.py [--heats 1000] [--repeat 10] [--seed 7] [--sizes 25,100,200,400]
 
-1. Median and 90th-percentile time per plan on each demo heat (the whole recipe book, every element
-   of the grade), as a linear programme (--continuous) and with whole packs.
-2. Wall time for a batch of varied heats planned in one process by one Planner: each demo heat with
-   its bath weight and analysis shaken at random (seeded), so some heats need much and some little
-   and some cannot be brought in at all (closest plans, which cost two more solves). The batch is
-   planned once in one thread and once by two threads sharing the Planner (HiGHS releases the GIL).
+1. Per plan on each demo heat, as an LP (--continuous) and with whole packs: the planner's time
+   against the floor, HiGHS itself solving the same problem on a hot model of its own (the heat's
+   bounds and costs written, one run: the MIP when the problem has integers, else the LP).
+2. A batch of varied heats (each demo heat with its bath and analysis shaken, seeded; some cannot
+   be brought in and get closest plans), with packs: one process, and `meltfix solve --jobs 2` on
+   the same heats written as files, against the floor's time for the same heats.
+3. Plan time with packs at 25, 100, 200 and 400 materials (the demo book's materials repeated with
+   shaken prices and contents), against the time budget per plan (shop.toml plan_time_limit_s).
 
-Targets (issue 3): far under 50 ms per plan; 1,000 heats in under 20 s on a 2-core machine.
+Goals (issue 14): LP <= 1.5x its floor, packs <= 1.2x, the batch <= 1.2x the floor's time, p90 under
+300 ms at 200 materials and every plan inside its budget at 400. On a shared machine the wall-clock
+figures move with the load; the ratios, measured side by side, move much less.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
+import subprocess
+import sys
+import tempfile
 import time
-from concurrent.futures import ThreadPoolExecutor
+from dataclasses import replace
 from pathlib import Path
+from types import MappingProxyType
 
 import numpy as np
 
 from meltfix.analysis import Analysis
-from meltfix.heat import Heat, load_heat
+from meltfix.heat import Heat, heat_to_toml, load_heat
 from meltfix.paths import demo_dir
+from meltfix.plan_model import HotModel, ModelShape
 from meltfix.planner import PlanOptions, Planner
 from meltfix.recipes import RecipeBook, load_recipes
 
@@ -49,61 +59,135 @@ def varied_heats(base: list[Heat], count: int, seed: int) -> list[Heat]:
     return heats
 
 
-def per_plan_ms(planner: Planner, heat: Heat, options: PlanOptions, repeat: int) -> list[float]:
-    times = []
-    for _ in range(repeat):
+def bigger_book(book: RecipeBook, count: int, seed: int) -> RecipeBook:
+    """The book with ``count`` materials: its own, then copies with prices ×0.8–1.2 and every content
+    ×0.9–1.1 (iron the balance), so no copy simply duplicates another."""
+    rng = np.random.default_rng(seed)
+    materials = list(book.materials)
+    k = 0
+    while len(materials) < count:
+        m = book.materials[k % len(book.materials)]
+        scale = min(rng.uniform(0.9, 1.1), 100.0 / max(sum(m.composition_pct.values()), 1e-9))
+        composition = {s: v * scale for s, v in m.composition_pct.items() if s != "Fe"}
+        materials.append(replace(m, name=f"{m.name} #{k}", price_per_kg=m.price_per_kg * rng.uniform(0.8, 1.2),
+                                 composition_pct=MappingProxyType(composition)))
+        k += 1
+    return replace(book, materials=tuple(materials[:count]))
+
+
+class Floor:
+    """HiGHS alone on hot models of the same problems: per heat only the writes and one run."""
+
+    def __init__(self, book: RecipeBook) -> None:
+        self.book = book
+        self.models: dict[tuple[str, str, bool, bool], HotModel] = {}
+
+    def seconds(self, heat: Heat, options: PlanOptions) -> float:
+        key = (heat.grade, heat.stage, options.continuous, options.use_aim)
+        if key not in self.models:
+            self.models[key] = HotModel(ModelShape(self.book, self.book.grade(heat.grade), *key[1:]))
+        model = self.models[key]
+        penalty = options.aim_penalty if options.aim_penalty is not None else self.book.settings.aim_penalty
+        load = model.shape.load(heat, penalty)
         start = time.perf_counter()
-        planner.plan(heat, options)
-        times.append((time.perf_counter() - start) * 1000.0)
-    return times
+        model.load(load)
+        if load.integrality.any():
+            model.solve_mip(60.0, options.mip_rel_gap)
+        else:
+            model.solve_lp()
+        return time.perf_counter() - start
+
+
+def timed(planner: Planner, heat: Heat, options: PlanOptions) -> float:
+    start = time.perf_counter()
+    planner.plan(heat, options)
+    return time.perf_counter() - start
+
+
+def ms(seconds: list[float]) -> str:
+    return (f"median {1000 * statistics.median(seconds):7.2f} ms, p90 {1000 * np.percentile(seconds, 90):7.2f} ms, "
+            f"max {1000 * max(seconds):7.1f} ms")
+
+
+def per_plan(book: RecipeBook, repeat: int) -> None:
+    planner, floor = Planner(book), Floor(book)
+    base = demo_heats(book)
+    print(f"1. per plan, {len(book.materials)} materials, {len(base)} demo heats x {repeat}")
+    for name, options in (("LP (--continuous)", PlanOptions(continuous=True)), ("whole packs", PlanOptions())):
+        ours, hers = [], []
+        for heat in base:
+            planner.plan(heat, options), floor.seconds(heat, options)  # the first of each pays the build
+            for _ in range(repeat):  # interleaved, so a burst of load hits both alike
+                ours.append(timed(planner, heat, options))
+                hers.append(floor.seconds(heat, options))
+        ratio = statistics.median(ours) / statistics.median(hers)
+        print(f"   {name:<18} planner {ms(ours)}")
+        print(f"   {'':<18} floor   {ms(hers)}   ratio of medians {ratio:.2f} "
+              f"(sum {sum(ours) / sum(hers):.2f})")
+
+
+def batch(book: RecipeBook, count: int, seed: int) -> None:
+    heats = varied_heats(demo_heats(book), count, seed)
+    options = PlanOptions()
+    floor = Floor(book)
+    floor_s = sum(floor.seconds(heat, options) for heat in heats)
+    planner = Planner(book)
+    statuses: dict[str, int] = {}
+    start = time.perf_counter()
+    for heat in heats:
+        status = planner.plan(heat, options).status
+        statuses[status] = statuses.get(status, 0) + 1
+    one = time.perf_counter() - start
+    print(f"2. {count} varied heats with packs ({statuses})")
+    print(f"   one process, one Planner: {one:6.2f} s   floor {floor_s:6.2f} s   ratio {one / floor_s:.2f}")
+    with tempfile.TemporaryDirectory() as folder:
+        paths = []
+        for heat in heats:
+            path = Path(folder) / f"{heat.heat_id}.toml"
+            path.write_text(heat_to_toml(heat), encoding="utf-8")
+            paths.append(str(path))
+        code = "import sys; from meltfix.cli import main; sys.exit(main())"
+        for jobs in (1, 2):
+            start = time.perf_counter()
+            subprocess.run([sys.executable, "-c", code, "solve", *paths, "--json", "--jobs", str(jobs)],
+                           stdout=subprocess.DEVNULL, check=False)
+            wall = time.perf_counter() - start
+            print(f"   meltfix solve --jobs {jobs} (whole process): {wall:6.2f} s   ratio to the floor {wall / floor_s:.2f}")
+
+
+def sizes(book: RecipeBook, counts: list[int], heats: int, seed: int) -> None:
+    base = varied_heats(demo_heats(book), heats, seed)
+    print(f"3. plan time with packs by recipe-book size, {heats} varied heats each "
+          f"(budget {book.settings.plan_time_limit_s:g} s per plan)")
+    for count in counts:
+        big = bigger_book(book, count, seed)
+        planner, floor = Planner(big), Floor(big)
+        ours, hers, unproven = [], [], 0
+        for heat in base:
+            start = time.perf_counter()
+            plan = planner.plan(heat, PlanOptions())
+            ours.append(time.perf_counter() - start)
+            unproven += not plan.proven
+            hers.append(floor.seconds(heat, PlanOptions()))
+        over = sum(t > book.settings.plan_time_limit_s for t in ours)
+        print(f"   {count:4d} materials: planner {ms(ours)}; floor median {1000 * statistics.median(hers):7.2f} ms; "
+              f"{unproven} stopped by the budget, {over} over it")
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--heats", type=int, default=1000, help="heats in the batch")
-    parser.add_argument("--repeat", type=int, default=20, help="plans per demo heat for the medians")
+    parser.add_argument("--repeat", type=int, default=10, help="plans per demo heat for the per-plan figures")
     parser.add_argument("--seed", type=int, default=7)
+    parser.add_argument("--sizes", default="25,100,200,400", help="recipe-book sizes for part 3")
+    parser.add_argument("--size-heats", type=int, default=40, help="heats per size in part 3")
     parser.add_argument("--recipes", type=Path, default=None)
     args = parser.parse_args()
-
     book = load_recipes(args.recipes)
-    planner = Planner(book)
-    base = demo_heats(book)
-    modes = {"LP (--continuous)": PlanOptions(continuous=True), "whole packs": PlanOptions()}
-    planner.plan(base[0], modes["whole packs"])  # the first solve pays SciPy's and HiGHS's start-up
-
-    print(f"{len(book.materials)} materials, {len(base)} demo heats, {args.repeat} plans each")
-    print(f"{'heat':<12}{'grade':<20}" + "".join(f"{name + ' median/p90 ms':>34}" for name in modes))
-    pooled: dict[str, list[float]] = {name: [] for name in modes}
-    for heat in base:
-        cells = []
-        for name, options in modes.items():
-            times = per_plan_ms(planner, heat, options, args.repeat)
-            pooled[name] += times
-            cells.append(f"{statistics.median(times):.2f} / {np.percentile(times, 90):.2f}")
-        print(f"{heat.heat_id:<12}{heat.grade:<20}" + "".join(f"{cell:>34}" for cell in cells))
-    for name, times in pooled.items():
-        print(f"all demo heats, {name}: median {statistics.median(times):.2f} ms, "
-              f"p90 {np.percentile(times, 90):.2f} ms, max {max(times):.2f} ms")
-
-    batch = varied_heats(base, args.heats, args.seed)
-    for name, options in modes.items():
-        statuses: dict[str, int] = {}
-        times = []
-        start = time.perf_counter()
-        for heat in batch:
-            t0 = time.perf_counter()
-            status = planner.plan(heat, options).status
-            times.append(time.perf_counter() - t0)
-            statuses[status] = statuses.get(status, 0) + 1
-        wall = time.perf_counter() - start
-        print(f"{len(batch)} varied heats, {name}, one thread: {wall:.2f} s wall "
-              f"({1000 * wall / len(batch):.2f} ms per heat, p90 {1000 * np.percentile(times, 90):.2f} ms, "
-              f"max {1000 * max(times):.1f} ms; {statuses})")
-        start = time.perf_counter()
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            list(pool.map(lambda heat: planner.plan(heat, options), batch))
-        print(f"{len(batch)} varied heats, {name}, two threads: {time.perf_counter() - start:.2f} s wall")
+    print(f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs")
+    per_plan(book, args.repeat)
+    batch(book, args.heats, args.seed)
+    sizes(book, [int(n) for n in args.sizes.split(",")], args.size_heats, args.seed)
 
 
 if __name__ == "__main__":

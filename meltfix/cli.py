@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
-from collections.abc import Sequence
+from collections.abc import Collection, Sequence
 
 from meltfix import __version__
 from meltfix.errors import InputError
@@ -32,7 +32,9 @@ COMMANDS = {
 }
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(detailed: Collection[str] = tuple(COMMANDS)) -> argparse.ArgumentParser:
+    """The command line's parser. Only the commands in ``detailed`` get their options, which imports
+    their modules: `meltfix --help` lists the commands from their summaries and imports none."""
     parser = argparse.ArgumentParser(
         prog="meltfix",
         description="Plan the cheapest additions that bring a heat of steel or iron into its grade. "
@@ -42,9 +44,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"meltfix {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module_name, summary) in COMMANDS.items():
-        module = importlib.import_module(f"meltfix.commands.{module_name}")
         command = sub.add_parser(name, help=summary, description=summary[0].upper() + summary[1:] + ".")
-        module.add_arguments(command)
+        if name in detailed:
+            importlib.import_module(f"meltfix.commands.{module_name}").add_arguments(command)
     return parser
 
 
@@ -53,7 +55,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     # `meltfix` alone, `meltfix HEAT.toml` or `meltfix --recipes DIR` (any screen option) opens the screen.
     if not args_list or (args_list[0] not in COMMANDS and args_list[0] not in ("-h", "--help", "--version")):
         args_list.insert(0, "screen")
-    parser = build_parser()
+    parser = build_parser(detailed=args_list[:1])
     args = parser.parse_args(args_list)
     module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
     try:

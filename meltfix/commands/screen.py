@@ -7,8 +7,6 @@ inside run(), so the plain command line never loads it.
 from __future__ import annotations
 
 import argparse
-import importlib
-import threading
 from pathlib import Path
 
 from meltfix.errors import InputError
@@ -40,9 +38,6 @@ def first_demo_heat() -> Path:
 
 def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep Textual out of this module
     """Load the recipe book and the heat (raising InputError for bad input) and make the app."""
-    # SciPy takes longer to import than Textual takes to draw the screen: load it alongside, so the
-    # first plan's worker finds it ready (the worker's own import waits on the same import lock).
-    threading.Thread(target=importlib.import_module, args=("meltfix.planner",), daemon=True).start()
     from meltfix.heat import load_heat
     from meltfix.recipes import load_recipes
     from meltfix.tui.app import make_app

@@ -53,3 +53,18 @@ def test_planning_never_imports_scipy() -> None:
         "assert 'scipy' not in sys.modules, sorted(m for m in sys.modules if m.startswith('scipy'))\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_help_imports_only_the_parser() -> None:
+    code = (
+        "import sys\n"
+        "from meltfix.cli import main\n"
+        "try:\n"
+        "    main(['--help'])\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "loaded = sorted(m for m in sys.modules if m.startswith('meltfix'))\n"
+        "assert loaded == ['meltfix', 'meltfix.cli', 'meltfix.errors'], loaded\n"
+        "assert not [m for m in ('numpy', 'rich', 'tomllib') if m in sys.modules]\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True, capture_output=True)

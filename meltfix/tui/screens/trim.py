@@ -179,13 +179,16 @@ class TrimScreen(Screen[None]):
             view.mark_stale(_summary(draft.errors))
         else:
             view.mark_updating()
-            self.plan_in_background(draft.heat, self.revision)
+            if self._planner is None:  # the first plan: the frame paints first, then the solver loads
+                self.call_after_refresh(self.plan_in_background, draft.heat, self.revision)
+            else:
+                self.plan_in_background(draft.heat, self.revision)
         self._sync_bindings()
 
     @work(thread=True, exclusive=True, exit_on_error=False, group="planner")
     def plan_in_background(self, heat: Heat, revision: int) -> None:
         if self._planner is None:
-            from meltfix.planner import Planner  # SciPy loads here, off the screen's start-up path
+            from meltfix.planner import Planner  # the solver loads here, after the first frame
 
             self._planner = Planner(self.book)
         try:
