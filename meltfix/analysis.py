@@ -59,6 +59,8 @@ def parse_reading(value: object, source: object, field_name: str, *, ppm: bool =
     """
     if isinstance(value, bool):
         raise InputError(source, field_name, "expected a number, got true/false")
+    if isinstance(value, int) and abs(value) > 1_000_000:  # float() of a 400-digit integer overflows
+        raise InputError(source, field_name, f"{str(value)[:20]}... is far above 100 %")
     if isinstance(value, (int, float)):
         number, below, unit_ppm = float(value), False, ppm
     elif isinstance(value, str):

@@ -7,9 +7,11 @@ Each command lives in ``meltfix.commands.<name>`` with ``add_arguments(parser)``
 from __future__ import annotations
 
 import argparse
+import difflib
 import importlib
 import sys
 from collections.abc import Collection, Sequence
+from pathlib import Path
 
 from meltfix import __version__
 from meltfix.errors import InputError
@@ -54,6 +56,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     args_list = list(sys.argv[1:] if argv is None else argv)
     # `meltfix` alone, `meltfix HEAT.toml` or `meltfix --recipes DIR` (any screen option) opens the screen.
     if not args_list or (args_list[0] not in COMMANDS and args_list[0] not in ("-h", "--help", "--version")):
+        unknown = _unknown_command(args_list[0]) if args_list else None
+        if unknown is not None:
+            print(f"meltfix: {unknown}", file=sys.stderr)
+            return EXIT_BAD_INPUT
         args_list.insert(0, "screen")
     parser = build_parser(detailed=args_list[:1])
     args = parser.parse_args(args_list)
@@ -65,6 +71,18 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
+
+
+def _unknown_command(word: str) -> str | None:
+    """What to say when ``word`` looks like a mistyped command rather than a heat file to open."""
+    if word.startswith("-") or word.endswith(".toml") or Path(word).exists():
+        return None
+    near = difflib.get_close_matches(word, COMMANDS, n=1, cutoff=0.6)
+    if near:
+        return f"command line: '{word}' is not a command; did you mean '{near[0]}'? (meltfix --help lists them)"
+    if "/" in word or "." in word:
+        return None  # a path: the screen says the file is not there
+    return f"command line: '{word}' is not a command (meltfix --help lists them: {', '.join(COMMANDS)})"
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -79,6 +79,10 @@ _ROUTES = {
                                frozenset({"Mg"})),
 }
 _RESIDUALS = {"Sn": (0.004, 0.014)}  # tramp elements in the analysis although no window lists them
+# Residuals a carbon equivalent reads although the grade sets them no window (invented, typical of
+# scrap-based steel): the analysis reports them, as the planner needs every element a limit reads.
+_INDEX_RESIDUALS = {"Cr": (0.02, 0.10), "Ni": (0.02, 0.10), "Mo": (0.005, 0.02), "V": (0.001, 0.004),
+                    "Cu": (0.05, 0.20), "P": (0.015, 0.035)}
 # What the crew takes when the planned bin is empty or out of reach (invented), and the element swapped for.
 _SWAPS = {"HC FeMn": ("SiMn", "MC FeMn"), "MC FeMn": ("HC FeMn",), "SiMn": ("HC FeMn",),
           "HC FeCr": ("LC FeCr",), "LC FeCr": ("HC FeCr",), "Aluminium wire": ("Aluminium shot",),
@@ -104,6 +108,10 @@ class _DemoShop:
 
         self.planner = Planner(book)
         self.rng = np.random.default_rng(SEED)
+        # Residuals only an index reads draw from their own stream, so the rest of the invented
+        # week does not depend on which residuals a grade's carbon equivalent lists.
+        self.trace_rng = np.random.default_rng(SEED + 1)
+        self.traces: frozenset[str] = frozenset()
         self.routes = {name: route for name, route in _ROUTES.items() if name in book.grades}
         if not self.routes:
             raise ValueError("the recipe book has none of the demo shop's grades")
@@ -132,6 +140,7 @@ class _DemoShop:
         true_kg = route.bath_kg * float(rng.normal(1.0, 0.02))  # the crane scale is not exact
         recorded_kg = route.bath_kg
         true_pct = self._tap_analysis(grade, route)
+        self.traces = frozenset({s for index in grade.indices for s in index.terms} - set(grade.window_pct))
         temperature = route.temperature_c + float(rng.normal(0, 6))
         # Real recoveries of this heat: the book's, times a factor per material (slag, oxygen, stirring).
         factors = {m.name: float(np.clip(rng.normal(0.98, 0.03), 0.85, 1.05)) for m in self.book.materials}
@@ -182,6 +191,9 @@ class _DemoShop:
                 pct[symbol] = aim * float(rng.uniform(0.85, 0.97))
             else:
                 pct[symbol] = aim * float(rng.uniform(0.5, 0.95))
+        for symbol in sorted({s for index in grade.indices for s in index.terms} - set(pct)):
+            lo, hi = _INDEX_RESIDUALS[symbol]
+            pct[symbol] = float(self.trace_rng.uniform(lo, hi))
         for symbol, (lo, hi) in _RESIDUALS.items():
             pct.setdefault(symbol, float(rng.uniform(lo, hi)))
         return pct
@@ -214,9 +226,10 @@ class _DemoShop:
 
     def _burn(self, true_pct: dict[str, float], below: frozenset[str]) -> Analysis:
         # Repeatability about 1 % relative (common practice for spark OES on low-alloy steel).
-        noise = self.rng.normal(1.0, 0.01, len(true_pct))
-        pct = {s: (v if s in below else _round_pct(max(v * f, 0.0)))
-               for (s, v), f in zip(true_pct.items(), noise, strict=True)}
+        main = [s for s in true_pct if s not in self.traces]
+        noise = dict(zip(main, self.rng.normal(1.0, 0.01, len(main)), strict=True))
+        noise.update((s, float(self.trace_rng.normal(1.0, 0.01))) for s in true_pct if s in self.traces)
+        pct = {s: (v if s in below else _round_pct(max(v * noise[s], 0.0))) for s, v in true_pct.items()}
         return Analysis(pct, below)
 
     def _done(self, grade: Grade, reading: Analysis) -> bool:

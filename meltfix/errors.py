@@ -2,6 +2,25 @@
 
 from __future__ import annotations
 
+import re
+
+# C0 controls (tab and newline too: an error is one line), DEL, C1 controls (0x9b starts a terminal
+# command on its own), and the bidirectional overrides that reorder what a reader sees.
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
+
+
+def visible(text: str) -> str:
+    """``text`` with every control character shown as an escape (``\\x1b``), so it prints as one
+    harmless line whatever a file or an instrument put in it."""
+    return _CONTROL.sub(lambda found: f"\\x{ord(found.group()):02x}" if ord(found.group()) < 0x100
+                        else f"\\u{ord(found.group()):04x}", text)
+
+
+def control_character(text: str) -> str | None:
+    """The first control character in ``text`` as its escape, or None."""
+    found = _CONTROL.search(text)
+    return None if found is None else visible(found.group())
+
 
 class InputError(Exception):
     """Bad input from a file or a field, reported to the user as one plain line.
@@ -18,4 +37,4 @@ class InputError(Exception):
 
     def __str__(self) -> str:
         where = f"{self.source}: {self.field}" if self.field else self.source
-        return f"{where}: {self.message}"
+        return visible(f"{where}: {self.message}")

@@ -21,7 +21,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from meltfix.elements import element_sort_key
-from meltfix.heat import Heat, usable_materials, validate_heat
+from meltfix.heat import Heat, checked_grade, usable_materials, validate_heat
 from meltfix.massbalance import bath_after, single_addition_kg, temperature_drop_c
 from meltfix.planner import LIMIT_TOL_PCT, Addition, LimitCheck, addition, recheck
 from meltfix.recipes import Grade, Material, RecipeBook
@@ -236,7 +236,7 @@ def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], r
 def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> HandPlan:
     """Trim ``heat`` the way a melter does by hand (see the module notes). Raises InputError on a bad heat."""
     validate_heat(heat, book)
-    grade = book.grade(heat.grade)
+    grade = checked_grade(heat, book.grade(heat.grade))
     usable = usable_materials(heat, book)
     trim = _Trim(heat, usable)
     clean = sorted((m for m in usable if m.kind == "dilution"), key=lambda m: m.price_per_kg)

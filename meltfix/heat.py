@@ -11,12 +11,13 @@ from types import MappingProxyType
 from typing import Any
 
 from meltfix.analysis import Analysis, analysis_from_table
+from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key, normalise_symbol
 from meltfix.errors import InputError
-from meltfix.recipes import (Material, RecipeBook, ShopSettings, identifier, known_keys, number, read_toml,
+from meltfix.recipes import (Grade, Material, RecipeBook, ShopSettings, identifier, known_keys, number, read_toml,
                              require, table, text)
 
 _HEAT_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "analysis", "temperature_c", "max_temp_drop_c",
-              "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg", "dissolved_o_ppm"}
+              "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg", "dissolved_o_ppm", "not_measured"}
 # Oxygen dissolved in liquid iron saturates (against FeO) at about 0.23 % = 2300 ppm at 1600 °C
 # (from memory): a probe reading above this bound is a slip of the pen (wt % typed as ppm, say).
 _MAX_DISSOLVED_O_PPM = 2500.0
@@ -49,6 +50,9 @@ class Heat:
     dissolved_o_ppm: float | None = None
     """Oxygen dissolved in the bath by an oxygen probe [ppm]; None = not measured. Distinct from any
     O in the analysis: it is the oxygen aluminium will bind before any Al stays in the bath."""
+    not_measured: frozenset[str] = frozenset()
+    """Elements the grade limits that were knowingly not analysed: their limits go unchecked (and
+    say so in a caution) instead of the plan stopping. Never taken as 0 %."""
 
     def with_changes(self, **changes: Any) -> "Heat":
         return replace(self, **changes)
@@ -88,6 +92,67 @@ def stage_material(heat: Heat, book: RecipeBook, name: str) -> Material:
     return book.material(name).at_stage(heat.stage)
 
 
+def needed_elements(grade: Grade) -> frozenset[str]:
+    """Elements a grade's limits read: its windows and every term of its indices."""
+    return frozenset(grade.window_pct) | {s for index in grade.indices for s, w in index.terms.items() if w}
+
+
+def unmeasured(heat: Heat, grade: Grade) -> list[str]:
+    """Elements the grade's limits need that the analysis lacks and the heat has not declared
+    ``not_measured``, in sheet order. A plan built without them would take them as 0 %."""
+    missing = needed_elements(grade) - set(heat.analysis.pct) - heat.not_measured
+    return sorted(missing, key=element_sort_key)
+
+
+def checked_grade(heat: Heat, grade: Grade) -> Grade:
+    """The grade as this heat can be checked against it: the windows, aims and indices that read an
+    element declared ``not_measured`` are left out (a caution says so), never checked against 0 %."""
+    if not heat.not_measured & needed_elements(grade):
+        return grade
+    skip = heat.not_measured
+    return replace(
+        grade,
+        window_pct=MappingProxyType({s: w for s, w in grade.window_pct.items() if s not in skip}),
+        aim_pct=MappingProxyType({s: a for s, a in grade.aim_pct.items() if s not in skip}),
+        indices=tuple(i for i in grade.indices if not {s for s, w in i.terms.items() if w} & skip),
+    )
+
+
+def unchecked_caution(heat: Heat) -> tuple[str, ...]:
+    """The caution a plan carries first when the heat declares elements not measured (none otherwise)."""
+    if not heat.not_measured:
+        return ()
+    listed = ", ".join(sorted(heat.not_measured, key=element_sort_key))
+    return (f"NOT MEASURED: {listed} — declared not measured, so the limits that read them are NOT checked by "
+            "this plan and are left out of its odds; analyse them before the heat is released.",)
+
+
+def plausibility_error(heat: Heat, settings: ShopSettings, family: str, source: object) -> InputError | None:
+    """The first value outside what the shop's baths can hold, as one error naming the field and the
+    likely slip; None when every value is plausible."""
+    low, high = settings.bath_kg_range
+    bath = heat.bath_kg
+    if bath < low:
+        slip = "; tonnes?" if low <= bath * 1000 <= high else ""
+        return InputError(source, "bath_kg", f"bath_kg {bath:g}: below the shop's {low:,.0f} kg{slip}")
+    if bath > high:
+        slip = "; grams?" if low <= bath / 1000 <= high else ""
+        return InputError(source, "bath_kg", f"bath_kg {bath:g}: above the shop's {high:,.0f} kg{slip}")
+    for symbol, pct in heat.analysis.pct.items():
+        most = settings.plausible_max_pct.get(symbol)
+        if most is None or pct <= most:
+            continue
+        if symbol in PPM_ELEMENTS and pct <= 100 and pct / PPM_PER_PCT <= most:
+            slip = f"; ppm? write \"{pct:g} ppm\""
+        elif pct / 100 <= most:
+            slip = f"; {pct / 100:g}?"
+        else:
+            slip = ""
+        return InputError(source, f"analysis.{symbol}",
+                          f"{symbol} {pct:g} %: a {family} bath holds at most {most:g} %{slip}")
+    return None
+
+
 def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat:
     """Check a heat against the recipe book; raise InputError naming the field at fault."""
     if not math.isfinite(heat.bath_kg) or heat.bath_kg <= 0:
@@ -125,6 +190,20 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
         if not book.material(name).allowed_at(heat.stage):
             raise InputError(source, f"lock_kg.{name}", f"is not added at the {heat.stage} (its stages: "
                              f"{', '.join(sorted(book.material(name).stages or ()))})")
+    grade = book.grades[heat.grade]
+    implausible = plausibility_error(heat, book.settings, grade.family, source)
+    if implausible is not None:
+        raise implausible
+    missing = unmeasured(heat, grade)
+    if missing:
+        listed = ", ".join(missing)
+        raise InputError(source, "analysis", f"{listed} not measured: grade {heat.grade} limits "
+                         f"{'them' if len(missing) > 1 else 'it'}; add the value, or declare "
+                         f"not_measured = {json.dumps(missing)} to plan with those limits unchecked")
+    measured_twice = sorted(heat.not_measured & set(heat.analysis.pct), key=element_sort_key)
+    if measured_twice:
+        raise InputError(source, "not_measured", f"{', '.join(measured_twice)} also in the analysis: "
+                         "an element is either measured or not")
     return heat
 
 
@@ -141,6 +220,9 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
     switch_off = data.get("switch_off", [])
     if not isinstance(switch_off, list) or not all(isinstance(n, str) for n in switch_off):
         raise InputError(source, "switch_off", "expected a list of material names")
+    not_measured = data.get("not_measured", [])
+    if not isinstance(not_measured, list) or not all(isinstance(n, str) for n in not_measured):
+        raise InputError(source, "not_measured", "expected a list of element symbols, e.g. [\"Sn\", \"As\"]")
     return Heat(
         heat_id=identifier(data.get("heat", default_id), source, "heat"),
         grade=text(require(data, "grade", source, ""), source, "grade"),
@@ -156,6 +238,7 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
         price_per_kg=MappingProxyType(_weights(data.get("price_per_kg", {}), source, "price_per_kg")),
         stock_kg=MappingProxyType(_weights(data.get("stock_kg", {}), source, "stock_kg")),
         dissolved_o_ppm=None if oxygen is None else number(oxygen, source, "dissolved_o_ppm"),
+        not_measured=frozenset(normalise_symbol(s, source, "not_measured") for s in not_measured),
     )
 
 
@@ -184,6 +267,8 @@ def heat_to_toml(heat: Heat) -> str:
             lines.append(f"{key} = {num(value)}")
     if heat.switched_off:
         lines.append(f"switch_off = {json.dumps(sorted(heat.switched_off))}")
+    if heat.not_measured:
+        lines.append(f"not_measured = {json.dumps(sorted(heat.not_measured, key=element_sort_key))}")
     lines += ["", "[analysis]"]
     for symbol, pct in heat.analysis.pct.items():
         value = json.dumps(f"<{float(pct)!r}") if symbol in heat.analysis.below_limit else num(pct)

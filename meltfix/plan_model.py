@@ -288,9 +288,6 @@ class ModelShape:
                          "not credited to the temperature")
         if heat.dissolved_o_ppm and not owed:
             notes.append(f"the dissolved O reading is not used: grade {grade.name} sets no Al window")
-        for s in grade.window_pct:
-            if s not in heat.analysis.pct:
-                notes.append(f"{s} is not in the analysis and is taken as 0 %")
 
         row_lower = np.full(self.n_rows, -_INF)
         row_upper = np.full(self.n_rows, _INF)

@@ -23,7 +23,7 @@ import numpy as np
 from meltfix.cautions import plan_cautions
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
-from meltfix.heat import Heat, validate_heat
+from meltfix.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.plan_model import HeatLoad, HotModel, ModelShape, Solution
 from meltfix.reasons import explain_violation
@@ -195,16 +195,18 @@ class Planner:
     def __init__(self, book: RecipeBook) -> None:
         self.book = book
         self._lock = threading.Lock()
-        self._shapes: dict[tuple[str, str, bool, bool], ModelShape] = {}
-        self._idle: dict[tuple[str, str, bool, bool], list[HotModel]] = {}
+        # Keyed by grade, stage, mode and the elements declared not measured (their limits are no rows).
+        self._shapes: dict[tuple[str, str, bool, bool, frozenset[str]], ModelShape] = {}
+        self._idle: dict[tuple[str, str, bool, bool, frozenset[str]], list[HotModel]] = {}
 
     @contextmanager
     def _model(self, heat: Heat, options: PlanOptions) -> Iterator[HotModel]:
-        key = (heat.grade, heat.stage, options.continuous, options.use_aim)
+        key = (heat.grade, heat.stage, options.continuous, options.use_aim, heat.not_measured)
         with self._lock:
             shape = self._shapes.get(key)
             if shape is None:
-                shape = self._shapes[key] = ModelShape(self.book, self.book.grade(heat.grade), *key[1:])
+                shape = self._shapes[key] = ModelShape(self.book, checked_grade(heat, self.book.grade(heat.grade)),
+                                                       heat.stage, options.continuous, options.use_aim)
             idle = self._idle.setdefault(key, [])
             model = idle.pop() if idle else None
         if model is None:
@@ -234,7 +236,7 @@ class Planner:
     def _result(self, heat: Heat, model: HotModel, load: HeatLoad, solution: Solution,
                 least: Solution | None, budget_s: float) -> Plan:
         book, shape = self.book, model.shape
-        grade = book.grade(heat.grade)
+        grade = shape.grade
         additions, used = _additions(shape, load, solution.x)
         final_kg, predicted, checks = recheck(heat, grade, used)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
@@ -271,7 +273,8 @@ class Planner:
             checks=checks,
             violations=tuple(violations),
             binding=binding,
-            cautions=plan_cautions(used, heat.bath_kg, drop, heat.temperature_c, book.settings),
+            cautions=unchecked_caution(heat) + plan_cautions(used, heat.bath_kg, drop, heat.temperature_c,
+                                                             book.settings),
             temperature_drop_c=drop,
             notes=notes,
             currency=book.settings.currency,

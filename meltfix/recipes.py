@@ -8,6 +8,7 @@ with shop-wide settings. Every problem raises :class:`InputError` naming the fil
 from __future__ import annotations
 
 import math
+import re
 import tomllib
 from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field, replace
@@ -16,7 +17,7 @@ from types import MappingProxyType
 from typing import Any
 
 from meltfix.elements import element_sort_key, normalise_symbol
-from meltfix.errors import InputError
+from meltfix.errors import InputError, control_character
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
 ADDITION_CLASSES = ("scrap", "treatment", "deoxidiser", "bulk alloy", "carbon", "trim", "late", "wire")
@@ -24,6 +25,24 @@ ADDITION_CLASSES = ("scrap", "treatment", "deoxidiser", "bulk alloy", "carbon", 
 # The class a material takes when its entry names none: by its kind (a wire is told by kg_per_m).
 _CLASS_OF_KIND = {"alloy": "bulk alloy", "carbon": "carbon", "metal": "bulk alloy", "dilution": "scrap",
                   "deoxidiser": "deoxidiser", "other": "trim"}
+
+# The most of each element a steel or cast-iron bath holds in practice [wt %] (common practice, from
+# memory): generous enough for high-alloy steels and alloyed irons (Hadfield and TWIP manganese
+# steels, 30 % chromium stainless and white irons, Invar and Ni-Resist nickel, 18 % tungsten
+# high-speed steel, high-silicon irons), so only a slip of the pen (0.45 typed as 45, ppm typed as
+# wt %) lies above. Elements not listed are bounded only by 100 %.
+PLAUSIBLE_MAX_PCT: dict[str, float] = {
+    "C": 5.0, "Si": 8.0, "Mn": 30.0, "P": 2.0, "S": 0.5, "Cr": 35.0, "Ni": 40.0, "Mo": 10.0, "Cu": 8.0,
+    "Al": 10.0, "V": 5.0, "Nb": 2.0, "Ti": 2.0, "W": 20.0, "Co": 20.0, "B": 0.05, "N": 1.0, "O": 0.3,
+    "H": 0.01, "Sn": 0.5, "Pb": 0.5, "Ca": 0.1, "Mg": 0.2, "Zr": 0.5, "As": 0.2, "Sb": 0.2, "Bi": 0.1,
+    "Ce": 0.5, "Se": 0.5, "Te": 0.1, "Zn": 0.1,
+}
+# The largest converters and ladles hold about 400 t (common practice): a bath above 2,000 t is a slip
+# (grams typed as kilograms, a stray exponent) and would only feed the solver absurd magnitudes.
+DEFAULT_MAX_BATH_KG = 2_000_000.0
+# Any other number from a file (a price, a stock, a penalty) is bounded too: 1e308 would overflow to
+# infinity inside the solver and be blamed on an unrelated field.
+MAX_MAGNITUDE = 1e9
 
 
 @dataclass(frozen=True)
@@ -181,6 +200,11 @@ class ShopSettings:
     correction_cost: float = 0.0
     """Cost of one correction when a heat misses [currency]: furnace time, a sample, energy."""
     scatter: Scatter = Scatter()
+    plausible_max_pct: Mapping[str, float] = field(default_factory=lambda: MappingProxyType(PLAUSIBLE_MAX_PCT))
+    """Most of each element a bath of this shop can hold [wt %]; above it a value is taken for a slip
+    (0.45 typed as 45). The shop's table adds to and overrides :data:`PLAUSIBLE_MAX_PCT`."""
+    bath_kg_range: tuple[float, float] = (0.0, DEFAULT_MAX_BATH_KG)
+    """Smallest and largest bath the shop melts [kg]; outside is a slip (tonnes typed as kg)."""
 
 
 @dataclass(frozen=True)
@@ -220,11 +244,31 @@ def read_toml(path: Path) -> dict[str, Any]:
     except IsADirectoryError:
         raise InputError(path, "", "is a folder, not a file") from None
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(path, "", f"not valid TOML ({exc})") from None
+        raise InputError(path, "", f"not valid TOML ({exc}){_decimal_comma_hint(path, str(exc))}") from None
+    except RecursionError:
+        raise InputError(path, "", "not valid TOML: tables or lists nested too deep") from None
     except UnicodeDecodeError:
         raise InputError(path, "", "not a UTF-8 text file") from None
     except OSError as exc:
         raise InputError(path, "", f"cannot be read ({exc.strerror})") from None
+
+
+_AT_LINE = re.compile(r"at line (\d+)")
+_DECIMAL_COMMA = re.compile(r"=\s*[+-]?\d+,\d+\s*(#.*)?$")
+
+
+def _decimal_comma_hint(path: Path, error: str) -> str:
+    """A hint when the faulty line holds a bare decimal comma (``C = 0,45``), which TOML reads as nothing."""
+    found = _AT_LINE.search(error)
+    try:
+        lines = path.read_text(encoding="utf-8", errors="replace").splitlines()
+    except OSError:
+        return ""
+    if found is None or not 0 < int(found.group(1)) <= len(lines):
+        return ""
+    if _DECIMAL_COMMA.search(lines[int(found.group(1)) - 1]):
+        return "; a decimal comma needs quotes (\"0,45\") or a point (0.45)"
+    return ""
 
 
 def require(table: Mapping[str, Any], key: str, source: object, where: str) -> Any:
@@ -235,10 +279,15 @@ def require(table: Mapping[str, Any], key: str, source: object, where: str) -> A
 
 def number(value: Any, source: object, field_name: str, *, minimum: float | None = 0.0,
            positive: bool = False) -> float:
-    """A finite number from TOML, checked against a lower bound."""
+    """A finite number from TOML, checked against a lower bound and :data:`MAX_MAGNITUDE`."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise InputError(source, field_name, f"expected a number, got {value!r}")
+        raise InputError(source, field_name, f"expected a number, got {_short(value)}")
+    # A TOML integer may have hundreds of digits: compare before float() overflows.
+    if isinstance(value, int) and abs(value) > MAX_MAGNITUDE:
+        raise InputError(source, field_name, f"{_short(value)} is too large (at most {MAX_MAGNITUDE:g})")
     result = float(value)
+    if math.isfinite(result) and abs(result) > MAX_MAGNITUDE:
+        raise InputError(source, field_name, f"{value!r} is too large (at most {MAX_MAGNITUDE:g})")
     if not math.isfinite(result):
         raise InputError(source, field_name, f"{value!r} is not a finite number")
     if positive and result <= 0:
@@ -248,9 +297,25 @@ def number(value: Any, source: object, field_name: str, *, minimum: float | None
     return result
 
 
+def _short(value: Any) -> str:
+    """A value quoted in a message, cut short: a 400-digit number or a 10,000-character text is not echoed."""
+    shown = repr(value)
+    return shown if len(shown) <= 40 else f"{shown[:37]}..."
+
+
+# Longest id or name shown whole on a screen, a ticket or a report line.
+MAX_NAME_CHARS = 200
+
+
 def text(value: Any, source: object, field_name: str) -> str:
+    """A name or id: non-empty, one line, no control characters, at most :data:`MAX_NAME_CHARS`."""
     if not isinstance(value, str) or not value.strip():
-        raise InputError(source, field_name, f"expected a non-empty text, got {value!r}")
+        raise InputError(source, field_name, f"expected a non-empty text, got {_short(value)}")
+    control = control_character(value.strip())
+    if control is not None:
+        raise InputError(source, field_name, f"holds a control character ({control}); names and ids are plain text")
+    if len(value.strip()) > MAX_NAME_CHARS:
+        raise InputError(source, field_name, f"is {len(value.strip()):,} characters long (at most {MAX_NAME_CHARS})")
     return value.strip()
 
 
@@ -263,7 +328,7 @@ def identifier(value: Any, source: object, field_name: str) -> str:
 
 def table(value: Any, source: object, field_name: str) -> Mapping[str, Any]:
     if not isinstance(value, Mapping):
-        raise InputError(source, field_name, f"expected a table, got {value!r}")
+        raise InputError(source, field_name, f"expected a table, got {_short(value)}")
     return value
 
 
@@ -410,7 +475,10 @@ def _recovery_scatter(value: Any, composition: Mapping[str, float], source: obje
 def _optional_text(entry: Mapping[str, Any], key: str, source: object, where: str) -> str:
     value = entry.get(key, "")
     if not isinstance(value, str):
-        raise InputError(source, f"{where}{key}", f"expected a text, got {value!r}")
+        raise InputError(source, f"{where}{key}", f"expected a text, got {_short(value)}")
+    control = control_character(value.replace("\n", " ").replace("\t", " "))
+    if control is not None:
+        raise InputError(source, f"{where}{key}", f"holds a control character ({control})")
     return value.strip()
 
 
@@ -509,7 +577,7 @@ def parse_grade(data: Mapping[str, Any], source: object) -> Grade:
         indices=tuple(indices),
         forbidden=frozenset(forbid),
         family=family,
-        standard=str(data.get("standard", "")),
+        standard=_optional_text(data, "standard", source, ""),
         source_file=str(source),
     )
 
@@ -533,7 +601,7 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
-              "correction_cost", "scatter"}
+              "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -591,6 +659,8 @@ def load_settings(folder: Path) -> ShopSettings:
         target_odds=parse_target_odds(data.get("target_odds", defaults.target_odds), path, "target_odds"),
         correction_cost=number(data.get("correction_cost", defaults.correction_cost), path, "correction_cost"),
         scatter=_scatter(table(data.get("scatter", {}), path, "scatter"), path),
+        plausible_max_pct=_plausible_max(data.get("plausible_max_pct", {}), path),
+        bath_kg_range=_bath_range(data.get("bath_kg_range"), path),
     )
 
 
@@ -611,6 +681,28 @@ def _scatter(data: Mapping[str, Any], path: Path) -> Scatter:
     defaults = Scatter()
     return Scatter(*(number(data.get(key, getattr(defaults, key)), path, f"scatter.{key}")
                      for key in ("recovery", "bath", "analysis")))
+
+
+def _plausible_max(raw: Any, path: Path) -> Mapping[str, float]:
+    limits = dict(PLAUSIBLE_MAX_PCT)
+    for key, value in table(raw, path, "plausible_max_pct").items():
+        where = f"plausible_max_pct.{key}"
+        pct = number(value, path, where, positive=True)
+        if pct > 100:
+            raise InputError(path, where, f"{value!r} wt % is above 100")
+        limits[normalise_symbol(key, path, where)] = pct
+    return MappingProxyType(limits)
+
+
+def _bath_range(raw: Any, path: Path) -> tuple[float, float]:
+    if raw is None:
+        return (0.0, DEFAULT_MAX_BATH_KG)
+    if not isinstance(raw, list) or len(raw) != 2:
+        raise InputError(path, "bath_kg_range", f"expected [min, max] in kg, got {_short(raw)}")
+    low, high = (number(v, path, "bath_kg_range") for v in raw)
+    if not low < high:
+        raise InputError(path, "bath_kg_range", f"min {low:g} kg is not below max {high:g} kg")
+    return (low, high)
 
 
 def load_recipes(folder: Path | str | None = None) -> RecipeBook:

@@ -9,6 +9,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
+from meltfix.outputs import markup_safe, visible
 from meltfix.planner import Plan
 
 if TYPE_CHECKING:  # rendering needs no NumPy or SciPy of its own
@@ -47,14 +48,14 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     """The plan as rich tables: additions, predicted chemistry, binding limits, cautions; with
     ``odds``, a line of in-spec odds under the chemistry (and the target, with ``risk``)."""
     cur = plan.currency
-    title = f"Heat {plan.heat_id} · {plan.grade} · " + headline(plan, risk)
+    title = f"Heat {markup_safe(plan.heat_id)} · {markup_safe(plan.grade)} · " + headline(plan, risk)
     adds = Table(title="Additions", title_justify="left", expand=False)
     adds.add_column("Material")
     adds.add_column("kg", justify="right")
     adds.add_column("packs", justify="right")
     adds.add_column(f"cost {cur}", justify="right")
     for a in plan.additions:
-        adds.add_row(a.material, f"{a.kg:,.1f}", "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
+        adds.add_row(Text(visible(a.material)), f"{a.kg:,.1f}", "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
                      f"{a.cost:,.2f}")
     if not plan.additions:
         adds.add_row("(nothing to add)", "", "", "")
@@ -80,19 +81,21 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     if odds is not None:
         parts.append(odds_text(odds, risk))
     if plan.violations:
-        parts.append(Panel("\n".join(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. {v.reason}"
-                                     for v in plan.violations), title="Why the grade cannot be met", border_style="red"))
+        parts.append(Panel(Text("\n".join(visible(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. "
+                                                   f"{v.reason}") for v in plan.violations)),
+                           title="Why the grade cannot be met", border_style="red"))
     if plan.binding:
         bind = Table(title="What holds the cost up", title_justify="left")
         bind.add_column("Limit")
         bind.add_column(f"saves {cur}", justify="right")
         bind.add_column("per")
         for b in plan.binding:
-            bind.add_row(b.name, f"{b.saving:,.2f}", b.unit)
+            bind.add_row(Text(visible(b.name)), f"{b.saving:,.2f}", b.unit)
         parts.append(bind)
     if plan.notes:
-        parts.append(Text("Notes: " + " ".join(plan.notes), style="dim"))
-    parts.append(Panel("\n".join(f"• {c}" for c in plan.cautions), title="Cautions", border_style="yellow"))
+        parts.append(Text(visible("Notes: " + " ".join(plan.notes)), style="dim"))
+    parts.append(Panel(Text("\n".join(visible(f"• {c}") for c in plan.cautions)), title="Cautions",
+                       border_style="yellow"))
     return Group(*parts)
 
 

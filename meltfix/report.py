@@ -11,7 +11,6 @@ This is the only module that imports pandas (its import alone costs about 0.3 s)
 from __future__ import annotations
 
 import math
-import os
 from collections import Counter
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -20,8 +19,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from meltfix.errors import InputError
 from meltfix.logbook import CostLine, Logbook
+from meltfix.outputs import csv_cell, write_atomic
 
 UNKNOWN_GRADE = "(no plan)"
 
@@ -148,20 +147,15 @@ def _per_material(cost_lines: list[CostLine]) -> pd.DataFrame:
 
 
 def write_heats_csv(report: CostReport, path: Path | str) -> Path:
-    """One row per heat with its cost, as CSV (written whole or not at all)."""
-    path = Path(path)
+    """One row per heat with its cost, as CSV (written whole or not at all). Text cells that a
+    spreadsheet would run as a formula are neutralised (OWASP's CSV-injection advice)."""
     table = report.heats.copy()
     table["started_at"] = table["started_at"].map(lambda when: when.isoformat(timespec="minutes"))
     table["currency"] = report.currency
     money = ["planned_cost", "cost", "difference", "cost_per_t", "planned_per_t"]
     table[money] = table[money].round(2)
     table["bath_t"] = table["bath_t"].round(3)
-    partial = path.with_name(f".{path.name}.partial")
-    try:
-        table.to_csv(partial, index=False)
-        os.replace(partial, path)
-    except OSError as exc:
-        if partial.exists():
-            partial.unlink()
-        raise InputError(path, "", f"cannot write the CSV file ({exc.strerror or exc})") from None
-    return path
+    for column in table.columns:
+        if not pd.api.types.is_numeric_dtype(table[column]):
+            table[column] = table[column].map(csv_cell)
+    return write_atomic(path, table.to_csv(index=False), what="the CSV file")

@@ -29,7 +29,7 @@ import numpy as np
 from scipy.special import ndtr, ndtri
 
 from meltfix.deoxidation import aluminium_owed_pct
-from meltfix.heat import Heat, stage_material
+from meltfix.heat import Heat, checked_grade, stage_material
 from meltfix.massbalance import bath_after
 from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, PlanOptions, Planner, recheck
 from meltfix.recipes import ECONOMIC, Grade, Material, RecipeBook, Scatter
@@ -183,7 +183,7 @@ class RiskPlanner:
         return RiskPlan(tried.plan, tried.odds, target, self.book.settings.correction_cost)
 
     def _judged(self, heat: Heat, plan: Plan, trial: Trial) -> _Tried:
-        grade = self.book.grade(heat.grade)
+        grade = checked_grade(heat, self.book.grade(heat.grade))
         used = [(stage_material(heat, self.book, a.material), a.kg) for a in plan.additions]
         sigma = limit_sigma_pct(heat, grade, used, self.book.settings.scatter, plan.checks)
         return _Tried(plan, judge(trial, grade, plan), sigma)
@@ -201,7 +201,7 @@ class RiskPlanner:
 
     def _search(self, heat: Heat, target: float, options: PlanOptions, trial: Trial, paper: _Tried) -> _Tried:
         """The fixed point: tighten by z sigma at the last plan, solve, judge, adjust each limit's share."""
-        grade = self.book.grade(heat.grade)
+        grade = checked_grade(heat, self.book.grade(heat.grade))
         labels = [f"{c.element} {c.limit}" for c in paper.plan.checks]
         sigma = paper.sigma
         # Each limit at risk on paper must reach the k-th root of the target for the heat to reach it.

@@ -22,7 +22,7 @@ from types import MappingProxyType
 import numpy as np
 
 from meltfix.deoxidation import aluminium_owed_pct
-from meltfix.heat import Heat
+from meltfix.heat import Heat, checked_grade
 from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, limit_checks
 from meltfix.recipes import Grade, LinearIndex, Material, RecipeBook, Scatter
 from meltfix.spectro import default_curve
@@ -190,7 +190,7 @@ def draw_trial(heat: Heat, book: RecipeBook, draws: int, seed: int, scatter: Sca
     any number of plans for it on the same draws with :func:`judge`."""
     if draws < 1:
         raise ValueError("draws must be at least 1")
-    grade = book.grade(heat.grade)
+    grade = checked_grade(heat, book.grade(heat.grade))
     # Every material of the book, used or not: the draws then do not depend on the plan, so plans
     # for one heat are compared on the same draws.
     # The recoveries are those of the heat's stage (a raiser thrown into a ladle recovers less).
@@ -218,4 +218,4 @@ def plan_odds(heat: Heat, book: RecipeBook, plan: Plan, draws: int = 2000, seed:
               scatter: Scatter | None = None) -> Odds:
     """The odds that ``plan``'s additions land ``heat`` inside its grade, from ``draws`` seeded draws
     (``scatter``: the shop's when None)."""
-    return judge(draw_trial(heat, book, draws, seed, scatter), book.grade(heat.grade), plan)
+    return judge(draw_trial(heat, book, draws, seed, scatter), checked_grade(heat, book.grade(heat.grade)), plan)

@@ -12,10 +12,11 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT
-from meltfix.errors import InputError
+from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, normalise_symbol
+from meltfix.errors import InputError, visible
 from meltfix.heat import Heat, heat_to_toml, validate_heat
-from meltfix.recipes import ShopSettings, load_recipes, load_settings
+from meltfix.outputs import markup_safe, write_atomic
+from meltfix.recipes import ShopSettings, identifier, load_recipes, load_settings
 from meltfix.spectro import ImportResult, SpectroSample, read_export
 
 
@@ -33,6 +34,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     heat.add_argument("--bath-kg", type=float, metavar="KG", help="bath weight [kg] (needed with --heat-out)")
     heat.add_argument("--capacity-kg", type=float, metavar="KG", help="vessel capacity [kg] (optional)")
     heat.add_argument("--heat", metavar="ID", help="heat id (default: the export's heat column, else the sample id)")
+    heat.add_argument("--not-measured", metavar="SYMBOLS", default="",
+                      help="elements the grade limits that this sample did not report, comma-separated (e.g. Sn,As): "
+                           "written as not_measured, their limits go unchecked")
     heat.add_argument("--force", action="store_true", help="overwrite an existing heat file")
 
 
@@ -50,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(_as_json(result, samples)))
         if written:
-            print(f"meltfix: wrote {written} from sample {samples[-1].sample_id}", file=sys.stderr)
+            print(visible(f"meltfix: wrote {written} from sample {samples[-1].sample_id}"), file=sys.stderr)
     else:
         _print_tables(result, samples, written)
     return 0
@@ -105,7 +109,7 @@ def heat_file_text(sample: SpectroSample, heat: Heat, source: str) -> str:
              f"({len(sample.accepted_burns)} burns averaged)."]
     lines += [f"Flag: {flag}" for flag in sample.flags]
     # A comment must stay on one line whatever the export's cells held.
-    return "".join(f"# {' '.join(line.split())}\n" for line in lines) + heat_to_toml(heat)
+    return "".join(f"# {visible(' '.join(line.split()))}\n" for line in lines) + heat_to_toml(heat)
 
 
 def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroSample) -> Path:
@@ -122,17 +126,29 @@ def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroS
     if grade not in book.grades:
         raise InputError("command line", "--grade", f"'{grade}' is not a grade of the recipes "
                          f"(known: {', '.join(book.grades)})")
-    heat = validate_heat(Heat(heat_id=args.heat or sample.heat or sample.sample_id, grade=grade,
-                              bath_kg=args.bath_kg, analysis=sample.analysis, capacity_kg=args.capacity_kg),
-                         book, "command line")
-    body = heat_file_text(sample, heat, Path(result.source).name)
+    # The id becomes the heat file's `heat`: a sample id holding a control character or a
+    # 10,000-character cell would write a file the planner then refuses, so it is refused here.
     try:
-        with path.open("w" if args.force else "x", encoding="utf-8") as handle:
-            handle.write(body)
-    except FileExistsError:
-        raise InputError(path, "", "already exists; add --force to overwrite it") from None
-    except OSError as exc:
-        raise InputError(path, "", f"cannot be written ({exc.strerror})") from None
+        heat_id = identifier(args.heat or sample.heat or sample.sample_id, "command line", "--heat")
+    except InputError as exc:
+        if args.heat:
+            raise
+        raise InputError("command line", "--heat", f"the export's id {visible(sample.heat or sample.sample_id)[:40]!r} "
+                         f"{exc.message}; give the heat id with --heat") from None
+    not_measured = frozenset(normalise_symbol(s, "command line", "--not-measured")
+                             for s in args.not_measured.split(",") if s.strip())
+    try:
+        heat = validate_heat(Heat(heat_id=heat_id, grade=grade, bath_kg=args.bath_kg, analysis=sample.analysis,
+                                  capacity_kg=args.capacity_kg, not_measured=not_measured), book, "command line")
+    except InputError as exc:
+        if exc.field != "analysis":
+            raise
+        raise InputError("command line", "--not-measured", f"sample {sample.sample_id}: {exc.message.split(';')[0]}; "
+                         "give --not-measured with those symbols to write the heat with those limits unchecked") from None
+    body = heat_file_text(sample, heat, Path(result.source).name)
+    if path.exists() and not args.force:
+        raise InputError(path, "", "already exists; add --force to overwrite it")
+    write_atomic(path, body, what="the heat file")
     return path
 
 
@@ -149,14 +165,13 @@ def _cell_text(symbol: str, pct: float) -> str:
 
 def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], written: Path | None) -> None:
     from rich.console import Console
-    from rich.markup import escape
     from rich.table import Table
 
     console = Console()
     marked = False
     for sample in samples:
         symbols = list(sample.analysis.pct)
-        title = f"Sample {escape(sample.sample_id)}" + (f" · grade {escape(sample.grade)}" if sample.grade else "")
+        title = f"Sample {markup_safe(sample.sample_id)}" + (f" · grade {markup_safe(sample.grade)}" if sample.grade else "")
         grid = Table(title=title, title_justify="left")
         grid.add_column("Burn")
         grid.add_column("Row", justify="right", style="dim")
@@ -175,7 +190,7 @@ def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], writ
                 elif symbol in burn.disputed_in:
                     shown, marked = f"[yellow]{shown} ?[/]", True
                 cells.append(shown)
-            label = escape(burn.label) + ("" if burn.accepted else " (left out)")
+            label = markup_safe(burn.label) + ("" if burn.accepted else " (left out)")
             grid.add_row(label, str(burn.row), *cells, style=None if burn.accepted else "dim")
         mean = [("<" if s in sample.analysis.below_limit else "") + _cell_text(s, pct)
                 for s, pct in sample.analysis.pct.items()]
@@ -183,14 +198,14 @@ def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], writ
         grid.add_row(f"mean of {len(sample.accepted_burns)}", "", *mean, style="bold")
         console.print(grid)
         for flag in sample.flags:
-            console.print(f"  [yellow]•[/] {escape(flag)}")
+            console.print(f"  [yellow]•[/] {markup_safe(flag)}")
         console.print()
     if marked:
         console.print("[bold red]![/] this burn disagrees with the others   "
                       "[yellow]?[/] burns disagree, cannot tell which   < below the detection limit (an upper bound)")
     for note in result.notes:
-        console.print(f"[dim]{escape(note)}[/]")
+        console.print(f"[dim]{markup_safe(note)}[/]")
     if result.ignored_columns:
-        console.print(f"[dim]Columns not read: {escape(', '.join(result.ignored_columns))}[/]")
+        console.print(f"[dim]Columns not read: {markup_safe(', '.join(result.ignored_columns))}[/]")
     if written:
-        console.print(f"Wrote {escape(str(written))} from sample {escape(samples[-1].sample_id)}.")
+        console.print(f"Wrote {markup_safe(written)} from sample {markup_safe(samples[-1].sample_id)}.")

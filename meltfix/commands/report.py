@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
+from meltfix.errors import visible
 
 if TYPE_CHECKING:
     from rich.console import RenderableType
@@ -43,7 +44,7 @@ def run(args: argparse.Namespace) -> int:
     console = Console()
     console.print(report_renderable(report, path, max(console.width, 80)))
     if written:
-        console.print(f"Wrote {len(report.heats)} heats to {written}")
+        console.print(f"Wrote {len(report.heats)} heats to {written}", markup=False)
     return 0
 
 
@@ -84,8 +85,8 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
     unit = f"{cur}/t" if cur else "per t"
     period = (f"{report.date_from or 'the start'} to {report.date_to or 'the end'}"
               if report.date_from or report.date_to else "every heat in the logbook")
-    shop = f" — {report.shop_name}" if report.shop_name else ""
-    head = Text.assemble((f"Addition cost report{shop}\n", "bold"), (f"{period} · logbook {logbook_path}", "dim"))
+    shop = f" — {visible(report.shop_name)}" if report.shop_name else ""
+    head = Text.assemble((f"Addition cost report{shop}\n", "bold"), (visible(f"{period} · logbook {logbook_path}"), "dim"))
     totals = report.totals
     if not totals["heats"]:
         return Group(head, Text("No heats were recorded in this period.", style="yellow"))
@@ -111,7 +112,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
                                             ("Corr", "right"), ("Planned", "right"), ("Actual", "right"),
                                             (unit, "right")])
     for row in report.heats.itertuples(index=False):
-        heats.add_row(row.heat, _when(row.started_at), _short(row.grade, grade_width), _tonnes(row.bath_t),
+        heats.add_row(_data(row.heat), _when(row.started_at), _short(row.grade, grade_width), _tonnes(row.bath_t),
                       str(row.corrections), _money(row.planned_cost), _money(row.cost), _per_t(row.cost_per_t))
 
     chart = Table.grid(padding=(0, 1))
@@ -123,7 +124,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
     colours = {0: "dim", 1: "cyan", 2: "yellow"}
     for row in report.heats.itertuples(index=False):
         style = colours.get(row.corrections, "red")
-        chart.add_row(row.heat, Text(bar(row.cost_per_t, largest, bar_width), style=style), _per_t(row.cost_per_t))
+        chart.add_row(_data(row.heat), Text(bar(row.cost_per_t, largest, bar_width), style=style), _per_t(row.cost_per_t))
     legend = Text.assemble("bars: ", ("one correction", "cyan"), " · ", ("two", "yellow"), " · ",
                            ("three or more", "red"), " · ", ("none", "dim"), style="dim")
 
@@ -139,7 +140,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
         ("Material", "left"), ("Planned kg", "right"), ("Actual kg", "right"), ("Planned", "right"),
         ("Actual", "right"), ("Share", "right")])
     for row in report.materials.itertuples(index=False):
-        materials.add_row(row.material, f"{row.planned_kg:,.0f}", f"{row.actual_kg:,.0f}", _money(row.planned_cost),
+        materials.add_row(_data(row.material), f"{row.planned_kg:,.0f}", f"{row.actual_kg:,.0f}", _money(row.planned_cost),
                           _money(row.cost), f"{row.share:.0%}")
 
     parts: list[object] = [head, summary, Text(""), heats]
@@ -152,16 +153,22 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
             ("Heat", "left"), ("Started", "left"), ("Grade", "left"), ("Corr", "right"), ("Actual", "right"),
             ("vs plan", "right"), (unit, "right")])
         for row in repeat.itertuples(index=False):
-            again.add_row(row.heat, _when(row.started_at), _short(row.grade, grade_width), str(row.corrections),
+            again.add_row(_data(row.heat), _when(row.started_at), _short(row.grade, grade_width), str(row.corrections),
                           _money(row.cost), _signed(row.difference), _per_t(row.cost_per_t))
         parts.append(again)
     if report.notes:
-        parts.append(Text("Notes: " + "; ".join(report.notes) + ".", style="dim"))
+        parts.append(Text(visible("Notes: " + "; ".join(report.notes) + "."), style="dim"))
     return Group(*parts)
 
 
-def _short(grade: str, width: int = 16) -> str:
-    return grade if len(grade) <= width else grade[: width - 1] + "…"
+def _data(value: object):  # -> Text; a logbook's text is shown as it is, never read as markup
+    from rich.text import Text
+
+    return Text(visible(str(value)))
+
+
+def _short(grade: str, width: int = 16):  # -> Text
+    return _data(grade if len(grade) <= width else grade[: width - 1] + "…")
 
 
 def _when(moment) -> str:

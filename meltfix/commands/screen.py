@@ -50,5 +50,8 @@ def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep
 
 
 def run(args: argparse.Namespace) -> int:
-    build_app(args).run()
-    return 0
+    app = build_app(args)
+    app.run()
+    # Textual sets a non-zero return code when the app stops on an unhandled error: pass it on, so a
+    # crashed screen never looks like a clean exit to a script or a shell.
+    return app.return_code or 0

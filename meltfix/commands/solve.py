@@ -65,6 +65,8 @@ def _run_here(args: argparse.Namespace) -> int:
         raise InputError("command line", "--sure", f"{args.sure:g} is not a probability between 0 and 1 (e.g. 0.95)")
     if not 1 <= args.draws <= _MAX_DRAWS:
         raise InputError("command line", "--draws", f"{args.draws} is outside 1..{_MAX_DRAWS:,}")
+    if not 0 <= args.seed < 2**63:  # NumPy's generators take a seed of 0 or more
+        raise InputError("command line", "--seed", f"{args.seed} is not a whole number from 0 up")
     book = load_recipes(args.recipes)  # a bad recipe book is bad input for every heat: exit 2 at once
     planner = RiskPlanner(book)
     options = PlanOptions(use_aim=not args.no_aim, continuous=args.continuous)

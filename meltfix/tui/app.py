@@ -15,7 +15,9 @@ from pathlib import Path
 from textual.app import App, SystemCommand
 from textual.binding import Binding
 from textual.screen import Screen
+from textual.notifications import SeverityLevel
 
+from meltfix.errors import visible
 from meltfix.heat import Heat
 from meltfix.recipes import RecipeBook
 from meltfix.tui.keys import key_name
@@ -46,6 +48,12 @@ class MeltfixApp(App[None]):
         """The logbook file; None = the logbook module's own default (its environment variable)."""
         self.tickets_dir = tickets_dir if tickets_dir is not None else Path.cwd()
         self.light = light
+
+    def notify(self, message: str, *, title: str = "", severity: SeverityLevel = "information",
+               timeout: float | None = None, markup: bool = True) -> None:
+        # Messages carry ids, names and notes from files: always plain, visible text, never markup
+        # (a heat "KB-1 [/]" would otherwise stop the app) and never a raw control character.
+        super().notify(visible(message), title=visible(title), severity=severity, timeout=timeout, markup=False)
 
     def on_mount(self) -> None:
         if self.light:  # set only when asked: a theme change restyles every widget

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from meltfix.analysis import Analysis, parse_reading
 from meltfix.elements import PPM_ELEMENTS, parse_number
 from meltfix.errors import InputError
-from meltfix.heat import Heat, validate_heat
+from meltfix.heat import Heat, unmeasured, validate_heat
 from meltfix.recipes import RecipeBook
 
 SOURCE = "screen"
@@ -23,6 +23,9 @@ SOURCE = "screen"
 _GROUPED = re.compile(r"^\d{1,3}([.,]\d{3})+$")
 # Keys of Draft.errors besides "analysis.<symbol>": whole-heat fields and the materials' overrides.
 BATH, CAPACITY, GRADE, ANALYSIS, MATERIALS = "bath_kg", "capacity_kg", "grade", "analysis", "materials"
+# What a melter types in a cell to declare the element knowingly not analysed (case-blind).
+NOT_MEASURED_WORDS = frozenset({"nm", "n/m", "n.m.", "not measured"})
+NOT_MEASURED = "not measured: type the value, or nm to plan with its limits unchecked"
 
 
 @dataclass(frozen=True)
@@ -60,8 +63,12 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     capacity_kg = _weight(inputs.capacity_text, CAPACITY, errors, required=False)
     pct: dict[str, float] = {}
     below: set[str] = set()
+    declared: set[str] = set()
     for symbol, raw in inputs.cells.items():
         if not raw.strip():
+            continue
+        if raw.strip().lower() in NOT_MEASURED_WORDS:
+            declared.add(symbol)
             continue
         try:
             reading = parse_reading(raw, SOURCE, cell_key(symbol), ppm=symbol in PPM_ELEMENTS)
@@ -76,13 +83,21 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
         errors[ANALYSIS] = f"the elements add up to {analysis.total_pct:.3f} %, over 100 %"
     if errors:
         return Draft(None, errors)
+    # A declaration from the heat file holds until a value is typed into that cell.
+    not_measured = frozenset((base.not_measured - set(pct)) | declared)
     heat = base.with_changes(grade=inputs.grade, bath_kg=bath_kg, capacity_kg=capacity_kg,
-                             stage=inputs.stage, analysis=analysis)
+                             stage=inputs.stage, analysis=analysis, not_measured=not_measured)
+    if inputs.grade in book.grades:
+        # An empty cell the grade needs is never 0 %: each is marked where it is, and nothing plans.
+        missing = {cell_key(s): NOT_MEASURED for s in unmeasured(heat, book.grades[inputs.grade])}
+        if missing:
+            return Draft(None, missing)
     try:
         validate_heat(heat, book, SOURCE)
     except InputError as exc:
-        key = exc.field if exc.field in (BATH, CAPACITY, GRADE) else MATERIALS
-        return Draft(None, {key: exc.message if key != MATERIALS else f"{exc.field}: {exc.message}"})
+        if exc.field.startswith(f"{ANALYSIS}.") or exc.field in (BATH, CAPACITY, GRADE):
+            return Draft(None, {exc.field: exc.message})  # said in place, beside the cell at fault
+        return Draft(None, {MATERIALS: f"{exc.field}: {exc.message}"})
     return Draft(heat, {})
 
 

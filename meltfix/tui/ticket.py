@@ -11,6 +11,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from meltfix.outputs import write_atomic
 from meltfix.recipes import RecipeBook
 from meltfix.tui.figures import content_text, kg_text, money_text, unit_of
 
@@ -51,6 +52,9 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
         low, high = grade.window_pct[symbol]
         aim = grade.aim_pct.get(symbol)
         now = heat.analysis.pct.get(symbol)
+        if symbol in heat.not_measured:
+            lines.append(f"  {symbol:<4}{'not measured: NOT CHECKED':>27}")
+            continue
         cells = [
             "—" if now is None else content_text(symbol, now),
             content_text(symbol, plan.predicted_pct.get(symbol, 0.0)),
@@ -85,7 +89,5 @@ def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, wri
     while path.exists():
         path = folder / f"{stem}-ticket-{number}.txt"
         number += 1
-    # "x" mode: should another writer take the name in between, fail rather than overwrite.
-    with path.open("x", encoding="utf-8") as handle:
-        handle.write(ticket_text(heat, plan, book, written))
-    return path
+    # Never overwrite: should another writer take the name in between, fail rather than replace it.
+    return write_atomic(path, ticket_text(heat, plan, book, written), what="the ticket", overwrite=False)

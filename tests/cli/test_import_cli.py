@@ -127,14 +127,15 @@ def test_heat_out_writes_a_heat_the_planner_can_read(capsys: pytest.CaptureFixtu
                                                      tmp_path: Path) -> None:
     heat_file = tmp_path / "KB-24117.toml"
     status, out, err = _run(capsys, str(DATA / "below_limit.csv"), "--json", "--recipes", str(recipes),
-                            "--heat-out", str(heat_file), "--grade", "S355J2", "--bath-kg", "80000")
+                            "--heat-out", str(heat_file), "--grade", "S355J2", "--bath-kg", "80000",
+                            "--not-measured", "Mn")
     assert status == 0 and json.loads(out)["samples"]
     assert "wrote" in err
     raw = tomllib.loads(heat_file.read_text(encoding="utf-8"))
     assert (raw["heat"], raw["grade"], raw["bath_kg"]) == ("KB-24117-4", "S355J2", 80000.0)
     assert raw["analysis"]["S"] == "<0.001"
     heat = load_heat(heat_file, load_recipes(recipes))
-    assert heat.analysis.below_limit == {"S", "Ti", "B"}
+    assert heat.analysis.below_limit == {"S", "Ti", "B"} and heat.not_measured == {"Mn"}
     assert dict(heat.analysis.pct) == pytest.approx(
         {"C": 0.173, "S": 0.001, "Ti": 0.0012, "B": 0.0005, "N": 0.0051})
 

@@ -53,7 +53,8 @@ def logbook_path(tmp_path_factory: pytest.TempPathFactory) -> Path:
     with Logbook(path, book) as logbook:
         for k in range(8):
             heat_id, when = f"KB-9{k}", DAY + timedelta(hours=2 * k)
-            first = Analysis({"C": 0.40, "Si": 0.20, "Mn": 0.45 + 0.01 * k, "P": 0.010, "S": 0.012})
+            first = Analysis({"C": 0.40, "Si": 0.20, "Mn": 0.45 + 0.01 * k, "P": 0.010, "S": 0.012,
+                              "Cr": 0.05, "Ni": 0.05, "Mo": 0.01, "Cu": 0.10})
             logbook.record_sample(heat_id, "S1", first, when=when)
             heat = Heat(heat_id, "SAE 1045", 60_000.0, first)
             plan_id = logbook.record_plan(heat, planner.plan(heat), when + timedelta(minutes=2))

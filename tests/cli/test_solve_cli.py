@@ -183,7 +183,8 @@ def test_packs_are_whole_unless_continuous(capsys: pytest.CaptureFixture[str], r
 def test_the_built_in_recipe_book_plans_a_heat(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     heat = tmp_path / "kb.toml"
     heat.write_text('grade = "SAE 1045"\nbath_kg = 60000\ncapacity_kg = 65000\n'
-                    '[analysis]\nC = 0.40\nSi = 0.20\nMn = 0.55\nP = 0.012\nS = 0.020\nCu = 0.15\n', encoding="utf-8")
+                    '[analysis]\nC = 0.40\nSi = 0.20\nMn = 0.55\nP = 0.012\nS = 0.020\nCu = 0.15\n'
+                    'Ni = 0.07\nCr = 0.08\nMo = 0.02\n', encoding="utf-8")
     status = main(["solve", str(heat), "--json"])
     plan = json.loads(capsys.readouterr().out)
     assert status == 0 and plan["status"] == "optimal"
@@ -218,6 +219,8 @@ capacity_kg = 104000
 C = 0.38
 Mn = 0.50
 Cr = 0.10
+Cu = 0.10
+S = 0.010
 """
 
 BAD_HEATS = {

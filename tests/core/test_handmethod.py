@@ -226,7 +226,8 @@ def test_demo_heats_respect_the_grade_and_the_store() -> None:
         for symbol in sheet_order(grade):
             usable = [m for m in book.materials if m.name not in grade.forbidden]
             assert all(m.name not in grade.forbidden for m in usual_materials(grade, usable, symbol))
-    heat = Heat("h", "SAE 1045", 60_000.0, Analysis({"C": 0.30, "Mn": 0.40, "Cu": 0.40}), capacity_kg=61_000.0,
+    heat = Heat("h", "SAE 1045", 60_000.0, Analysis({"C": 0.30, "Mn": 0.40, "P": 0.012, "S": 0.015, "Cr": 0.05,
+                                                      "Ni": 0.05, "Mo": 0.01, "Cu": 0.40}), capacity_kg=61_000.0,
                 switched_off=frozenset({"HC FeMn"}))
     plan = hand_plan(heat, book)
     assert "HC FeMn" not in {a.material for a in plan.additions}

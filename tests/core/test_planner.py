@@ -55,7 +55,7 @@ def test_single_alloy_whole_material_at_the_same_recovery_matches_the_worked_exa
     # its iron too (listed, since iron otherwise recovers fully), dissolves at 0.90: g = 0.90.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}, "default_recovery": 0.9,
                   "recovery": {"Fe": 0.9}}], [MN_WINDOW])
-    plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50}), shop, NO_AIM)
+    plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50, "C": 0.0}), shop, NO_AIM)
     expected = closed_form_kg(W, 0.0050, 0.0080, 0.78, 0.90, g=0.90)
     assert plan.status == "optimal"
     assert kg_of(plan, "FeMn") == pytest.approx(expected, rel=1e-6)
@@ -72,7 +72,7 @@ def test_single_alloy_with_the_iron_balance_recovering_fully() -> None:
     # REFERENCE §4.4; our mass balance takes g from the material, so neither is exact here.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}, "recovery": {"Mn": 0.9}}],
                 [MN_WINDOW])
-    plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50}), shop, NO_AIM)
+    plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50, "C": 0.0}), shop, NO_AIM)
     g = 0.78 * 0.90 + 0.22 * 1.0
     expected = closed_form_kg(W, 0.0050, 0.0080, 0.78, 0.90, g)
     assert kg_of(plan, "FeMn") == pytest.approx(expected, rel=1e-6)
@@ -253,7 +253,7 @@ def test_a_closest_plan_still_meets_the_windows_it_can() -> None:
     # Nb cannot be reached, but Mn still can and must be.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}}],
                 [{"name": "Nb steel", "window": {"Mn": [0.5, 1.0], "Nb": [0.02, 0.05]}}])
-    plan = plan_heat(heat("Nb steel", 50_000.0, {"Mn": 0.3}), shop, NO_AIM)
+    plan = plan_heat(heat("Nb steel", 50_000.0, {"Mn": 0.3, "Nb": 0.0}), shop, NO_AIM)
     assert [v.element for v in plan.violations] == ["Nb"]
     assert plan.predicted_pct["Mn"] == pytest.approx(0.5, rel=1e-6)  # and no more than needed
 

@@ -88,7 +88,8 @@ def random_book(rng: np.random.Generator, packs: bool) -> RecipeBook:
         grade["forbid"] = [materials[0].name]
     parsed = parse_grade(grade, "grades/G.toml")
     return RecipeBook(tuple(materials), MappingProxyType({"G": parsed}),
-                      ShopSettings(aim_penalty=float(rng.uniform(0.05, 3.0))))
+                      # Random windows reach contents no real bath holds: plausibility is not what is compared.
+                      ShopSettings(aim_penalty=float(rng.uniform(0.05, 3.0)), plausible_max_pct=MappingProxyType({})))
 
 
 def random_heat(rng: np.random.Generator, book: RecipeBook, k: int) -> Heat:
@@ -104,6 +105,9 @@ def random_heat(rng: np.random.Generator, book: RecipeBook, k: int) -> Heat:
         else:  # a little over the top
             pct[s] = hi + float(rng.uniform(0, 0.05)) * (hi - lo)
     below = frozenset(s for s in pct if rng.random() < 0.08)
+    for index in grade.indices:  # residuals only an index reads: measured, and nil
+        for s in index.terms:
+            pct.setdefault(s, 0.0)
     usable = [m for m in book.materials if m.name not in grade.forbidden]
     locked = {}
     if rng.random() < 0.1:

@@ -8,14 +8,15 @@ import textwrap
 from datetime import datetime
 
 from meltfix.planner import Planner
-from meltfix.tui.draft import ANALYSIS, BATH, CAPACITY, HeatInputs, build_heat, cell_key
+from meltfix.tui.draft import ANALYSIS, BATH, CAPACITY, NOT_MEASURED, HeatInputs, build_heat, cell_key
 from meltfix.tui.figures import kg_text
 from meltfix.tui.ticket import ticket_text, write_ticket
 
 
 def _inputs(heat, **changes) -> HeatInputs:
     fields = {"grade": heat.grade, "bath_text": "60000", "capacity_text": "65000", "stage": "ladle",
-              "cells": {"C": "0,40", "Mn": "0.52", "N": "68", "Al": "<0.002"}}
+              "cells": {"C": "0,40", "Mn": "0.52", "N": "68", "Al": "<0.002", "P": "0.014", "S": "0.022",
+                        "Cr": "0.09", "Ni": "0.08", "Mo": "0.02", "Cu": "0.16"}}
     fields.update(changes)
     return HeatInputs(**fields)
 
@@ -46,6 +47,28 @@ def test_whole_heat_faults_name_their_field(demo_book, demo_heat) -> None:
     assert "less than the bath" in small.errors[CAPACITY]
     over = build_heat(demo_heat, _inputs(demo_heat, cells={"Mn": "60", "Cr": "50"}), demo_book)
     assert "over 100" in over.errors[ANALYSIS]
+
+
+def test_an_empty_cell_the_grade_needs_holds_the_plan_and_nm_declares_it(demo_book, demo_heat) -> None:
+    cells = dict(_inputs(demo_heat).cells)
+    cells["Cu"] = ""
+    held = build_heat(demo_heat, _inputs(demo_heat, cells=cells), demo_book)
+    assert held.heat is None and held.errors == {cell_key("Cu"): NOT_MEASURED}
+    cells["Cu"] = "NM"
+    declared = build_heat(demo_heat, _inputs(demo_heat, cells=cells), demo_book)
+    assert declared.errors == {} and declared.heat.not_measured == {"Cu"}
+    plan = Planner(demo_book).plan(declared.heat)
+    assert plan.cautions[0].startswith("NOT MEASURED: Cu")
+    ticket = ticket_text(declared.heat, plan, demo_book, datetime(2026, 3, 4, 5, 6))
+    assert "NOT MEASURED: Cu" in " ".join(ticket.split()) and "not measured: NOT CHECKED" in ticket
+
+
+def test_an_implausible_value_is_said_beside_its_cell(demo_book, demo_heat) -> None:
+    cells = dict(_inputs(demo_heat).cells, C="45")
+    draft = build_heat(demo_heat, _inputs(demo_heat, cells=cells), demo_book)
+    assert draft.errors == {cell_key("C"): "C 45 %: a steel bath holds at most 5 %; 0.45?"}
+    tonnes = build_heat(demo_heat, _inputs(demo_heat, bath_text="60", capacity_text=""), demo_book)
+    assert tonnes.errors == {BATH: "bath_kg 60: below the shop's 5,000 kg; tonnes?"}
 
 
 def test_ticket_holds_additions_chemistry_and_cautions(demo_book, demo_heat, tmp_path) -> None:

@@ -8,9 +8,12 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
+from textual.content import Content
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label, OptionList
 from textual.widgets.option_list import Option
+
+from meltfix.errors import visible
 
 
 class ChoiceDialog(ModalScreen[str | None]):
@@ -33,7 +36,7 @@ class ChoiceDialog(ModalScreen[str | None]):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog") as box:
-            box.border_title = self.title_text
+            box.border_title = Content(visible(self.title_text))
             yield Input(self.typed, placeholder="type to filter", id="choice-filter")
             yield OptionList(id="choice-list")
             yield Label("↓ into the list · Enter picks · Esc backs out", classes="dialog-help")
@@ -47,7 +50,8 @@ class ChoiceDialog(ModalScreen[str | None]):
         options = self.query_one(OptionList)
         options.clear_options()
         shown = [(key, label) for key, label in self.items if all(w in label.lower() for w in words)]
-        options.add_options([Option(label, id=key) for key, label in shown])
+        # Labels hold grade names and sample ids from files: plain text, never markup.
+        options.add_options([Option(Content(visible(label)), id=key) for key, label in shown])
         keys = [key for key, _ in shown]
         if shown:
             options.highlighted = keys.index(self.current) if self.current in keys else 0

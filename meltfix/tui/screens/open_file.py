@@ -10,11 +10,12 @@ from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
+from textual.content import Content
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label, OptionList
 from textual.widgets.option_list import Option
 
-from meltfix.errors import InputError
+from meltfix.errors import InputError, visible
 from meltfix.tui.widgets.reason import ReasonLine
 
 _LISTED = 200  # a folder with thousands of files lists its first ones; typing narrows it
@@ -68,7 +69,7 @@ class OpenFileDialog(ModalScreen[Any]):
             return
         shown = [p for p in entries if p.name.lower().startswith(stem.lower())
                  and (p.is_dir() or p.suffix.lower() in self.suffixes)][:_LISTED]
-        options.add_options([Option(p.name + ("/" if p.is_dir() else ""), id=str(p)) for p in shown])
+        options.add_options([Option(Content(visible(p.name + ("/" if p.is_dir() else ""))), id=str(p)) for p in shown])
         if shown:
             options.highlighted = 0
 

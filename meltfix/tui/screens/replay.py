@@ -25,12 +25,13 @@ from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Container, Vertical, VerticalScroll
+from textual.content import Content
 from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import Footer, Input, Label, OptionList, Static
 from textual.widgets.option_list import Option
 
-from meltfix.errors import InputError
+from meltfix.errors import InputError, visible
 from meltfix.paths import demo_dir
 from meltfix.recipes import RecipeBook
 from meltfix.replay import (
@@ -150,7 +151,7 @@ class ReplayScreen(Screen[None]):
         records = self.query_one("#replay-records", OptionList)
         records.clear_options()
         files = sorted(self.records_dir.glob("*.toml")) if self.records_dir.is_dir() else []
-        records.add_options([Option(f"{p.stem}  {_story(p)}", id=str(p)) for p in files])
+        records.add_options([Option(Content(visible(f"{p.stem}  {_story(p)}")), id=str(p)) for p in files])
         self.query_one("#replay-body").display = False
         records.display = True
         self._title(f"Choose a recorded heat ({self.records_dir})" if files

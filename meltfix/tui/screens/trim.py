@@ -319,19 +319,35 @@ class TrimScreen(Screen[None]):
             if not samples:
                 self.notify("The export holds no sample.", title="Spectrometer", severity="warning")
             elif len(samples) == 1:
-                self.call_later(self._use_sample, samples[0])
+                self._offer_sample(samples[0])
             else:
                 items = [(str(k), f"{s.sample_id}  ·  {len(s.accepted_burns)} burns" + ("  ·  flagged" if s.flags else ""))
                          for k, s in enumerate(samples)]
 
                 def picked(key: str | None) -> None:
                     if key is not None:
-                        self.call_later(self._use_sample, samples[int(key)])
+                        self._offer_sample(samples[int(key)])
 
                 self.app.push_screen(ChoiceDialog("Which sample?", items, current=items[-1][0]), picked)
 
         self.app.push_screen(OpenFileDialog("Read a spectrometer export", folder, [".csv", ".txt", ".tsv"], read),
                              samples_read)
+
+    def _offer_sample(self, sample: SpectroSample) -> None:
+        """Load the sample, after a confirmation naming both heats when the export says it is another heat's."""
+        this = self.base.heat_id
+        if not sample.heat or sample.heat == this:
+            self.call_later(self._use_sample, sample)
+            return
+        items = [("keep", f"No: keep the analysis of heat {this}"),
+                 ("load", f"Yes: load sample {sample.sample_id} of heat {sample.heat} onto heat {this}")]
+
+        def answered(key: str | None) -> None:
+            if key == "load":
+                self.call_later(self._use_sample, sample)
+
+        self.app.push_screen(ChoiceDialog(f"Sample of heat {sample.heat}, not {this}", items, current="keep"),
+                             answered)
 
     async def _use_sample(self, sample: SpectroSample) -> None:
         """A new sample replaces the whole analysis: cells it does not report are emptied."""
@@ -415,6 +431,9 @@ class TrimScreen(Screen[None]):
             path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now())
         except OSError as exc:
             self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
+            return
+        except InputError as exc:
+            self.notify(str(exc), title="Ticket not written", severity="error")
             return
         self.notify(str(path), title="Ticket written")
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from rich.table import Table
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Vertical, VerticalScroll
 from textual.content import Content
@@ -104,7 +105,7 @@ def _additions_table(plan: Plan) -> Table:
     table.add_column(cur, justify="right", no_wrap=True)
     for addition in plan.additions:
         packs = packs_text(addition)
-        table.add_row(addition.material, kg_text(addition.kg) + (f" ({packs})" if packs else ""),
+        table.add_row(Text(addition.material), kg_text(addition.kg) + (f" ({packs})" if packs else ""),
                       money_text(addition.cost))
     if not plan.additions:
         table.add_row("nothing to add", "", "")

@@ -1,0 +1,70 @@
+"""The trim screen under hostile text: markup, control characters and huge strings pasted into every
+input, an id that looks like markup, an empty cell the grade needs. The app must keep running."""
+
+from __future__ import annotations
+
+from textual.events import Paste
+from textual.widgets import Input
+
+from meltfix.tui.app import make_app
+from meltfix.tui.draft import NOT_MEASURED
+from meltfix.tui.screens.trim import TrimScreen
+from meltfix.tui.widgets.plan_view import PlanView
+
+def _app(book, heat, folder):
+    return make_app(book, heat, tickets_dir=folder, logbook_path=folder / "log.sqlite")
+
+
+PASTES = ("[/] [bold red]x[/", "\x1b[2J\x1b]52;c;aGk=\x07\u202e0.40", "9" * 10_000)
+
+
+async def test_pasting_hostile_text_into_every_input_leaves_the_app_running(demo_book, demo_heat, tmp_path,
+                                                                            settle) -> None:
+    app = _app(demo_book, demo_heat, tmp_path)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, TrimScreen)
+        inputs = list(screen.query(Input))
+        assert len(inputs) > 10
+        for text in PASTES:
+            for widget in inputs:
+                widget.focus()
+                widget.value = ""
+                widget.post_message(Paste(text))
+            await settle(pilot)
+            assert all(widget.value for widget in inputs)  # the paste went in
+            assert app.is_running and app.screen is screen
+            assert not screen.plannable  # nothing of that is a heat to plan
+            assert screen.check_action("accept", ()) is None and screen.check_action("ticket", ()) is None
+    assert app.return_code in (0, None)
+
+
+async def test_an_id_that_looks_like_markup_shows_and_plans(demo_book, demo_heat, tmp_path, settle) -> None:
+    heat = demo_heat.with_changes(heat_id="KB-1 [/] [bold]")
+    app = _app(demo_book, heat, tmp_path)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        screen = app.screen
+        assert screen.query_one(PlanView).is_current
+        app.notify("heat KB-1 [/] recorded")  # a notification carrying an id is plain text too
+        await pilot.pause()
+        assert app.is_running
+
+
+async def test_an_empty_needed_cell_is_marked_and_holds_accept_and_ticket(demo_book, demo_heat, tmp_path,
+                                                                          settle) -> None:
+    app = _app(demo_book, demo_heat, tmp_path)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        app.screen.query_one("#cell-Cu", Input).focus()
+        await pilot.press("ctrl+u")
+        screen = app.screen
+        await settle(pilot)
+        assert not screen.plannable
+        assert screen.check_action("accept", ()) is None and screen.check_action("ticket", ()) is None
+        assert NOT_MEASURED.split(":")[0] in str(screen.query_one("#row-Cu").query_one("ReasonLine").render())
+        await pilot.press(*"nm")
+        await settle(pilot)
+        assert screen.plannable and screen.query_one(PlanView).is_current
+        assert screen.query_one(PlanView).plan.cautions[0].startswith("NOT MEASURED: Cu")
