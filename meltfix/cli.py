@@ -12,6 +12,7 @@ import importlib
 import sys
 from collections.abc import Collection, Sequence
 from pathlib import Path
+from typing import NoReturn
 
 from meltfix import __version__
 from meltfix.errors import InputError
@@ -34,10 +35,18 @@ COMMANDS = {
 }
 
 
+class _OneLineParser(argparse.ArgumentParser):
+    """argparse's parser, but a mistake on the command line is one line like any other bad input
+    (argparse prints the usage too, and exits from deep inside parse_args)."""
+
+    def error(self, message: str) -> NoReturn:
+        raise InputError("command line", self.prog, f"{message} ({self.prog} --help lists the options)")
+
+
 def build_parser(detailed: Collection[str] = tuple(COMMANDS)) -> argparse.ArgumentParser:
     """The command line's parser. Only the commands in ``detailed`` get their options, which imports
     their modules: `meltfix --help` lists the commands from their summaries and imports none."""
-    parser = argparse.ArgumentParser(
+    parser = _OneLineParser(
         prog="meltfix",
         description="Plan the cheapest additions that bring a heat of steel or iron into its grade. "
         "Run with no command (or with a HEAT.toml) to open the terminal screen.",
@@ -61,10 +70,9 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"meltfix: {unknown}", file=sys.stderr)
             return EXIT_BAD_INPUT
         args_list.insert(0, "screen")
-    parser = build_parser(detailed=args_list[:1])
-    args = parser.parse_args(args_list)
-    module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
     try:
+        args = build_parser(detailed=args_list[:1]).parse_args(args_list)
+        module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
         return int(module.run(args))
     except InputError as exc:
         print(f"meltfix: {exc}", file=sys.stderr)
