@@ -8,23 +8,29 @@ only when every window is met); the outside checks of the maths are in test_plan
 from __future__ import annotations
 
 import json
+import shutil
 import subprocess
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
 
 from meltfix.heat import load_heat
-from meltfix.paths import demo_dir
+from meltfix.paths import default_recipes_dir, demo_dir
 from meltfix.planner import LIMIT_TOL_PCT, PlanOptions, Planner
-from meltfix.recipes import load_recipes
+from meltfix.recipes import DEFAULT_MAX_BATH_KG, load_recipes
+
+# The demo shop's bath_kg_range (5-150 t) would stop these baths as slips: open it for the test.
+ANY_BATH = f"bath_kg_range = [0, {DEFAULT_MAX_BATH_KG:.0f}]"
 
 BATHS_KG = (0.01, 0.1, 1.0, 55.0, 5_000.0, 45_000.0, 400_000.0)
 
 
 @pytest.mark.parametrize("continuous", [False, True], ids=["packs", "loose"])
 def test_status_and_minimums_hold_after_rounding_at_every_bath(continuous: bool, capfd: pytest.CaptureFixture[str]) -> None:
-    book = load_recipes()
+    demo = load_recipes()
+    book = replace(demo, settings=replace(demo.settings, bath_kg_range=(0.0, DEFAULT_MAX_BATH_KG)))
     planner = Planner(book)
     for path in sorted((demo_dir() / "heats").glob("*.toml")):
         base = load_heat(path, book)
@@ -52,9 +58,15 @@ def test_solve_json_stays_clean_at_a_tenth_of_a_kilogram(tmp_path: Path) -> None
     text = (demo_dir() / "heats" / "KB-24105.toml").read_text()
     heat = tmp_path / "tiny.toml"
     heat.write_text(text.replace("bath_kg = 45000", "bath_kg = 0.1").replace("capacity_kg = 48000", ""))
+    recipes = tmp_path / "recipes"
+    shutil.copytree(default_recipes_dir(), recipes)
+    shop = recipes / "shop.toml"
+    shop.write_text(shop.read_text(encoding="utf-8").replace("bath_kg_range = [5000, 150000]", ANY_BATH),
+                    encoding="utf-8")
     for extra in ([], ["--continuous"], ["--no-aim"]):
         done = subprocess.run([sys.executable, "-c", "import sys; from meltfix.cli import main; sys.exit(main())",
-                               "solve", str(heat), "--json", *extra], capture_output=True, text=True, check=False)
+                               "solve", str(heat), "--json", "--recipes", str(recipes), *extra],
+                              capture_output=True, text=True, check=False)
         lines = done.stdout.splitlines()
         assert len(lines) == 1, done.stdout[:300]
         assert json.loads(lines[0])["heat"] == "KB-24105", extra
