@@ -28,6 +28,7 @@ from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.plan_model import HeatLoad, HotModel, ModelShape, Solution
 from meltfix.reasons import explain_violation
 from meltfix.recipes import Grade, Material, RecipeBook
+from meltfix.sequence import AdditionStep, sequence_additions
 
 # A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
 # as HiGHS's own MIP feasibility tolerance does.
@@ -141,6 +142,9 @@ class Plan:
     """False when the time budget ran out before this plan was proven the cheapest."""
     gap: float = 0.0
     """How much cheaper the cheapest plan might still be, relative to this one's cost [fraction]."""
+    steps: tuple[AdditionStep, ...] = ()
+    """The additions as the crew makes them, in the shop's order with their lots (same order as
+    ``additions``)."""
 
     @property
     def cost_per_t(self) -> float:
@@ -158,7 +162,8 @@ class Plan:
             "grade": self.grade,
             "status": self.status,
             "additions": [
-                {"material": a.material, "kg": a.kg, "cost": a.cost, "packs": a.packs} for a in self.additions
+                {"material": a.material, "kg": a.kg, "cost": a.cost, "packs": a.packs} | _step_json(step)
+                for a, step in zip(self.additions, self.steps or [None] * len(self.additions))
             ],
             "total_cost": self.total_cost,
             "cost_per_t": self.cost_per_t,
@@ -238,6 +243,9 @@ class Planner:
         book, shape = self.book, model.shape
         grade = shape.grade
         additions, used = _additions(shape, load, solution.x)
+        steps = sequence_additions(used, book.settings)
+        by_name = {a.material: a for a in additions}
+        additions = [by_name[step.material] for step in steps]
         final_kg, predicted, checks = recheck(heat, grade, used)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
         # The status is the re-check's, on every path: a solver's "optimal" at a bath so small that
@@ -280,6 +288,7 @@ class Planner:
             currency=book.settings.currency,
             proven=solution.proven,
             gap=solution.gap,
+            steps=steps,
         )
 
 
@@ -434,6 +443,14 @@ def addition(material: Material, kg: float, price_per_kg: float, packed: bool) -
     amount is counted in whole packs (a loose, locked or continuous amount is not)."""
     packs = int(round(kg / material.pack_kg)) if packed and material.pack_kg else None
     return Addition(material.name, kg, kg * price_per_kg, packs, material.pack_kg if packs is not None else None)
+
+
+def _step_json(step: AdditionStep | None) -> dict[str, object]:
+    """The order-and-lots fields of one JSON addition."""
+    if step is None:
+        return {}
+    return {"addition_class": step.addition_class, "portions_kg": list(step.portions_kg),
+            "stir_min": step.stir_min, "metres": step.metres}
 
 
 def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]]

@@ -205,6 +205,12 @@ class ShopSettings:
     (0.45 typed as 45). The shop's table adds to and overrides :data:`PLAUSIBLE_MAX_PCT`."""
     bath_kg_range: tuple[float, float] = (0.0, DEFAULT_MAX_BATH_KG)
     """Smallest and largest bath the shop melts [kg]; outside is a slip (tonnes typed as kg)."""
+    addition_order: tuple[str, ...] = ADDITION_CLASSES
+    """The order the classes of addition go in (every class of ADDITION_CLASSES, once)."""
+    max_portion_kg: float | None = None
+    """Largest lot of one material added at once [kg]; None = any amount in one lot."""
+    stir_min: float = 2.0
+    """Stirring or dissolution time between two lots [min] (common practice: a few minutes)."""
 
 
 @dataclass(frozen=True)
@@ -601,7 +607,8 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
-              "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range"}
+              "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
+              "max_portion_kg", "stir_min"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -661,6 +668,10 @@ def load_settings(folder: Path) -> ShopSettings:
         scatter=_scatter(table(data.get("scatter", {}), path, "scatter"), path),
         plausible_max_pct=_plausible_max(data.get("plausible_max_pct", {}), path),
         bath_kg_range=_bath_range(data.get("bath_kg_range"), path),
+        addition_order=_addition_order(data.get("addition_order"), path),
+        max_portion_kg=None if data.get("max_portion_kg") is None
+        else number(data["max_portion_kg"], path, "max_portion_kg", positive=True),
+        stir_min=number(data.get("stir_min", defaults.stir_min), path, "stir_min"),
     )
 
 
@@ -703,6 +714,20 @@ def _bath_range(raw: Any, path: Path) -> tuple[float, float]:
     if not low < high:
         raise InputError(path, "bath_kg_range", f"min {low:g} kg is not below max {high:g} kg")
     return (low, high)
+
+
+def _addition_order(raw: Any, source: object) -> tuple[str, ...]:
+    """The shop's order of addition classes; classes it leaves out follow in the default order."""
+    if raw is None:
+        return ADDITION_CLASSES
+    if not isinstance(raw, list):
+        raise InputError(source, "addition_order", f"expected a list of addition classes, got {raw!r}")
+    for name in raw:
+        if name not in ADDITION_CLASSES:
+            raise InputError(source, "addition_order", f"{name!r} is not one of {', '.join(ADDITION_CLASSES)}")
+    if len(set(raw)) != len(raw):
+        raise InputError(source, "addition_order", "lists a class twice")
+    return tuple(raw) + tuple(c for c in ADDITION_CLASSES if c not in raw)
 
 
 def load_recipes(folder: Path | str | None = None) -> RecipeBook:

@@ -54,13 +54,15 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     adds.add_column("kg", justify="right")
     adds.add_column("packs", justify="right")
     adds.add_column(f"cost {cur}", justify="right")
-    for a in plan.additions:
+    adds.add_column("how (in this order)")
+    hows = [step.text() for step in plan.steps] if plan.steps else [""] * len(plan.additions)
+    for a, how in zip(plan.additions, hows):
         adds.add_row(Text(visible(a.material)), f"{a.kg:,.1f}", "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
-                     f"{a.cost:,.2f}")
+                     f"{a.cost:,.2f}", how)
     if not plan.additions:
-        adds.add_row("(nothing to add)", "", "", "")
+        adds.add_row("(nothing to add)", "", "", "", "")
     adds.add_section()
-    adds.add_row("Total", f"{plan.added_kg:,.1f}", "", f"{plan.total_cost:,.2f}")
+    adds.add_row("Total", f"{plan.added_kg:,.1f}", "", f"{plan.total_cost:,.2f}", "")
     adds.caption = (f"{plan.cost_per_t:,.2f} {cur}/t · bath {plan.bath_kg:,.0f} → {plan.final_kg:,.0f} kg · "
                     f"temperature {-plan.temperature_drop_c:+.1f} °C")
 

@@ -33,13 +33,16 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
     ]
     if plan.status != "optimal":
         lines += ["*** CLOSEST PLAN: THE GRADE IS NOT MET — see 'Out of reach' below ***", ""]
-    lines.append("ADD")
+    lines.append("ADD, IN THIS ORDER")
     if plan.additions:
         lines.append(f"  {'material':<30}{'kg':>10}")
-        for addition in plan.additions:
+        steps = plan.steps or (None,) * len(plan.additions)
+        for number, (addition, step) in enumerate(zip(plan.additions, steps), start=1):
             packs = "" if addition.packs is None else (
                 f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of {addition.pack_kg:g} kg")
-            lines.append(f"  {addition.material:<30}{kg_text(addition.kg):>10}{packs}")
+            lines.append(f"{number:>2} {addition.material:<29}{kg_text(addition.kg):>10}{packs}")
+            if step is not None and (step.metres is not None or len(step.portions_kg) > 1):
+                lines.append(f"{'':<5}{step.text()}")
         lines.append(f"  {'total':<30}{kg_text(plan.added_kg):>10}")
     else:
         lines.append("  nothing: the bath is already where it should be")

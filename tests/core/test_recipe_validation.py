@@ -161,9 +161,9 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
      "grades/g2.toml", "name", "grade 'G1' is already defined in g1.toml"),
     ("typo in shop.toml", edit("shop.toml", "max_temp_drop_c", "max_temp_drop"),
      "shop.toml", "max_temp_drop",
-     "unknown key (expected one of: aim_penalty, bath_kg_range, correction_cost, currency, large_addition_kg_per_t, "
-     "max_temp_drop_c, max_unlisted_rise_pct, plan_time_limit_s, plausible_max_pct, scatter, shop_name, spectrometer, "
-     "stage, target_odds)"),
+     "unknown key (expected one of: addition_order, aim_penalty, bath_kg_range, correction_cost, currency, "
+     "large_addition_kg_per_t, max_portion_kg, max_temp_drop_c, max_unlisted_rise_pct, plan_time_limit_s, "
+     "plausible_max_pct, scatter, shop_name, spectrometer, stage, stir_min, target_odds)"),
     ("negative temperature drop", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = -25.0"),
      "shop.toml", "max_temp_drop_c", "must not be negative, got -25.0"),
     ("grades folder missing", put("grades/g1.toml", None),
@@ -192,6 +192,11 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
     ("reheat cost at a stage without heating", edit("shop.toml", "max_temp_drop_c = 25.0",
                                                     "max_temp_drop_c = 25.0\n[stage.ladle]\nreheat_cost_per_c = 0.1"),
      "shop.toml", "stage.ladle.reheat_cost_per_c", "is set but the stage cannot reheat (can_reheat = false)"),
+    ("unknown class in the order", edit("shop.toml", "max_temp_drop_c = 25.0", 'addition_order = ["alloy"]'),
+     "shop.toml", "addition_order",
+     "'alloy' is not one of scrap, treatment, deoxidiser, bulk alloy, carbon, trim, late, wire"),
+    ("zero lot size", edit("shop.toml", "max_temp_drop_c = 25.0", "max_portion_kg = 0"),
+     "shop.toml", "max_portion_kg", "must be above 0, got 0"),
     ("can_reheat not a boolean", edit("shop.toml", "max_temp_drop_c = 25.0", '[stage.lf]\ncan_reheat = "yes"'),
      "shop.toml", "stage.lf.can_reheat", "expected true or false, got 'yes'"),
 ]
