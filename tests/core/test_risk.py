@@ -167,7 +167,8 @@ def independent_odds(heat: Heat, book: RecipeBook, plan_kg: dict[str, float], dr
         start[:, k] -= owed.get(s, 0.0)
     element = bath[:, None] * start / 100
     final = bath.copy()
-    for name, kg in plan_kg.items():
+    # In the book's order: the draws must not depend on the order a plan lists its additions in.
+    for name, kg in sorted(plan_kg.items(), key=lambda item: book.material_names.index(item[0])):
         m = stage_material(heat, book, name)  # the recoveries at the heat's stage
         for s, pct in m.composition_pct.items():
             sd = 0.0 if s == "Fe" else m.recovery_scatter.get(s, scatter.recovery)
