@@ -15,9 +15,9 @@ from __future__ import annotations
 
 import argparse
 import json
-from pathlib import Path
 from typing import TYPE_CHECKING
 
+from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
 from meltfix.errors import InputError
 
 if TYPE_CHECKING:
@@ -29,9 +29,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("record", metavar="RECORD", nargs="?",
                         help="a recorded heat (TOML: samples and additions made); or give --heat")
     parser.add_argument("--heat", metavar="ID", help="replay this heat from the logbook instead of a file")
-    parser.add_argument("--logbook", metavar="PATH", type=Path,
-                        help="logbook to read --heat from (default: $MELTFIX_LOGBOOK, else meltfix/logbook.sqlite "
-                        "in the user's data folder)")
+    parser.add_argument("--logbook", metavar="PATH|URL", help="the " + LOGBOOK_HELP + " to read --heat from")
     parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
@@ -82,6 +80,6 @@ def _record(args: argparse.Namespace, book: RecipeBook) -> HeatRecord:
         return load_record(args.record, book)
     from meltfix.logbook import Logbook
 
-    with Logbook(args.logbook, create=False) as logbook:
+    with Logbook(given_logbook(args.logbook), create=False) as logbook:
         history = logbook.heat_history(args.heat)
     return record_from_history(history, book)

@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
 from meltfix.errors import InputError
 
 
@@ -16,8 +17,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("heat", nargs="?", metavar="HEAT.toml",
                         help="heat to open (default: the demo shop's first heat)")
     parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
-    parser.add_argument("--logbook", metavar="PATH", type=Path,
-                        help="logbook file for accepted plans (default: $MELTFIX_LOGBOOK or the logbook's own default)")
+    parser.add_argument("--logbook", metavar="PATH|URL", help="the " + LOGBOOK_HELP + " for accepted plans")
     parser.add_argument("--tickets", metavar="DIR", type=Path, help="folder for crew tickets (default: here)")
     parser.add_argument("--light", action="store_true", help="colours for a light terminal")
 
@@ -45,8 +45,8 @@ def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep
     book = load_recipes(args.recipes)
     heat_path = Path(args.heat) if args.heat else first_demo_heat()
     heat = load_heat(heat_path, book)
-    return make_app(book, heat, heat_path=heat_path, logbook_path=args.logbook, tickets_dir=args.tickets,
-                    light=args.light)
+    return make_app(book, heat, heat_path=heat_path, logbook_path=given_logbook(args.logbook),
+                    tickets_dir=args.tickets, light=args.light)
 
 
 def run(args: argparse.Namespace) -> int:

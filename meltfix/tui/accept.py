@@ -42,12 +42,32 @@ def record_accepted(records: Logbook, heat: Heat, plan: Plan, imported: SpectroS
     analysis is already recorded for the heat is that sample, not a new one, so accepting again
     for unchanged inputs records only the new plan.
     """
+    from meltfix.logbook import SampleTaken
+
     when = datetime.now() if when is None else when
     analysis = heat.analysis if imported is None else imported.analysis
+    # Another station accepting for the same heat may take the sample number chosen here between
+    # the read and the write: the logbook's unique constraint refuses the second, which numbers again.
+    for attempt in range(_SAMPLE_ATTEMPTS):
+        try:
+            sample_id, is_new = _record_sample(records, heat, analysis, imported, when)
+            break
+        except SampleTaken:
+            if attempt == _SAMPLE_ATTEMPTS - 1:
+                raise
+    return Accepted(records.record_plan(heat, plan, when), sample_id, sample_is_new=is_new)
+
+
+_SAMPLE_ATTEMPTS = 10
+
+
+def _record_sample(records: Logbook, heat: Heat, analysis: Analysis, imported: SpectroSample | None,
+                   when: datetime) -> tuple[str, bool]:
+    """The sample the plan answers: one already recorded with this analysis, else a new one."""
     recorded = _recorded_samples(records, heat.heat_id)
     same = next((s for s in recorded if _same_analysis(s.analysis, analysis)), None)
     if same is not None:
-        return Accepted(records.record_plan(heat, plan, when), same.sample_id, sample_is_new=False)
+        return same.sample_id, False
     taken = {s.sample_id for s in recorded}
     if imported is None:
         ids = (f"S{n}" for n in count(len(recorded) + 1))
@@ -59,7 +79,7 @@ def record_accepted(records: Logbook, heat: Heat, plan: Plan, imported: SpectroS
         sample_id = next(i for i in ids if i not in taken)
         records.record_spectro_sample(heat.heat_id, replace(imported, sample_id=sample_id), when,
                                       temperature_c=heat.temperature_c)
-    return Accepted(records.record_plan(heat, plan, when), sample_id, sample_is_new=True)
+    return sample_id, True
 
 
 def _recorded_samples(records: Logbook, heat_id: str) -> tuple[SampleRecord, ...]:

@@ -38,6 +38,7 @@ from meltfix.logbook import (
     Logbook,
     PlanRecord,
     SampleRecord,
+    ServerURL,
     Shift,
     default_logbook_path,
     event_time,
@@ -167,6 +168,8 @@ class LogbookScreen(Screen[None]):
                 from meltfix.demo_logbook import demo_logbook_path
 
                 path = demo_logbook_path(self.book)
+            elif isinstance(path, ServerURL):
+                pass  # a server's logbook: opening it says whether it holds one
             elif not path.exists():
                 self.post_message(LogbookAbsent(path, "no logbook here yet (one is made when the first plan "
                                                       "is accepted on the trim screen with F6)"))
