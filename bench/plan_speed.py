@@ -92,7 +92,7 @@ class Floor:
         start = time.perf_counter()
         model.load(load)
         if load.integrality.any():
-            model.solve_mip(60.0, options.mip_rel_gap)
+            model.solve_mip(60.0, options.mip_rel_gap, load.integrality > 0)
         else:
             model.solve_lp()
         return time.perf_counter() - start

@@ -71,7 +71,7 @@ async def _bare_child() -> None:
             model = HotModel(ModelShape(book, book.grade(heat.grade), heat.stage, False, True))
             load = model.shape.load(heat, book.settings.aim_penalty)
             model.load(load)
-            found = model.solve_mip(60.0, 1e-6) if load.integrality.any() else model.solve_lp()
+            found = model.solve_mip(60.0, 1e-6, load.integrality > 0)[0] if load.integrality.any() else model.solve_lp()
             cost = float(load.cost @ found.x) if found is not None else float("nan")
             self.call_from_thread(self.query_one(Static).update, f"cost {cost:.2f}")
             self.solved = True

@@ -413,7 +413,6 @@ class HotModel:
         self.highs.passModel(lp)
         self._all_cols = np.arange(shape.n_cols, dtype=np.int32)
         self._all_rows = np.arange(shape.n_rows, dtype=np.int32)
-        self._integrality = np.zeros(shape.n_cols)
         self._moved: list[tuple[int, int]] = []
 
     def load(self, heat: HeatLoad) -> None:
@@ -424,7 +423,6 @@ class HotModel:
         highs.changeRowsBounds(self.shape.n_rows, self._all_rows, heat.row_lower, heat.row_upper)
         for row, col, value in heat.coefficients:
             highs.changeCoeff(row, col, value)
-        self._integrality = heat.integrality
 
     def set_bounds(self, lower: np.ndarray, upper: np.ndarray) -> None:
         self.highs.changeColsBounds(self.shape.n_cols, self._all_cols, lower, upper)
@@ -437,15 +435,16 @@ class HotModel:
 
     def solve_lp(self) -> Solution | None:
         """The linear programme (integrality ignored), duals included; None = infeasible."""
-        self._integers(False)
+        self._integers(None)
         if not self._run():
             return None
         solution = self.highs.getSolution()
         return Solution(np.array(solution.col_value), np.array(solution.row_dual), np.array(solution.col_dual))
 
-    def solve_mip(self, time_limit_s: float, rel_gap: float) -> Solution | None:
-        """Branch and bound within ``time_limit_s``; None = infeasible or no integer point in time."""
-        self._integers(True)
+    def solve_mip(self, time_limit_s: float, rel_gap: float, integer: np.ndarray) -> tuple[Solution | None, bool]:
+        """Branch and bound on the columns marked in ``integer`` within ``time_limit_s``: (the best
+        integer point or None, whether the time ran out)."""
+        self._integers(integer)
         highs = self.highs
         highs.setOptionValue("time_limit", max(time_limit_s, 1e-3))
         highs.setOptionValue("mip_rel_gap", rel_gap)
@@ -453,16 +452,17 @@ class HotModel:
         highs.setOptionValue("time_limit", _INF)  # the LPs have no budget of their own
         status = highs.getModelStatus()
         info = highs.getInfo()
+        timed_out = status == highspy.HighsModelStatus.kTimeLimit
         if info.primal_solution_status != highspy.kSolutionStatusFeasible:
-            return None
+            return None, timed_out
         proven = status == highspy.HighsModelStatus.kOptimal
         return Solution(np.array(highs.getSolution().col_value), proven=proven,
-                        gap=0.0 if proven else float(info.mip_gap))
+                        gap=0.0 if proven else float(info.mip_gap)), timed_out
 
-    def _integers(self, on: bool) -> None:
+    def _integers(self, integer: np.ndarray | None) -> None:
         # HighsVarType as bytes: 0 continuous, 1 integer.
-        values = self._integrality if on else np.zeros(self.shape.n_cols)
-        self.highs.changeColsIntegrality(self.shape.n_cols, self._all_cols, (values > 0).astype(np.uint8))
+        values = np.zeros(self.shape.n_cols, dtype=np.uint8) if integer is None else integer.astype(np.uint8)
+        self.highs.changeColsIntegrality(self.shape.n_cols, self._all_cols, values)
 
     def _run(self) -> bool:
         # Each solve starts from no basis, so a heat's plan never depends on the heats planned

@@ -141,7 +141,8 @@ class Plan:
     proven: bool = True
     """False when the time budget ran out before this plan was proven the cheapest."""
     gap: float = 0.0
-    """How much cheaper the cheapest plan might still be, relative to this one's cost [fraction]."""
+    """How much cheaper the cheapest plan might still be, relative to this one's cost [fraction];
+    infinite when the budget ran out before any plan in whole packs was found (JSON: null)."""
     steps: tuple[AdditionStep, ...] = ()
     """The additions as the crew makes them, in the shop's order with their lots (same order as
     ``additions``)."""
@@ -186,7 +187,7 @@ class Plan:
             "cautions": list(self.cautions),
             "notes": list(self.notes),
             "proven": self.proven,
-            "gap": self.gap,
+            "gap": self.gap if math.isfinite(self.gap) else None,
         }
 
 
@@ -267,8 +268,10 @@ class Planner:
         binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
         notes = load.notes
         if not solution.proven:
-            notes += (f"best plan found within the {budget_s:g} s planning budget: the cheapest possible plan "
-                      f"may cost up to {100 * solution.gap:.2g} % less",)
+            notes += ((f"best plan found within the {budget_s:g} s planning budget: the cheapest possible plan "
+                       f"may cost up to {100 * solution.gap:.2g} % less",) if math.isfinite(solution.gap) else
+                      (f"no plan in whole packs was found within the {budget_s:g} s planning budget: these are the "
+                       "loose amounts rounded to whole packs and minimums, checked as shown",))
         return Plan(
             heat_id=heat.heat_id,
             grade=heat.grade,
@@ -295,35 +298,47 @@ class Planner:
 def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray, deadline: float,
            options: PlanOptions) -> Solution | None:
     """Solve the loaded problem (or its elastic version) within the column bounds ``lower`` and
-    ``upper``: None = infeasible, or no plan in time.
+    ``upper``: None = infeasible.
 
     The LP relaxation comes first (DESIGN §7): it is a fraction of the integer solve's time, proves
     infeasibility on its own, and when its optimum already has whole packs and no addition under its
     minimum it is the integer optimum, duals included. Otherwise branch and bound picks the packs and
     the on/off choices, and the LP with those fixed gives the masses: exact whole packs, minimums held
     exactly (not within the integrality tolerance), and the duals of the plan.
+
+    (Branch and bound on the choices of only the materials the relaxation uses, widened whenever its
+    answer used others, was tried and measured slower at 100 and 400 materials: with many near-alike
+    materials it took more rounds than the smaller searches saved.)
     """
+    shape = model.shape
     model.set_bounds(lower, upper)
     relaxed = model.solve_lp()
     if relaxed is None:
         return None
-    point = _integer_point(model.shape, load, relaxed.x)
+    point = _integer_point(shape, load, relaxed.x)
     if point is not None:
         return replace(relaxed, x=point)
-    found = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap)
-    if found is None:
-        return None
     fixed = load.integrality > 0
+    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed)
+    if found is None:
+        if not timed_out:
+            return None
+        # No integer point in the budget: the relaxation's amounts, rounded to whole packs and
+        # minimums by _additions and judged by the re-check like any plan.
+        return Solution(relaxed.x, proven=False, gap=math.inf)
+    point = _integer_point(shape, load, found.x)
+    if point is None:  # off whole packs beyond the tolerance: _additions rounds it, the re-check judges
+        return found
     lower, upper = lower.copy(), upper.copy()
-    lower[fixed] = upper[fixed] = np.round(found.x[fixed])
+    lower[fixed] = upper[fixed] = np.round(point[fixed])
     model.set_bounds(lower, upper)
     polished = model.solve_lp()
-    return found if polished is None else replace(polished, proven=found.proven, gap=found.gap)
+    return replace(found, x=point) if polished is None else replace(polished, proven=found.proven, gap=found.gap)
 
 
 def _integer_point(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> np.ndarray | None:
-    """An LP solution as an integer point when it already has whole packs and every addition at
-    zero or at least its minimum (the on/off binaries then follow the masses); None otherwise."""
+    """``x`` as an integer point when it already has whole packs and every addition at zero or at
+    least its minimum (the on/off binaries then follow the masses); None otherwise."""
     packs = x[shape.col_mat][load.packed]
     if np.any(np.abs(packs - np.round(packs)) > _INTEGRALITY_TOL):
         return None
