@@ -25,6 +25,7 @@ from dataclasses import dataclass
 
 import highspy
 import numpy as np
+from highspy._core import _Highs
 
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.elements import element_sort_key
@@ -49,7 +50,7 @@ _INF = math.inf
 # depending on which heat that model met first. A primal feasibility tolerance of 1e-9 kg (100
 # times tighter than HiGHS's default) keeps a plan the solver calls feasible inside its own re-check
 # by the mass balance (a miss beyond 1e-9 wt %) from a 100 kg bath up.
-_OPTIONS: dict[str, object] = {
+_OPTIONS: dict[str, bool | float | str] = {
     "output_flag": False, "log_to_console": False, "presolve": "off", "threads": 1,
     "primal_feasibility_tolerance": 1e-9, "simplex_scale_strategy": 0,
     "mip_heuristic_run_rins": False, "mip_heuristic_run_rens": False,
@@ -394,7 +395,7 @@ class HotModel:
 
     def __init__(self, shape: ModelShape) -> None:
         self.shape = shape
-        self.highs = highspy._Highs()  # noqa: SLF001 (see the class docstring)
+        self.highs = _Highs()  # the core class, see above
         for name, value in _OPTIONS.items():
             self.highs.setOptionValue(name, value)
         lp = highspy.HighsLp()
@@ -420,7 +421,8 @@ class HotModel:
         highs = self.highs
         highs.changeColsBounds(self.shape.n_cols, self._all_cols, heat.col_lower, heat.col_upper)
         highs.changeColsCost(self.shape.n_cols, self._all_cols, heat.cost)
-        highs.changeRowsBounds(self.shape.n_rows, self._all_rows, heat.row_lower, heat.row_upper)
+        # In the binding, not in its type stubs:
+        highs.changeRowsBounds(self.shape.n_rows, self._all_rows, heat.row_lower, heat.row_upper)  # type: ignore[attr-defined]
         for row, col, value in heat.coefficients:
             highs.changeCoeff(row, col, value)
 
