@@ -20,10 +20,11 @@ import math
 import os
 import threading
 import tomllib
-from collections.abc import Callable, Collection, Iterator, Mapping, Sequence
+from collections.abc import Callable, Collection, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import asdict, fields
 from datetime import date, datetime, time, timedelta
+from itertools import islice
 from types import MappingProxyType
 from typing import TYPE_CHECKING
 
@@ -110,6 +111,12 @@ def _options_from(options_json: str) -> PlanOptions:
     known = {f.name for f in fields(PlanOptions)}
     return PlanOptions(**{k: v for k, v in json.loads(options_json).items() if k in known})
 
+
+
+# A sample's other ids to try, at most (a heat has a handful of samples), and whole tries when a
+# unique violation still gets through.
+_MAX_SAMPLE_IDS = 1000
+_SAMPLE_ATTEMPTS = 5
 
 
 def _open_backend(location: LogbookLocation, *, create: bool, durable: bool) -> Backend:
@@ -340,21 +347,45 @@ class Logbook:
 
     def record_sample(self, heat_id: str, sample_id: str, analysis: Analysis, burns: Sequence[Analysis] = (),
                       when: datetime | None = None, *, rejected_burns: Collection[int] = (),
-                      temperature_c: float | None = None, flags: Sequence[str] = ()) -> None:
-        """Record a sample: the analysis used (average of the accepted burns) and every burn.
+                      temperature_c: float | None = None, flags: Sequence[str] = (),
+                      if_taken: Iterable[str] = ()) -> str:
+        """Record a sample: the analysis used (average of the accepted burns) and every burn; returns its id.
 
-        ``rejected_burns`` numbers (1-based) the burns left out of the average.
+        ``rejected_burns`` numbers (1-based) the burns left out of the average. ``if_taken`` lists
+        ids to use, in order, when ``sample_id`` is already recorded for the heat: the id is chosen
+        inside the write transaction with the heat's row locked, so two stations recording at once
+        never choose the same one. Without it a taken id raises :class:`SampleTaken`.
         """
         for number in rejected_burns:
             if not 1 <= number <= len(burns):
                 raise InputError("sample", f"{sample_id}.rejected_burns",
                                  f"burn {number} does not exist (the sample has {len(burns)} burns)")
         when = _stamp(when)
+        candidates = list(islice(if_taken, _MAX_SAMPLE_IDS)) if if_taken else []
+        for attempt in range(_SAMPLE_ATTEMPTS):
+            try:
+                return self._insert_sample(heat_id, [sample_id, *candidates], analysis, burns, when,
+                                           rejected_burns, temperature_c, flags)
+            except SampleTaken:
+                # Only where the heat's lock could not keep another station out (a brand-new heat
+                # on both at once): the UNIQUE (heat_id, sample_id) constraint refused it; try again.
+                if not candidates or attempt == _SAMPLE_ATTEMPTS - 1:
+                    raise
+        raise AssertionError("unreachable")
+
+    def _insert_sample(self, heat_id: str, ids: Sequence[str], analysis: Analysis, burns: Sequence[Analysis],
+                       when: datetime, rejected_burns: Collection[int], temperature_c: float | None,
+                       flags: Sequence[str]) -> str:
         pct_json, below_json = _analysis_json(analysis)
         with self._write() as db:
-            if db.execute("SELECT 1 FROM sample WHERE heat_id = ? AND sample_id = ?", (heat_id, sample_id)).fetchone():
-                raise SampleTaken(self.path, heat_id, sample_id)
+            # The heat's row first: on PostgreSQL it stays locked until this transaction ends, so
+            # the ids read next cannot change under it (SQLite's write lock covers the whole file).
             self._touch_heat(db, heat_id, when)
+            taken = {row[0] for row in db.execute("SELECT sample_id FROM sample WHERE heat_id = ?", (heat_id,))
+                     .fetchall()}
+            sample_id = next((i for i in ids if i not in taken), None)
+            if sample_id is None:
+                raise SampleTaken(self.path, heat_id, ids[0])
             try:
                 row = db.execute(
                     "INSERT INTO sample (heat_id, sample_id, taken_at, analysis, below_limit, temperature_c, flags) "
@@ -362,23 +393,23 @@ class Logbook:
                     (heat_id, sample_id, _iso(when), pct_json, below_json, temperature_c, json.dumps(list(flags))),
                 ).fetchone()[0]
             except db.errors as exc:
-                # Another station recorded the same sample number between the check and here: the
-                # UNIQUE (heat_id, sample_id) constraint, not the check, is what guarantees it.
                 if db.is_unique_violation(exc):
                     raise SampleTaken(self.path, heat_id, sample_id) from None
                 raise
             db.executemany(
                 "INSERT INTO burn (sample_row, burn_no, analysis, below_limit, accepted) VALUES (?, ?, ?, ?, ?)",
                 [(row, k, *_analysis_json(burn), int(k not in rejected_burns)) for k, burn in enumerate(burns, 1)])
+        return sample_id
 
     def record_spectro_sample(self, heat_id: str, sample: SpectroSample, when: datetime | None = None, *,
-                              temperature_c: float | None = None) -> None:
-        """Record a sample read from a spectrometer export, with its burns, left-out burns and flags."""
+                              temperature_c: float | None = None, if_taken: Iterable[str] = ()) -> str:
+        """Record a sample read from a spectrometer export, with its burns, left-out burns and flags;
+        returns its id (see :meth:`record_sample` for ``if_taken``)."""
         burns = [Analysis({s: r.pct for s, r in burn.readings.items()},
                           frozenset(s for s, r in burn.readings.items() if r.below_limit)) for burn in sample.burns]
         rejected = {k for k, burn in enumerate(sample.burns, 1) if not burn.accepted}
-        self.record_sample(heat_id, sample.sample_id, sample.analysis, burns, when, rejected_burns=rejected,
-                           temperature_c=temperature_c, flags=sample.flags)
+        return self.record_sample(heat_id, sample.sample_id, sample.analysis, burns, when, rejected_burns=rejected,
+                                  temperature_c=temperature_c, flags=sample.flags, if_taken=if_taken)
 
     # -- reading -------------------------------------------------------------------------------
     def list_heats(self, date_from: date | None = None, date_to: date | None = None, *,

@@ -7,9 +7,9 @@ Without its samples a heat recorded from the screen could not be replayed
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from datetime import datetime
-from itertools import chain, count
+from itertools import count
 from typing import TYPE_CHECKING
 
 from meltfix.analysis import Analysis
@@ -42,44 +42,24 @@ def record_accepted(records: Logbook, heat: Heat, plan: Plan, imported: SpectroS
     analysis is already recorded for the heat is that sample, not a new one, so accepting again
     for unchanged inputs records only the new plan.
     """
-    from meltfix.logbook import SampleTaken
-
     when = datetime.now() if when is None else when
     analysis = heat.analysis if imported is None else imported.analysis
-    # Another station accepting for the same heat may take the sample number chosen here between
-    # the read and the write: the logbook's unique constraint refuses the second, which numbers again.
-    for attempt in range(_SAMPLE_ATTEMPTS):
-        try:
-            sample_id, is_new = _record_sample(records, heat, analysis, imported, when)
-            break
-        except SampleTaken:
-            if attempt == _SAMPLE_ATTEMPTS - 1:
-                raise
-    return Accepted(records.record_plan(heat, plan, when), sample_id, sample_is_new=is_new)
-
-
-_SAMPLE_ATTEMPTS = 10
-
-
-def _record_sample(records: Logbook, heat: Heat, analysis: Analysis, imported: SpectroSample | None,
-                   when: datetime) -> tuple[str, bool]:
-    """The sample the plan answers: one already recorded with this analysis, else a new one."""
     recorded = _recorded_samples(records, heat.heat_id)
     same = next((s for s in recorded if _same_analysis(s.analysis, analysis)), None)
     if same is not None:
-        return same.sample_id, False
-    taken = {s.sample_id for s in recorded}
+        return Accepted(records.record_plan(heat, plan, when), same.sample_id, sample_is_new=False)
+    # The logbook picks the first id still free when it writes: another station accepting for the
+    # same heat at the same moment may have taken the one this screen saw as next.
     if imported is None:
-        ids = (f"S{n}" for n in count(len(recorded) + 1))
-        sample_id = next(i for i in ids if i not in taken)
-        records.record_sample(heat.heat_id, sample_id, analysis, when=when, temperature_c=heat.temperature_c)
+        first = len(recorded) + 1
+        sample_id = records.record_sample(heat.heat_id, f"S{first}", analysis, when=when,
+                                          temperature_c=heat.temperature_c,
+                                          if_taken=(f"S{n}" for n in count(first + 1)))
     else:
         # Spectrometers restart their numbering; another sample of this heat may hold the id already.
-        ids = chain([imported.sample_id], (f"{imported.sample_id}-{k}" for k in count(2)))
-        sample_id = next(i for i in ids if i not in taken)
-        records.record_spectro_sample(heat.heat_id, replace(imported, sample_id=sample_id), when,
-                                      temperature_c=heat.temperature_c)
-    return sample_id, True
+        sample_id = records.record_spectro_sample(heat.heat_id, imported, when, temperature_c=heat.temperature_c,
+                                                  if_taken=(f"{imported.sample_id}-{k}" for k in count(2)))
+    return Accepted(records.record_plan(heat, plan, when), sample_id, sample_is_new=True)
 
 
 def _recorded_samples(records: Logbook, heat_id: str) -> tuple[SampleRecord, ...]:

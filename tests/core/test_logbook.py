@@ -189,6 +189,9 @@ def test_a_sample_id_is_recorded_once(place: str) -> None:
         with pytest.raises(InputError, match="already recorded"):
             logbook.record_sample("H1", "S1", Analysis({"C": 0.99}), when=T0)
         assert logbook.heat_history("H1").samples[0].analysis.pct == {"C": 0.40}
+        # Given other ids, the logbook takes the first one still free, and says which.
+        assert logbook.record_sample("H1", "S1", Analysis({"C": 0.45}), when=T0, if_taken=["S2", "S3"]) == "S2"
+        assert logbook.record_sample("H1", "S1", Analysis({"C": 0.46}), when=T0, if_taken=["S2", "S3"]) == "S3"
 
 
 def test_spectrometer_sample_is_recorded_with_its_burns(place: str) -> None:
