@@ -13,6 +13,7 @@ from typing import Any
 from meltfix.analysis import Analysis, analysis_from_table
 from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key, normalise_symbol
 from meltfix.errors import InputError
+from meltfix.liquidus import formula_for
 from meltfix.recipes import (Grade, Material, RecipeBook, ShopSettings, identifier, known_keys, number, read_toml,
                              require, table, text)
 
@@ -169,6 +170,13 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
     if heat.stage not in book.settings.stages:
         raise InputError(source, "stage", f"'{heat.stage}' is not a stage of this shop (shop.toml lists: "
                          f"{', '.join(book.settings.stages)})")
+    if heat.temperature_c is not None:
+        # A bath below the liquidus of its own analysis would be (partly) frozen: a slip of the pen
+        # or a wrong analysis, never something to plan additions for.
+        liquidus = formula_for(book.grade(heat.grade).family).liquidus_c(heat.analysis.pct)
+        if heat.temperature_c < liquidus:
+            raise InputError(source, "temperature_c", f"{heat.temperature_c:g} °C is below the liquidus of the "
+                             f"measured analysis ({liquidus:.0f} °C): the bath would be frozen")
     if heat.dissolved_o_ppm is not None and not 0 <= heat.dissolved_o_ppm <= _MAX_DISSOLVED_O_PPM:
         raise InputError(source, "dissolved_o_ppm", f"{heat.dissolved_o_ppm!r} ppm is outside 0..{_MAX_DISSOLVED_O_PPM:g} "
                          "ppm (oxygen saturates liquid iron at about 2300 ppm)")

@@ -12,7 +12,8 @@ plus one coefficient per row for the few families noted below. So the model is b
 
 Columns, in this order: the materials (kg, or packs), the aim deviations d+ and d-, one on/off
 binary per material with a minimum addition, one elastic slack per window row (fixed at 0 except in
-the closest-plan phases), and the final bath mass M. Rows come in families, one function each
+the closest-plan phases), the final bath mass M, and the arc heating R [°C] a stage that can reheat
+may buy. Rows come in families, one function each
 (``_window_rows``, ``_capacity_row``, ...): a new family is one more function and one more line in
 ``ModelShape.build``.
 """
@@ -30,6 +31,7 @@ from highspy._core import _Highs
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.elements import element_sort_key
 from meltfix.heat import Heat, usable_materials
+from meltfix.liquidus import formula_for
 from meltfix.recipes import Grade, Material, RecipeBook
 
 # Kilograms of element off aim -> penalty: 0.01 wt % of a bath of M kg is M/10000 kg, per tonne
@@ -139,6 +141,11 @@ class ModelShape:
         self.switchable = np.flatnonzero(self.min_kg > 0)
         """Materials with a minimum addition, in the order of their on/off columns."""
         self.chill = np.array([m.chill_per_kg_t for m in materials])
+        self.liquidus = formula_for(grade.family)
+        # How much each kg of a material lowers (liquidus x bath mass) [°C kg per kg]: the liquidus
+        # is linear in the contents, so times the final mass it is linear in the additions.
+        self.liquidus_lowering = np.array([math.fsum(k * m.yield_pct(s) for s, k in self.liquidus.slope_c_per_pct.items())
+                                       for m in materials])
         self.aim_elements = [s for s in grade.aim_pct if use_aim]
         # An element the grade does not limit may still not be raised at will: without this guard
         # the optimiser would use aluminium, copper or ferrosilicon as a cheap diluent or heater.
@@ -154,12 +161,14 @@ class ModelShape:
         self.n_window = self._count_window_rows()
         self.col_slack = slice(self.col_switch.stop, self.col_switch.stop + self.n_window)
         self.col_mass = self.col_slack.stop
-        self.n_cols = self.col_mass + 1
+        self.col_reheat = self.col_mass + 1
+        self.n_cols = self.col_reheat + 1
 
         # Row families, in model order. The window rows come first: their slacks are the elastic ones.
         self.windows = self._window_rows()
         self.capacity = self._capacity_row()
         self.temperature = self._temperature_row()
+        self.superheat = self._superheat_row()
         self.mass = self._mass_row()
         self.unlisted_rows = self._unlisted_rows()
         self.switch = self._switch_rows()
@@ -167,7 +176,8 @@ class ModelShape:
         self.violation_cap = self._violation_cap_row()
         first = 0
         families = []
-        for name in ("windows", "capacity", "temperature", "mass", "unlisted_rows", "switch", "aims", "violation_cap"):
+        for name in ("windows", "capacity", "temperature", "superheat", "mass", "unlisted_rows", "switch", "aims",
+                     "violation_cap"):
             family = getattr(self, name)
             family = Rows(family.matrix, first)
             setattr(self, name, family)
@@ -218,8 +228,25 @@ class ModelShape:
         return Rows(self._material_block(self.g[None, :]))
 
     def _temperature_row(self) -> Rows:
-        """sum chill_j x_j / (W / 1000) <= allowed drop, multiplied by W so its coefficients stay fixed."""
-        return Rows(self._material_block(1000.0 * self.chill[None, :]))
+        """sum chill_j x_j / (W / 1000) - R <= allowed drop, multiplied by W so its coefficients stay
+        fixed but R's (the heat sets -W): arc heating offsets the chill where the stage can reheat."""
+        block = self._material_block(1000.0 * self.chill[None, :])
+        block[0, self.col_reheat] = -1.0  # a placeholder for -W
+        return Rows(block)
+
+    def _superheat_row(self) -> Rows:
+        """Temperature after >= liquidus of the final analysis + superheat, multiplied by M:
+
+            (T0 - S - base) M + sum_i k_i 100 m_i - 1000 sum_j chill_j x_j + W R >= 0
+
+        with T_L = base - sum_i k_i wt %_i (meltfix.liquidus). The chill and the heating enter as
+        D W and R W instead of D M and R M: exact in W, short by D (M - W) / M, a few tenths of a
+        degree for a 1 % addition (the plan's re-check reports the exact temperature). The heat
+        sets the coefficients of M (its T0 - S - base) and R (its W)."""
+        block = self._material_block((self.liquidus_lowering - 1000.0 * self.chill)[None, :])
+        block[0, self.col_mass] = 1.0  # placeholders
+        block[0, self.col_reheat] = 1.0
+        return Rows(block)
 
     def _mass_row(self) -> Rows:
         """M = W + g x: the final bath mass as a column, for the rows whose limit moves with it."""
@@ -268,6 +295,31 @@ class ModelShape:
         return np.array([max(row.limit_pct, _LEAST_LIMIT_PCT) / 100.0 for row in self.window_rows])
 
     # -- one heat ---------------------------------------------------------------------------------
+    def _temperature_load(self, heat: Heat, row_lower: np.ndarray, notes: list[str]) -> tuple[float, float, float]:
+        """The heat's arc heating (most [°C], cost [currency per °C]) and the superheat row: its lower
+        bound goes in ``row_lower``; returns also the row's coefficient of M (T0 - S - base)."""
+        stage = self.book.settings.stages.get(heat.stage)
+        can_reheat = stage is not None and stage.can_reheat
+        reheat_max_c = stage.reheat_max_c if can_reheat else 0.0
+        reheat_cost = stage.reheat_cost_per_c * heat.bath_kg / 1000.0 if can_reheat else 0.0
+        if heat.temperature_c is None:
+            return reheat_max_c, reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
+        superheat = self.book.settings.superheat_c
+        # Below-limit readings at 0: the safe end for a liquidus (less solute, a higher liquidus).
+        now_liquidus = self.liquidus.liquidus_c(heat.analysis.lowest_pct)
+        lower = -heat.bath_kg * (self.liquidus.base_c - now_liquidus)
+        # A bath already short of liquidus + superheat may not get worse (nor is adding nothing made
+        # impossible): what the heating cannot make up is forgiven, and said.
+        short_c = now_liquidus + superheat - heat.temperature_c - reheat_max_c
+        if short_c > 0:
+            lower -= heat.bath_kg * short_c
+            notes.append(f"the bath is {now_liquidus + superheat - heat.temperature_c:.0f} °C short of liquidus "
+                         f"{now_liquidus:.0f} °C + superheat {superheat:g} °C already; the plan may not make it worse")
+        row_lower[self.superheat.first] = lower
+        coefficient = heat.temperature_c - superheat - self.liquidus.base_c
+        # Floored away from 0 so HiGHS keeps the matrix's structure (it deletes a 0 coefficient).
+        return reheat_max_c, reheat_cost, coefficient if abs(coefficient) > 1e-8 else 1e-8
+
     def load(self, heat: Heat, aim_penalty: float) -> HeatLoad:
         """Bounds, costs and moving coefficients for ``heat``."""
         book, grade, n = self.book, self.grade, self.n_materials
@@ -317,6 +369,7 @@ class ModelShape:
         max_drop = heat.drop_limit_c(book.settings)
         if max_drop is not None:
             row_upper[self.temperature.first] = max_drop * bath
+        reheat_max_c, reheat_cost, superheat = self._temperature_load(heat, row_lower, notes)
         row_lower[self.mass.first] = row_upper[self.mass.first] = -bath
         unlisted_now = np.array([heat.analysis.get(s) / 100.0 for s in self.unlisted])
         row_upper[self.unlisted_rows.rows] = -bath * unlisted_now
@@ -325,6 +378,9 @@ class ModelShape:
         # the same heat then gives the same plan to the last digit on a new model and a used one.
         coefficients = [(row, self.col_mass, -max(c + rise, 1e-8))
                         for row, c in zip(self.unlisted_rows.rows, unlisted_now)]
+        coefficients += [(self.temperature.first, self.col_reheat, -bath),
+                         (self.superheat.first, self.col_reheat, bath),
+                         (self.superheat.first, self.col_mass, superheat)]
         for t, symbol in enumerate(self.aim_elements):
             k = self.row_of[symbol]
             row_lower[self.aims.first + t] = row_upper[self.aims.first + t] = -bath * (now[k] - grade.aim_pct[symbol] / 100.0)
@@ -347,6 +403,7 @@ class ModelShape:
         col_upper[self.col_mat] = np.where(locked, locked_kg / self.scale, col_upper[self.col_mat])
         col_upper[self.col_switch] = np.where(switched[self.switchable], 1.0, 0.0)
         col_upper[self.col_slack] = 0.0
+        col_upper[self.col_reheat] = reheat_max_c
         # The most of a material with a minimum that could go in: its stock, ten times the bath, or
         # what the vessel can take.
         most_kg = np.minimum(stock, 10.0 * bath)
@@ -361,6 +418,7 @@ class ModelShape:
         cost = np.zeros(self.n_cols)
         cost[self.col_mat] = prices * self.scale
         cost[self.col_up] = cost[self.col_down] = AIM_PENALTY_PER_KG * aim_penalty
+        cost[self.col_reheat] = reheat_cost
         integrality = np.zeros(self.n_cols)
         integrality[self.col_mat] = packed
         integrality[self.col_switch] = 1

@@ -146,6 +146,18 @@ class Plan:
     steps: tuple[AdditionStep, ...] = ()
     """The additions as the crew makes them, in the shop's order with their lots (same order as
     ``additions``)."""
+    liquidus_c: float | None = None
+    """Liquidus of the predicted analysis [°C] (meltfix.liquidus, the grade family's formula)."""
+    temperature_after_c: float | None = None
+    """Bath temperature after the additions and any arc heating [°C]; None without a reading."""
+    superheat_c: float | None = None
+    """The shop's superheat above the liquidus the bath must keep [°C]."""
+    reheat_c: float = 0.0
+    """Arc heating bought at a stage that can reheat [°C]."""
+    reheat_min: float = 0.0
+    """How long that heating takes at the stage's rate [min]."""
+    reheat_cost: float = 0.0
+    """What that heating costs [currency]; included in ``total_cost``."""
 
     @property
     def cost_per_t(self) -> float:
@@ -184,6 +196,12 @@ class Plan:
             ],
             "binding": [{"name": b.name, "saving": b.saving, "unit": b.unit} for b in self.binding],
             "temperature_drop_c": self.temperature_drop_c,
+            "liquidus_c": self.liquidus_c,
+            "temperature_after_c": self.temperature_after_c,
+            "superheat_c": self.superheat_c,
+            "reheat_c": self.reheat_c,
+            "reheat_min": self.reheat_min,
+            "reheat_cost": self.reheat_cost,
             "cautions": list(self.cautions),
             "notes": list(self.notes),
             "proven": self.proven,
@@ -267,6 +285,13 @@ class Planner:
                                             check.predicted_pct, -check.margin_pct, reason))
         binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
         notes = load.notes
+        temperature = _temperature(heat, book, shape, solution.x, drop, predicted)
+        if temperature.reheat_c > 0:
+            notes = (f"arc heating about {temperature.reheat_c:.0f} °C ({temperature.reheat_min:.0f} min) at the "
+                     f"{heat.stage}, {temperature.reheat_cost:,.2f} {book.settings.currency}",) + notes
+        if temperature.short_c > 0.5:
+            notes += (f"temperature after about {temperature.after_c:.0f} °C is {temperature.short_c:.0f} °C short of "
+                      f"liquidus {temperature.liquidus_c:.0f} °C + superheat {book.settings.superheat_c:g} °C",)
         if not solution.proven:
             notes += ((f"best plan found within the {budget_s:g} s planning budget: the cheapest possible plan "
                        f"may cost up to {100 * solution.gap:.2g} % less",) if math.isfinite(solution.gap) else
@@ -277,7 +302,7 @@ class Planner:
             grade=heat.grade,
             status="closest" if missed else "optimal",
             additions=tuple(additions),
-            total_cost=float(math.fsum(a.cost for a in additions)),
+            total_cost=float(math.fsum([a.cost for a in additions] + [temperature.reheat_cost])),
             bath_kg=heat.bath_kg,
             final_kg=final_kg,
             predicted_pct=predicted,
@@ -292,7 +317,37 @@ class Planner:
             proven=solution.proven,
             gap=solution.gap,
             steps=steps,
+            liquidus_c=temperature.liquidus_c,
+            temperature_after_c=temperature.after_c,
+            superheat_c=book.settings.superheat_c,
+            reheat_c=temperature.reheat_c,
+            reheat_min=temperature.reheat_min,
+            reheat_cost=temperature.reheat_cost,
         )
+
+
+@dataclass(frozen=True)
+class _Temperature:
+    liquidus_c: float
+    after_c: float | None
+    short_c: float
+    reheat_c: float
+    reheat_min: float
+    reheat_cost: float
+
+
+def _temperature(heat: Heat, book: RecipeBook, shape: ModelShape, x: np.ndarray, drop_c: float,
+                 predicted: Mapping[str, float]) -> _Temperature:
+    """The plan's temperature budget, by plain arithmetic on its point: liquidus of the predicted
+    analysis, arc heating bought, temperature after, and how far short of liquidus + superheat."""
+    reheat_c = float(x[shape.col_reheat]) if float(x[shape.col_reheat]) > 0.05 else 0.0
+    stage = book.settings.stages.get(heat.stage)
+    rate = stage.reheat_c_per_min if stage is not None else 1.0
+    cost = reheat_c * (stage.reheat_cost_per_c if stage is not None else 0.0) * heat.bath_kg / 1000.0
+    liquidus = shape.liquidus.liquidus_c(predicted)
+    after = None if heat.temperature_c is None else heat.temperature_c - drop_c + reheat_c
+    short = 0.0 if after is None else liquidus + book.settings.superheat_c - after
+    return _Temperature(liquidus, after, short, reheat_c, reheat_c / rate, cost)
 
 
 def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray, deadline: float,
