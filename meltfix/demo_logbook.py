@@ -34,6 +34,7 @@ from meltfix.errors import InputError
 from meltfix.heat import Heat
 from meltfix.logbook import SCHEMA_VERSION, Logbook
 from meltfix.massbalance import bath_after
+from meltfix.paths import cache_dir
 from meltfix.recipes import Grade, Material, RecipeBook, load_recipes
 
 if TYPE_CHECKING:
@@ -322,13 +323,6 @@ def _fingerprint(book: RecipeBook) -> str:
             digest.update(path.relative_to(folder).as_posix().encode())
             digest.update(path.read_bytes())
     return digest.hexdigest()[:12]
-
-
-def cache_dir() -> Path:
-    """$XDG_CACHE_HOME/meltfix (when set to an absolute path), else ~/.cache/meltfix."""
-    xdg = os.environ.get("XDG_CACHE_HOME", "").strip()
-    base = Path(xdg) if xdg and Path(xdg).is_absolute() else Path.home() / ".cache"
-    return base / "meltfix"
 
 
 def demo_logbook_path(book: RecipeBook | None = None) -> Path:

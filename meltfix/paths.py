@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 _PACKAGE = Path(__file__).resolve().parent
@@ -24,3 +25,10 @@ def default_recipes_dir() -> Path:
 def demo_dir() -> Path:
     """The demo shop's heats, spectrometer exports and recorded heats."""
     return _data_dir("demo")
+
+
+def cache_dir() -> Path:
+    """$XDG_CACHE_HOME/meltfix (when set to an absolute path), else ~/.cache/meltfix."""
+    xdg = os.environ.get("XDG_CACHE_HOME", "").strip()
+    base = Path(xdg) if xdg and Path(xdg).is_absolute() else Path.home() / ".cache"
+    return base / "meltfix"

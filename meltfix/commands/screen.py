@@ -8,16 +8,21 @@ from __future__ import annotations
 
 import argparse
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
 from meltfix.errors import InputError
+
+if TYPE_CHECKING:
+    from meltfix.recipes import RecipeBook
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("heat", nargs="?", metavar="HEAT.toml",
                         help="heat to open (default: the demo shop's first heat)")
     parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
-    parser.add_argument("--logbook", metavar="PATH|URL", help="the " + LOGBOOK_HELP + " for accepted plans")
+    parser.add_argument("--logbook", metavar="PATH|URL", help="the " + LOGBOOK_HELP + " for accepted plans (on the built-in demo "
+                        "shop: a demo logbook of its own)")
     parser.add_argument("--tickets", metavar="DIR", type=Path, help="folder for crew tickets (default: here)")
     parser.add_argument("--light", action="store_true", help="colours for a light terminal")
 
@@ -45,8 +50,30 @@ def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep
     book = load_recipes(args.recipes)
     heat_path = Path(args.heat) if args.heat else first_demo_heat()
     heat = load_heat(heat_path, book)
-    return make_app(book, heat, heat_path=heat_path, logbook_path=given_logbook(args.logbook),
-                    tickets_dir=args.tickets, light=args.light)
+    logbook = given_logbook(args.logbook)
+    if logbook is None and is_demo_shop(book):
+        logbook = demo_accepted_path()
+    return make_app(book, heat, heat_path=heat_path, logbook_path=logbook, tickets_dir=args.tickets,
+                    light=args.light)
+
+
+def is_demo_shop(book: RecipeBook) -> bool:
+    """Whether ``book`` is the built-in demo shop's recipe book."""
+    from meltfix.paths import default_recipes_dir
+
+    try:
+        return book.folder is not None and book.folder.resolve() == default_recipes_dir().resolve()
+    except FileNotFoundError:
+        return False
+
+
+def demo_accepted_path() -> Path:
+    """Where plans accepted on the built-in demo shop are recorded: a logbook of its own in meltfix's
+    cache folder, never the user's ($MELTFIX_LOGBOOK or the default), so demo heats neither mix with
+    a real shop's in its reports nor teach `meltfix recoveries` (--logbook still chooses)."""
+    from meltfix.paths import cache_dir
+
+    return cache_dir() / "demo-accepted.sqlite"
 
 
 def run(args: argparse.Namespace) -> int:

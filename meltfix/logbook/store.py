@@ -26,7 +26,7 @@ from dataclasses import asdict, fields
 from datetime import date, datetime, time, timedelta
 from itertools import islice
 from types import MappingProxyType
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from meltfix.analysis import Analysis
 from meltfix.errors import InputError
@@ -87,21 +87,38 @@ def _heat_extra(heat: Heat) -> str:
     })
 
 
+def _cell(path: object, heat_id: str, column: str, parse: Callable[[Any], Any], raw: Any) -> Any:
+    """A cell read back through ``parse``; a damaged one (hand-edited, written by another program) is
+    bad input naming the heat and the column, never a traceback in a report or a replay."""
+    try:
+        return parse(raw)
+    except (ValueError, TypeError, KeyError, AttributeError) as exc:  # json.JSONDecodeError is a ValueError
+        shown = repr(raw) if len(repr(raw)) <= 40 else repr(raw)[:37] + "..."
+        raise InputError(path, f"heat {heat_id}: {column}", f"damaged logbook cell {shown} ({exc})") from None
+
+
+def _kg(value: Any) -> float | None:
+    """A weight column: a number or empty."""
+    if value is None or (isinstance(value, (int, float)) and not isinstance(value, bool)):
+        return value
+    raise ValueError("not a number")
+
+
 def _heat_from(toml_text: str, extra_json: str, source: str, heat_id: str) -> Heat:
     try:
         data = tomllib.loads(toml_text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(source, "heat_toml", f"the recorded heat is not valid TOML ({exc})") from None
     heat = parse_heat(data, source, default_id=heat_id)
-    extra = json.loads(extra_json)
-    return heat.with_changes(
-        stage=extra["stage"],
-        max_temp_drop_c=extra["max_temp_drop_c"],
-        switched_off=frozenset(extra["switched_off"]),
-        locked_kg=MappingProxyType(extra["locked_kg"]),
-        price_per_kg=MappingProxyType(extra["price_per_kg"]),
-        stock_kg=MappingProxyType(extra["stock_kg"]),
-    )
+    extra = _cell(source, heat_id, "heat_extra", json.loads, extra_json)
+    return _cell(source, heat_id, "heat_extra", lambda e: heat.with_changes(
+        stage=e["stage"],
+        max_temp_drop_c=e["max_temp_drop_c"],
+        switched_off=frozenset(e["switched_off"]),
+        locked_kg=MappingProxyType(e["locked_kg"]),
+        price_per_kg=MappingProxyType(e["price_per_kg"]),
+        stock_kg=MappingProxyType(e["stock_kg"]),
+    ), extra)
 
 
 def _options_from(options_json: str) -> PlanOptions:
@@ -432,8 +449,10 @@ class Logbook:
                  WHERE b.heat_id = h.heat_id AND a.cost IS NULL),
               (SELECT p.currency FROM plan p WHERE p.heat_id = h.heat_id ORDER BY p.made_at DESC, p.id DESC LIMIT 1)
             FROM heat h {where} ORDER BY h.started_at, h.heat_id""", params)
-        return [HeatSummary(heat_id=r[0], grade=r[1], started_at=datetime.fromisoformat(r[2]),
-                            shift=Shift(date.fromisoformat(r[3]), r[4]), bath_kg=r[5], samples=r[6], plans=r[7],
+        path = self.path
+        return [HeatSummary(heat_id=r[0], grade=r[1], started_at=_cell(path, r[0], "started_at", datetime.fromisoformat, r[2]),
+                            shift=Shift(_cell(path, r[0], "shift_date", date.fromisoformat, r[3]), r[4]),
+                            bath_kg=_cell(path, r[0], "bath_kg", _kg, r[5]), samples=r[6], plans=r[7],
                             corrections=r[8], added_kg=r[9], planned_cost=r[10], actual_cost=r[11],
                             unpriced_lines=r[12], currency=r[13] or "")
                 for r in rows]
@@ -484,21 +503,24 @@ class Logbook:
         if not heat:
             raise InputError(self.path, f"heat {heat_id}", "is not in the logbook")
         grade, started_at, shift_date, shift_name, bath_kg = heat[0]
+        path = self.path
 
         burns: dict[int, list[tuple[Analysis, bool]]] = {}
         for sample_row, pct, below, accepted in self._read(
                 "SELECT b.sample_row, b.analysis, b.below_limit, b.accepted FROM burn b JOIN sample s "
                 "ON b.sample_row = s.id WHERE s.heat_id = ? ORDER BY b.sample_row, b.burn_no", (heat_id,)):
-            burns.setdefault(sample_row, []).append((_analysis_from(pct, below), bool(accepted)))
+            burns.setdefault(sample_row, []).append(
+                (_cell(path, heat_id, "burn.analysis", lambda a: _analysis_from(*a), (pct, below)), bool(accepted)))
         samples = []
         for row, sample_id, taken_at, pct, below, temperature, flags in self._read(
                 "SELECT id, sample_id, taken_at, analysis, below_limit, temperature_c, flags FROM sample "
                 "WHERE heat_id = ? ORDER BY taken_at, id", (heat_id,)):
             sparks = burns.get(row, [])
             samples.append(SampleRecord(
-                heat_id, sample_id, datetime.fromisoformat(taken_at), _analysis_from(pct, below),
+                heat_id, sample_id, _cell(path, heat_id, "sample.taken_at", datetime.fromisoformat, taken_at),
+                _cell(path, heat_id, "sample.analysis", lambda a: _analysis_from(*a), (pct, below)),
                 tuple(b for b, _ in sparks), frozenset(k for k, (_, ok) in enumerate(sparks, 1) if not ok),
-                temperature, tuple(json.loads(flags))))
+                temperature, tuple(_cell(path, heat_id, "sample.flags", json.loads, flags))))
 
         plan_lines = self._lines("SELECT l.plan_id, l.material, l.kg, l.price_per_kg, l.cost FROM plan_line l "
                                  "JOIN plan p ON l.plan_id = p.id WHERE p.heat_id = ? ORDER BY l.plan_id, l.line_no",
@@ -508,25 +530,29 @@ class Logbook:
              prices, result) in self._read(
                 "SELECT id, made_at, status, total_cost, bath_kg, final_kg, currency, heat_toml, heat_extra, "
                 "options, prices, result FROM plan WHERE heat_id = ? ORDER BY made_at, id", (heat_id,)):
-            result_obj = json.loads(result)
+            result_obj = _cell(path, heat_id, f"plan {plan_id} result", lambda r: dict(json.loads(r)), result)
             plans.append(PlanRecord(
-                plan_id=plan_id, heat_id=heat_id, made_at=datetime.fromisoformat(made_at),
-                heat=_heat_from(toml_text, extra, f"{self.path} plan {plan_id}", heat_id), heat_toml=toml_text,
-                options=_options_from(options), status=status, lines=plan_lines.get(plan_id, ()),
-                total_cost=total_cost, bath_kg=plan_bath, final_kg=final_kg,
+                plan_id=plan_id, heat_id=heat_id,
+                made_at=_cell(path, heat_id, f"plan {plan_id} made_at", datetime.fromisoformat, made_at),
+                heat=_heat_from(toml_text, extra, f"{path} heat {heat_id} plan {plan_id}", heat_id), heat_toml=toml_text,
+                options=_cell(path, heat_id, f"plan {plan_id} options", _options_from, options), status=status,
+                lines=plan_lines.get(plan_id, ()), total_cost=total_cost, bath_kg=plan_bath, final_kg=final_kg,
                 predicted_pct=MappingProxyType(result_obj.get("predicted", {})),
-                prices=MappingProxyType(json.loads(prices)), currency=currency,
+                prices=MappingProxyType(_cell(path, heat_id, f"plan {plan_id} prices", json.loads, prices)),
+                currency=currency,
                 result=MappingProxyType(result_obj)))
 
         batch_lines = self._lines("SELECT a.batch_id, a.material, a.kg, a.price_per_kg, a.cost FROM addition a "
                                   "JOIN addition_batch b ON a.batch_id = b.id WHERE b.heat_id = ? "
                                   "ORDER BY a.batch_id, a.line_no", heat_id)
         additions = tuple(
-            AdditionsRecord(batch_id, heat_id, datetime.fromisoformat(added_at), plan_id, batch_lines.get(batch_id, ()))
+            AdditionsRecord(batch_id, heat_id, _cell(path, heat_id, "addition_batch.added_at", datetime.fromisoformat,
+                                                     added_at), plan_id, batch_lines.get(batch_id, ()))
             for batch_id, added_at, plan_id in self._read(
                 "SELECT id, added_at, plan_id FROM addition_batch WHERE heat_id = ? ORDER BY added_at, id", (heat_id,)))
-        return HeatHistory(heat_id, grade, datetime.fromisoformat(started_at),
-                           Shift(date.fromisoformat(shift_date), shift_name), bath_kg,
+        return HeatHistory(heat_id, grade, _cell(path, heat_id, "started_at", datetime.fromisoformat, started_at),
+                           Shift(_cell(path, heat_id, "shift_date", date.fromisoformat, shift_date), shift_name),
+                           _cell(path, heat_id, "bath_kg", _kg, bath_kg),
                            tuple(samples), tuple(plans), additions)
 
     def _lines(self, sql: str, heat_id: str) -> dict[int, tuple[LineRecord, ...]]:

@@ -212,6 +212,18 @@ CASES: dict[str, tuple[Callable[[Path], list[str]], tuple[str, ...]]] = {
     # -- logbooks --------------------------------------------------------------------------------
     "report CSV into a folder": (logbook_case("SELECT 1", "report", "--logbook", "{log}", "--csv", "{folder}"),
                                  ("is a folder",)),
+    "report over a heat started 'yesterday'": (logbook_case("UPDATE heat SET started_at = 'yesterday'", "report",
+                                                            "--logbook", "{log}"), ("KB-7", "started_at")),
+    "replay of a plan that is not JSON": (logbook_case("UPDATE plan SET result = '{not json'", "replay", "--logbook",
+                                                       "{log}", "--heat", "KB-7"), ("KB-7",)),
+    "replay of a heat file that is not TOML": (logbook_case("UPDATE plan SET heat_toml = 'x = = 1'", "replay",
+                                                            "--logbook", "{log}", "--heat", "KB-7"), ("KB-7", "heat_toml")),
+    "replay of a sample taken 'yesterday'": (logbook_case("UPDATE sample SET taken_at = 'yesterday'", "replay",
+                                                          "--logbook", "{log}", "--heat", "KB-7"), ("KB-7", "taken_at")),
+    "replay of an analysis that is not JSON": (logbook_case("UPDATE sample SET analysis = '[1'", "replay", "--logbook",
+                                                            "{log}", "--heat", "KB-7"), ("KB-7", "sample.analysis")),
+    "report over a bath weight that is text": (logbook_case("UPDATE heat SET bath_kg = 'heavy'", "report", "--logbook",
+                                                            "{log}"), ("KB-7", "bath_kg")),
     # -- the command line ------------------------------------------------------------------------
     "odds with a negative seed": (argv_case("solve", str(demo_dir() / "heats" / "KB-24101.toml"), "--seed", "-1"),
                                   ("--seed",)),

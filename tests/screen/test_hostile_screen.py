@@ -68,3 +68,34 @@ async def test_an_empty_needed_cell_is_marked_and_holds_accept_and_ticket(demo_b
         await settle(pilot)
         assert screen.plannable and screen.query_one(PlanView).is_current
         assert screen.query_one(PlanView).plan.cautions[0].startswith("NOT MEASURED: Cu")
+
+
+def test_demo_heats_go_to_a_demo_logbook_never_the_users(tmp_path, monkeypatch) -> None:
+    import argparse
+    import shutil
+
+    from meltfix.commands import screen
+    from meltfix.paths import default_recipes_dir
+
+    monkeypatch.setenv("MELTFIX_LOGBOOK", str(tmp_path / "real.sqlite"))
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    args = argparse.Namespace(heat=None, recipes=None, logbook=None, tickets=tmp_path, light=False)
+    assert screen.build_app(args).logbook_path == tmp_path / "cache" / "meltfix" / "demo-accepted.sqlite"
+    own = tmp_path / "own"
+    shutil.copytree(default_recipes_dir(), own)
+    assert screen.build_app(argparse.Namespace(**{**vars(args), "recipes": str(own)})).logbook_path is None
+    chosen = tmp_path / "chosen.sqlite"
+    assert screen.build_app(argparse.Namespace(**{**vars(args), "logbook": chosen})).logbook_path == chosen
+
+
+def test_a_screen_that_dies_of_an_error_exits_non_zero(monkeypatch) -> None:
+    from meltfix.commands import screen
+
+    class Crashed:
+        return_code = 1
+
+        def run(self) -> None:
+            pass
+
+    monkeypatch.setattr(screen, "build_app", lambda args: Crashed())
+    assert screen.run(None) == 1
