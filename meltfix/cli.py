@@ -31,6 +31,7 @@ COMMANDS = {
     "report": ("report", "the supervisor's cost report from the logbook"),
     "replay": ("replay", "step through a recorded heat beside the plans meltfix would make"),
     "recoveries": ("recoveries", "learn each material's real recoveries from the logbook and propose updates"),
+    "logbook": ("logbook", "copy a shop's history from one logbook to another (SQLite, PostgreSQL)"),
     "screen": ("screen", "open the terminal screen (the default when no command is given)"),
 }
 
