@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import difflib
 import importlib
+import os
 import sys
 from collections.abc import Collection, Sequence
 from pathlib import Path
@@ -23,6 +24,10 @@ EXIT_OK = 0
 EXIT_BAD_INPUT = 2
 EXIT_CLOSEST = 3
 EXIT_SHORT = 4
+
+# Commands that print tables take --width; the narrowest width their long layouts are made for.
+TABLE_COMMANDS = ("solve", "import", "report", "replay", "recoveries")
+MIN_WIDTH = 40
 
 # command -> (module under meltfix.commands, one-line summary)
 COMMANDS = {
@@ -59,6 +64,10 @@ def build_parser(detailed: Collection[str] = tuple(COMMANDS)) -> argparse.Argume
         command = sub.add_parser(name, help=summary, description=summary[0].upper() + summary[1:] + ".")
         if name in detailed:
             importlib.import_module(f"meltfix.commands.{module_name}").add_arguments(command)
+            if name in TABLE_COMMANDS:
+                command.add_argument("--width", metavar="COLUMNS", type=int,
+                                     help="width of the tables in characters (default: the terminal's, or $COLUMNS); "
+                                     "narrow tables fold or list one element per row")
     return parser
 
 
@@ -71,15 +80,27 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"meltfix: {unknown}", file=sys.stderr)
             return EXIT_BAD_INPUT
         args_list.insert(0, "screen")
+    columns = os.environ.get("COLUMNS")
     try:
         args = build_parser(detailed=args_list[:1]).parse_args(args_list)
         module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
+        width = getattr(args, "width", None)
+        if width is not None:
+            if width < MIN_WIDTH:
+                raise InputError("command line", "--width", f"must be at least {MIN_WIDTH} columns, got {width}")
+            # Every table is printed by a rich Console, which takes its width from $COLUMNS.
+            os.environ["COLUMNS"] = str(width)
         return int(module.run(args))
     except InputError as exc:
         print(f"meltfix: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
+    finally:  # main() may be called again in the same process (the tests do)
+        if columns is None:
+            os.environ.pop("COLUMNS", None)
+        else:
+            os.environ["COLUMNS"] = columns
 
 
 def _unknown_command(word: str) -> str | None:

@@ -25,6 +25,7 @@ from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.massbalance import bath_after, temperature_drop_c
+from meltfix.numbers import LIMIT_TOL_PCT  # defined beside the tables that mark a miss
 from meltfix.plan_model import HeatLoad, HotModel, ModelShape, Solution
 from meltfix.reasons import explain_violation
 from meltfix.recipes import Grade, Material, RecipeBook
@@ -37,9 +38,6 @@ _INTEGRALITY_TOL = 1e-6
 # solver's tolerances; further under, it is an artefact of them (a binary at 1e-6 lets a few
 # grams in) and is dropped. Either way the plan's own re-check then judges it.
 _MINIMUM_SNAP = 1e-6
-LIMIT_TOL_PCT = 1e-9
-"""A limit is missed only beyond float noise [wt %]: a content equal to its limit is inside. Every
-module that judges a limit (plans, the hand method, replays, the odds) counts it this way."""
 
 
 @dataclass(frozen=True)

@@ -9,6 +9,7 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
+from meltfix.numbers import content_text, is_outside, kg_text, limit_text, margin_text, money_text, unit_of
 from meltfix.outputs import markup_safe, visible
 from meltfix.planner import Plan
 
@@ -57,42 +58,45 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     adds.add_column("how (in this order)")
     hows = [step.text() for step in plan.steps] if plan.steps else [""] * len(plan.additions)
     for a, how in zip(plan.additions, hows):
-        adds.add_row(Text(visible(a.material)), f"{a.kg:,.1f}", "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
-                     f"{a.cost:,.2f}", how)
+        adds.add_row(Text(visible(a.material)), kg_text(a.kg), "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
+                     money_text(a.cost), how)
     if not plan.additions:
         adds.add_row("(nothing to add)", "", "", "", "")
     adds.add_section()
-    adds.add_row("Total", f"{plan.added_kg:,.1f}", "", f"{plan.total_cost:,.2f}", "")
-    adds.caption = (f"{plan.cost_per_t:,.2f} {cur}/t · bath {plan.bath_kg:,.0f} → {plan.final_kg:,.0f} kg · "
+    adds.add_row("Total", kg_text(plan.added_kg), "", money_text(plan.total_cost), "")
+    adds.caption = (f"{money_text(plan.cost_per_t)} {cur}/t · bath {kg_text(plan.bath_kg)} → {kg_text(plan.final_kg)} kg · "
                     f"temperature {-plan.temperature_drop_c:+.1f} °C")
 
-    chem = Table(title="Predicted chemistry (wt %)", title_justify="left")
+    chem = Table(title="Predicted chemistry (wt %, ppm for N O B H)", title_justify="left")
     for column in ("Limit", "min", "predicted", "max", "margin"):
         chem.add_column(column, justify="right" if column != "Limit" else "left")
-    rows: dict[str, list[str]] = {}
+    # One row per element: its min and max, and the smaller of the two margins (negative = missed).
+    rows: dict[str, dict[str, float]] = {}
     for check in plan.checks:
-        row = rows.setdefault(check.element, [check.element, "", f"{check.predicted_pct:.4f}", "", ""])
-        row[1 if check.limit == "min" else 3] = f"{check.limit_pct:g}"
-        margin = min(check.margin_pct, float(row[4]) if row[4] else check.margin_pct)
-        row[4] = f"{margin:.4f}"
-    for row in rows.values():
-        style = "red" if float(row[4]) < -1e-9 else ""
-        chem.add_row(*row, style=style)
+        row = rows.setdefault(check.element, {"predicted": check.predicted_pct, "margin": check.margin_pct})
+        row[check.limit] = check.limit_pct
+        row["margin"] = min(row["margin"], check.margin_pct)
+    for element, row in rows.items():
+        low, high = row.get("min"), row.get("max")
+        chem.add_row(element, "" if low is None else limit_text(element, low),
+                     content_text(element, row["predicted"]), "" if high is None else limit_text(element, high),
+                     margin_text(element, row["margin"]), style="red" if is_outside(row["margin"]) else "")
 
     parts: list[object] = [Text.from_markup(title), adds, chem]
     if odds is not None:
         parts.append(odds_text(odds, risk))
     if plan.violations:
-        parts.append(Panel(Text("\n".join(visible(f"• {v.element} {v.limit} {v.limit_pct:g} %: off by {v.by_pct:.4f} %. "
-                                                   f"{v.reason}") for v in plan.violations)),
-                           title="Why the grade cannot be met", border_style="red"))
+        parts.append(Panel(Text("\n".join(visible(
+            f"• {v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit_of(v.element)}: off by "
+            f"{content_text(v.element, v.by_pct)} {unit_of(v.element)}. {v.reason}") for v in plan.violations)),
+            title="Why the grade cannot be met", border_style="red"))
     if plan.binding:
         bind = Table(title="What holds the cost up", title_justify="left")
         bind.add_column("Limit")
         bind.add_column(f"saves {cur}", justify="right")
         bind.add_column("per")
         for b in plan.binding:
-            bind.add_row(Text(visible(b.name)), f"{b.saving:,.2f}", b.unit)
+            bind.add_row(Text(visible(b.name)), money_text(b.saving), b.unit)
         parts.append(bind)
     if plan.notes:
         parts.append(Text(visible("Notes: " + " ".join(plan.notes)), style="dim"))

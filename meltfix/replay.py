@@ -31,12 +31,14 @@ last sample is replayed with no next sample to check it. The bath at a later sam
 bath grown by the mass balance of every addition before it (catalogue recoveries), because melt
 shops weigh the bath once and rarely again. Unknown keys are refused, not ignored.
 
-For every sample a :class:`ReplayStep` holds the plan meltfix makes there, the additions actually
+For every sample a :class:`ReplayStep` holds the plan meltfix makes there (none at a sample already
+inside every limit: nothing is needed there), the additions actually
 made before the next sample, the chemistry those additions should have produced (the mass balance
 with the catalogue's recoveries) against the next sample's measured chemistry, and both costs. The
 gap between predicted and measured hints at the real recovery (:class:`RecoveryHint`).
 :func:`score_entry` scores a trainee's own additions at a sample: in spec or not, and the cost
-against the cheapest plan that meets every window.
+against the plan meltfix makes there. :func:`summarise` compares the heat's actual additions with
+meltfix along the same path (its plan at the first sample that needed one).
 """
 
 from __future__ import annotations
@@ -54,6 +56,7 @@ from meltfix.elements import parse_number
 from meltfix.errors import InputError
 from meltfix.heat import Heat, stage_material
 from meltfix.massbalance import bath_after, temperature_drop_c
+from meltfix.numbers import content_text, limit_text, unit_of
 # limit_checks is the planner's own window and index test; reused so "in spec" means one thing.
 from meltfix.planner import LIMIT_TOL_PCT, Addition, Plan, Planner, PlanOptions, limit_checks
 from meltfix.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require, table,
@@ -373,6 +376,8 @@ class ReplayStep:
     recovery_hints: tuple[RecoveryHint, ...]
     plan_error: str = ""
     """Why meltfix could not plan at this sample (the rest of the step still stands)."""
+    inside: bool = False
+    """The sample already meets every limit of the grade: meltfix makes no plan there (nothing is needed)."""
 
     @property
     def bath_kg(self) -> float:
@@ -406,7 +411,8 @@ class ReplayStep:
             "temperature_c": self.sample.temperature_c,
             "bath_kg": self.bath_kg,
             "measured": dict(self.sample.analysis.pct),
-            "plan_status": "error" if self.plan is None else self.plan.status,
+            "plan_status": "inside" if self.inside else "error" if self.plan is None else self.plan.status,
+            "plan_needed": not self.inside,
             "plan_error": self.plan_error,
             "planned": [{"material": a.material, "kg": a.kg, "cost": a.cost, "packs": a.packs}
                         for a in self.planned],
@@ -427,7 +433,8 @@ class ReplayStep:
 
 def limit_misses(grade: Grade, pct: Mapping[str, float]) -> tuple[str, ...]:
     """The grade's limits (windows and indices) that ``pct`` [wt %] misses, in words."""
-    return tuple(f"{c.element} {c.limit} {c.limit_pct:g} % (is {c.predicted_pct:.4g} %)"
+    return tuple(f"{c.element} {c.limit} {limit_text(c.element, c.limit_pct)} {unit_of(c.element)} "
+                 f"(is {content_text(c.element, c.predicted_pct)} {unit_of(c.element)})"
                  for c in limit_checks(grade, pct) if c.margin_pct < -LIMIT_TOL_PCT)
 
 
@@ -463,11 +470,17 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
         heat = Heat(heat_id=record.heat_id, grade=record.grade, bath_kg=bath_kg, analysis=sample.analysis,
                     capacity_kg=record.capacity_kg, temperature_c=sample.temperature_c,
                     max_temp_drop_c=record.max_temp_drop_c, stage=record.stage)
+        # A sample inside every limit needs no plan: a plan there would only chase the aims, and
+        # adding it up beside the real corrections would count money nobody had to spend.
         # A step the planner refuses is still a step of the heat: keep it, with the reason.
-        try:
-            plan, plan_error = planner.plan(heat, options), ""
-        except InputError as exc:
-            plan, plan_error = None, exc.message
+        inside = not limit_misses(grade, sample.analysis.pct)
+        plan: Plan | None = None
+        plan_error = ""
+        if not inside:
+            try:
+                plan = planner.plan(heat, options)
+            except InputError as exc:
+                plan_error = exc.message
         made = [a for a in record.additions
                 if a.minute >= sample.minute and (nxt is None or a.minute < nxt.minute)]
         actual = tuple(ActualAddition(a.clock, a.material, a.kg, a.kg * book.material(a.material).price_per_kg)
@@ -488,20 +501,71 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
             measured_misses=() if nxt is None else limit_misses(grade, measured),
             recovery_hints=_recovery_hints(bath_kg, sample.analysis, used, final_kg, predicted, measured),
             plan_error=plan_error,
+            inside=inside,
         ))
         bath_kg = final_kg
     return tuple(steps)
 
 
+@dataclass(frozen=True)
+class ReplaySummary:
+    """The heat's cost the way it was run against meltfix's along the same path.
+
+    Each sample's plan starts again from where the heat really was, so the plans of a heat are
+    alternatives, never all made: adding them up would count the same correction several times.
+    meltfix's cost is its plan at the first sample that needed one (had it been followed, the
+    later samples would not have needed theirs); the shop's is everything actually added, plus
+    what meltfix would still add when the heat ended outside the grade. Both then take the heat
+    from that first sample into the grade, so the two figures compare like with like.
+    """
+
+    actual_cost: float
+    """Everything actually added [currency]."""
+    first_needed: str | None
+    """The first sample outside the grade (None: every sample was inside)."""
+    meltfix_cost: float | None
+    """meltfix's plan at ``first_needed`` [currency]; 0 when no sample needed one; None when it could not plan."""
+    ended_outside: str | None
+    """The last sample, when it is still outside the grade (None: the heat ended inside)."""
+    still_to_add: float | None
+    """meltfix's plan at ``ended_outside`` [currency]; None when the heat ended inside or it could not plan."""
+
+    @property
+    def shop_cost(self) -> float:
+        """What the heat's own way costs to reach the grade: actual plus still to add [currency]."""
+        return self.actual_cost + (self.still_to_add or 0.0)
+
+
+def summarise(steps: Sequence[ReplayStep]) -> ReplaySummary:
+    """Actual additions against meltfix along the same path (see :class:`ReplaySummary`)."""
+    first = next((s for s in steps if not s.inside), None)
+    last = steps[-1] if steps and not steps[-1].inside else None
+    return ReplaySummary(
+        actual_cost=math.fsum(s.actual_cost for s in steps),
+        first_needed=None if first is None else first.sample.sample_id,
+        meltfix_cost=0.0 if first is None else first.planned_cost,
+        ended_outside=None if last is None else last.sample.sample_id,
+        still_to_add=None if last is None else last.planned_cost,
+    )
+
+
 def replay_json(record: HeatRecord, steps: Sequence[ReplayStep], book: RecipeBook) -> dict[str, object]:
-    """The whole replay as one JSON object: ``{"heat": ID, "steps": [...]}`` plus totals."""
+    """The whole replay as one JSON object: ``{"heat": ID, "steps": [...]}`` plus totals.
+
+    ``planned_total`` is meltfix along the same path (its plan at ``first_needed``), not the sum
+    of every sample's plan; ``actual_total`` everything actually added (see ReplaySummary).
+    """
+    summary = summarise(steps)
     return {
         "heat": record.heat_id,
         "grade": record.grade,
         "currency": book.settings.currency,
         "steps": [step.to_json() for step in steps],
-        "planned_total": math.fsum(s.planned_cost or 0.0 for s in steps),
-        "actual_total": math.fsum(s.actual_cost for s in steps),
+        "planned_total": summary.meltfix_cost,
+        "actual_total": summary.actual_cost,
+        "first_needed": summary.first_needed,
+        "ended_outside": summary.ended_outside,
+        "still_to_add": summary.still_to_add,
     }
 
 
@@ -540,7 +604,7 @@ def element_paths(steps: Sequence[ReplayStep], grade: Grade) -> tuple[ElementPat
 
 @dataclass(frozen=True)
 class TrainingScore:
-    """A trainee's additions at one sample, scored against the grade and the cheapest plan."""
+    """A trainee's additions at one sample, scored against the grade and the plan meltfix makes there."""
 
     entry: tuple[tuple[str, float], ...]
     """The trainee's additions (material, kg)."""
@@ -553,8 +617,10 @@ class TrainingScore:
     """Vessel or temperature limits the entry breaks."""
     entry_cost: float
     best_cost: float
-    """Cost of the cheapest plan that meets every window (no aim) [currency]."""
-    best: Plan
+    """Cost of the plan meltfix makes at the sample, the same one the replay shows; 0 when the
+    sample was already inside and needed nothing [currency]."""
+    best: Plan | None
+    """That plan; None when the sample needed none."""
     points: int
     """0 when out of spec or over a limit, else 100 x best cost / entry cost (at most 100)."""
 
@@ -604,12 +670,14 @@ def _match_material(name: str, book: RecipeBook, source: object, where: str) -> 
                      f"{', '.join(book.material_names)})")
 
 
-def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: RecipeBook,
-                planner: Planner | None = None) -> TrainingScore:
-    """Score a trainee's additions at ``step``: in spec or not, and cost against the cheapest plan.
+def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: RecipeBook) -> TrainingScore:
+    """Score a trainee's additions at ``step``: in spec or not, and cost against the step's own plan.
 
-    Raises InputError when the planner cannot find the cheapest plan to compare with.
+    One meltfix cost per sample: the trainee is measured against the plan the replay shows there
+    (nothing, at a sample already inside). Raises InputError when meltfix could not plan there.
     """
+    if step.plan is None and not step.inside:
+        raise InputError("replay", f"sample '{step.sample.sample_id}'", f"no plan to compare with: {step.plan_error}")
     grade = book.grade(step.heat.grade)
     used = [(stage_material(step.heat, book, name), kg) for name, kg in entry]
     final_kg, predicted = bath_after(step.bath_kg, step.sample.analysis.pct, used)
@@ -628,15 +696,15 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
             breaks.append(f"{name} is not added at the {step.heat.stage}")
         if material.stock_kg is not None and kg > material.stock_kg + 1e-9:
             breaks.append(f"{kg:g} kg of {name} is more than the {material.stock_kg:g} kg in stock")
-    best = (planner or Planner(book)).plan(step.heat, PlanOptions(use_aim=False))
+    best_cost = step.planned_cost or 0.0
     entry_cost = math.fsum(book.material(name).price_per_kg * kg for name, kg in entry)
     misses = limit_misses(grade, predicted)
     if misses or breaks:
         points = 0
-    elif entry_cost <= best.total_cost + 0.005:
+    elif entry_cost <= best_cost + 0.005:
         points = 100
     else:
-        points = round(100.0 * best.total_cost / entry_cost)
+        points = round(100.0 * best_cost / entry_cost)
     return TrainingScore(tuple(entry), final_kg, MappingProxyType(predicted), misses, tuple(breaks), entry_cost,
-                         best.total_cost, best, points)
+                         best_cost, step.plan, points)
 

@@ -7,25 +7,32 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-from rich.console import Group
+from rich.console import Console, Group
+from rich.measure import Measurement
 from rich.table import Table
 from rich.text import Text
 
 from meltfix.elements import element_sort_key
+from meltfix.numbers import content_text, kg_text, limit_text, margin_text, money_text, recovery_text
 from meltfix.planner import Addition
-from meltfix.replay import ActualAddition, ElementPath, ReplayStep, TrainingScore
+from meltfix.replay import ActualAddition, ElementPath, ReplayStep, TrainingScore, summarise
 
+# Longest and shortest bar of the chemistry path chart [characters]: the longest reads best, the
+# shortest still shows where each sample fell against the window.
+_BAR_WIDTHS = (36, 12)
 # Sample markers on the chart: 1-9, then letters, so a long heat still gets one character each.
 _MARKS = "123456789ABCDEFGHJKLMNPQRSTUVWXYZ"
 _WINDOW_STYLE = "on #1f4d2b"
 _OUTSIDE_STYLE = "grey42"
 
 
-def fmt_pct(value: float | None) -> str:
-    """A content as a spectrometer sheet shows it [wt %]."""
-    if value is None:
-        return "–"
-    return f"{value:.2f}" if value >= 10 else f"{value:.3f}" if value >= 0.01 else f"{value:.4f}"
+def _content(symbol: str, value: float | None) -> str:
+    """A content in the element's unit (ppm for N, O, B, H), "–" when not measured."""
+    return "–" if value is None else content_text(symbol, value)
+
+
+def _window(symbol: str, low: float, high: float) -> str:
+    return f"≤ {limit_text(symbol, high)}" if low <= 0 else f"{limit_text(symbol, low)}–{limit_text(symbol, high)}"
 
 
 def _outside(value: float, low: float, high: float) -> bool:
@@ -44,11 +51,11 @@ def additions_table(title: str, rows: Sequence[Addition | ActualAddition], curre
     table.add_column("kg", justify="right")
     table.add_column(currency, justify="right")
     for row in rows:
-        table.add_row(row.material, f"{row.kg:,.1f}", f"{row.cost:,.2f}")
+        table.add_row(row.material, kg_text(row.kg), money_text(row.cost))
     if not rows:
         table.add_row("(nothing)", "", "")
     table.add_section()
-    table.add_row("Total", f"{sum(r.kg for r in rows):,.1f}", f"{sum(r.cost for r in rows):,.2f}")
+    table.add_row("Total", kg_text(sum(r.kg for r in rows)), money_text(sum(r.cost for r in rows)))
     return table
 
 
@@ -58,7 +65,7 @@ def chemistry_table(step: ReplayStep, window: dict[str, tuple[float, float]], ou
     ``outcome=False`` leaves out what followed the sample (for a trainee who has not answered yet).
     """
     nxt = step.next_sample
-    table = Table(title="Chemistry (wt %)", title_justify="left")
+    table = Table(title="Chemistry (wt %, ppm for N O B H)", title_justify="left")
     names = ["Element", "min", "max", f"now {step.sample.sample_id}"]
     if outcome:
         names += ["predicted", f"next {nxt.sample_id}" if nxt else "next", "gap"]
@@ -71,12 +78,11 @@ def chemistry_table(step: ReplayStep, window: dict[str, tuple[float, float]], ou
         now = step.sample.analysis.pct.get(symbol)
         after = measured.get(symbol)
         gap = step.gap_pct.get(symbol)
-        cells = [symbol, "" if low is None or low == 0 else f"{low:g}", "" if high is None else f"{high:g}",
-                 fmt_pct(now)]
+        cells = [symbol, "" if low is None or low == 0 else limit_text(symbol, low),
+                 "" if high is None else limit_text(symbol, high), _content(symbol, now)]
         if outcome:
-            # round() then + 0.0 turns a "-0.0000" gap into "+0.0000".
-            gap_text = "" if gap is None else f"{round(gap, 4) + 0.0:+.4f}"
-            cells += [fmt_pct(step.predicted_pct.get(symbol)), fmt_pct(after), gap_text]
+            gap_text = "" if gap is None else margin_text(symbol, gap)
+            cells += [_content(symbol, step.predicted_pct.get(symbol)), _content(symbol, after), gap_text]
         # Red marks the latest reading shown that lies outside its window.
         latest = after if outcome else now
         red = latest is not None and low is not None and _outside(latest, low, high)
@@ -113,13 +119,16 @@ def hints_table(step: ReplayStep) -> Table:
     for hint in step.recovery_hints:
         # More than 10 points apart is more than the spectrometer's scatter on these rises (common practice).
         far = abs(hint.implied - hint.catalogue) > 0.1
-        table.add_row(hint.element, f"{hint.added_kg:,.1f}", f"{hint.catalogue:.0%}", f"{hint.implied:.0%}",
+        table.add_row(hint.element, kg_text(hint.added_kg), recovery_text(hint.catalogue), recovery_text(hint.implied),
                       style="yellow" if far else "")
     return table
 
 
 def plan_renderable(step: ReplayStep, currency: str) -> Table | Group:
-    """The plan meltfix makes at the step, or why it could not plan there."""
+    """The plan meltfix makes at the step, or why it made none there."""
+    if step.inside:
+        return Group(Text("Plan meltfix makes", style="italic"),
+                     Text("none: this sample is inside every limit already", style="green"))
     if step.plan is None:
         return Group(Text("Plan meltfix makes", style="italic"), Text(f"no plan: {step.plan_error}", style="red"))
     title = "Plan meltfix makes" + ("" if step.plan.status == "optimal" else " (closest: windows missed)")
@@ -128,11 +137,14 @@ def plan_renderable(step: ReplayStep, currency: str) -> Table | Group:
 
 def cost_line(step: ReplayStep, currency: str) -> Text:
     """Planned against actual cost of the step."""
+    actual = f"actual {money_text(step.actual_cost)} {currency}"
+    if step.inside:
+        return Text(f"Cost: {actual} (inside already: meltfix would add nothing)", style="bold")
     if step.planned_cost is None:
-        return Text(f"Cost: actual {step.actual_cost:,.2f} {currency} (no plan to compare)", style="bold")
+        return Text(f"Cost: {actual} (no plan to compare)", style="bold")
     difference = step.actual_cost - step.planned_cost
-    return Text(f"Cost: planned {step.planned_cost:,.2f} {currency} · actual {step.actual_cost:,.2f} {currency} "
-                f"({difference:+,.2f})", style="bold")
+    return Text(f"Cost: meltfix {money_text(step.planned_cost)} {currency} · {actual} "
+                f"({'+' if difference >= 0 else '-'}{money_text(abs(difference))})", style="bold")
 
 
 def _axis(path: ElementPath, values: Sequence[float]) -> tuple[float, float]:
@@ -155,9 +167,9 @@ def path_chart(paths: Sequence[ElementPath], sample_ids: Sequence[str], upto: in
                                                        enumerate(sample_ids[: last + 1])),
                   title_justify="left", box=None, padding=(0, 1))
     table.add_column("El")
-    table.add_column("window %", justify="right")
+    table.add_column("window", justify="right", no_wrap=True)
     table.add_column("path", no_wrap=True)
-    table.add_column("values", no_wrap=True)
+    table.add_column("values")  # the one column that folds (between values) when the chart is narrow
     for path in paths:
         measured = list(path.measured_pct[: last + 1])
         predicted = list(path.predicted_pct[: last + 1])
@@ -195,10 +207,22 @@ def path_chart(paths: Sequence[ElementPath], sample_ids: Sequence[str], upto: in
             if k:
                 values.append(" → ", "dim")
             red = value is not None and _outside(value, path.low_pct, path.high_pct)
-            values.append(fmt_pct(value), "red" if red else "")
-        window = f"{path.low_pct:g}–{path.high_pct:g}"
+            values.append(_content(path.element, value), "red" if red else "")
+        window = _window(path.element, path.low_pct, path.high_pct)
         table.add_row(path.element, window, strip, values)
     return table
+
+
+def fitted_path_chart(paths: Sequence[ElementPath], sample_ids: Sequence[str], console: Console, width: int,
+                      upto: int | None = None, current: int | None = None) -> Table:
+    """The path chart with its bars shortened until the whole chart fits ``width`` columns."""
+    longest, shortest = _BAR_WIDTHS
+    chart = path_chart(paths, sample_ids, upto=upto, current=current, width=longest)
+    natural = Measurement.get(console, console.options.update_width(10_000), chart).maximum
+    if natural > width:  # below the shortest bar the table folds its values instead
+        chart = path_chart(paths, sample_ids, upto=upto, current=current,
+                           width=max(shortest, longest - (natural - width)))
+    return chart
 
 
 def score_renderable(score: TrainingScore, window: dict[str, tuple[float, float]], currency: str) -> Group:
@@ -210,19 +234,24 @@ def score_renderable(score: TrainingScore, window: dict[str, tuple[float, float]
     for n, symbol in enumerate(s for s in score.predicted_pct if s in window):
         value = score.predicted_pct[symbol]
         red = _outside(value, *window[symbol])
-        gives.append(("  " if n else "") + f"{symbol} {fmt_pct(value)}", "red" if red else "")
+        gives.append(("  " if n else "") + f"{symbol} {content_text(symbol, value)}", "red" if red else "")
     lines: list[object] = [verdict, gives]
     lines += [Text(f"misses {miss}", style="red") for miss in score.misses]
     lines += [Text(broken, style="red") for broken in score.breaks]
-    lines.append(Text(f"They cost {score.entry_cost:,.2f} {currency}; the cheapest plan inside every window "
-                      f"costs {score.best_cost:,.2f} {currency} ({score.extra_cost:+,.2f})"))
+    extra = f"{'+' if score.extra_cost >= 0 else '-'}{money_text(abs(score.extra_cost))}"
+    against = ("meltfix's plan at this sample costs" if score.best is not None
+               else "this sample was inside already: meltfix adds nothing,")
+    lines.append(Text(f"They cost {money_text(score.entry_cost)} {currency}; {against} "
+                      f"{money_text(score.best_cost)} {currency} ({extra})"))
     return Group(*lines)
 
 
 def summary_table(steps: Sequence[ReplayStep], currency: str) -> Table:
-    """Planned against actual cost per sample, and whether the next sample met the grade."""
+    """Per sample: meltfix's plan where one was needed, the actual additions, the next sample; then
+    the totals along the same path (meltfix.replay.ReplaySummary: the plans are alternatives, never
+    all made, so they are not added up)."""
     table = Table(title="Heat summary", title_justify="left")
-    for name in ("Sample", f"planned {currency}", f"actual {currency}", "next sample"):
+    for name in ("Sample", f"meltfix {currency}", f"actual {currency}", "next sample"):
         table.add_column(name, justify="left" if name in ("Sample", "next sample") else "right")
     for step in steps:
         if step.next_sample is None:
@@ -231,9 +260,17 @@ def summary_table(steps: Sequence[ReplayStep], currency: str) -> Table:
             after = f"[red]{step.next_sample.sample_id}: {len(step.measured_misses)} limit(s) missed[/]"
         else:
             after = f"[green]{step.next_sample.sample_id}: in spec[/]"
-        planned = "–" if step.planned_cost is None else f"{step.planned_cost:,.2f}"
-        table.add_row(step.sample.sample_id, planned, f"{step.actual_cost:,.2f}", after)
+        planned = "inside" if step.inside else "–" if step.planned_cost is None else money_text(step.planned_cost)
+        table.add_row(step.sample.sample_id, planned, money_text(step.actual_cost), after)
+    summary = summarise(steps)
     table.add_section()
-    table.add_row("Total", f"{sum(s.planned_cost or 0.0 for s in steps):,.2f}",
-                  f"{sum(s.actual_cost for s in steps):,.2f}", "")
+    meltfix = "–" if summary.meltfix_cost is None else money_text(summary.meltfix_cost)
+    where = "every sample inside" if summary.first_needed is None else f"its plan at {summary.first_needed}"
+    table.add_row("Total", meltfix, money_text(summary.actual_cost), f"meltfix: {where}")
+    if summary.ended_outside is not None:
+        still = "–" if summary.still_to_add is None else money_text(summary.still_to_add)
+        table.add_row(f"+ at {summary.ended_outside}", "", still, "still to add: the heat ended outside")
+        table.add_row("To the grade", meltfix, money_text(summary.shop_cost), "")
+    table.caption = ("A later sample's plan starts again from where the heat really was: it replaces the "
+                     "earlier plan rather than adding to it.")
     return table

@@ -10,14 +10,19 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, normalise_symbol
+from meltfix.elements import normalise_symbol
 from meltfix.errors import InputError, visible
 from meltfix.heat import Heat, heat_to_toml, validate_heat
+from meltfix.numbers import content_text, unit_of
 from meltfix.outputs import markup_safe, write_atomic
 from meltfix.recipes import ShopSettings, identifier, load_recipes, load_settings
-from meltfix.spectro import ImportResult, SpectroSample, read_export
+from meltfix.spectro import Burn, ImportResult, SpectroSample, read_export
+
+if TYPE_CHECKING:  # rich is imported where the tables are printed
+    from rich.console import Console
+    from rich.table import Table
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -156,46 +161,64 @@ def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroS
 # Tables
 
 
-def _cell_text(symbol: str, pct: float) -> str:
-    if symbol in PPM_ELEMENTS:
-        ppm = pct * PPM_PER_PCT
-        return f"{ppm:.0f}" if ppm >= 10 else f"{ppm:.1f}"
-    return f"{pct:.4f}" if pct < 1 else f"{pct:.3f}" if pct < 10 else f"{pct:.2f}"
+def _reading_text(burn: Burn, symbol: str) -> tuple[str, bool]:
+    """One burn's reading as a cell (marked when it disagrees), and whether it is marked."""
+    reading = burn.readings.get(symbol)
+    if reading is None:
+        return "", False
+    shown = ("<" if reading.below_limit else "") + content_text(symbol, reading.pct)
+    if symbol in burn.outlier_in:
+        return f"[bold red]{shown} ![/]", True
+    if symbol in burn.disputed_in:
+        return f"[yellow]{shown} ?[/]", True
+    return shown, False
+
+
+def _sample_table(sample: SpectroSample, title: str, console: Console) -> tuple[Table, bool]:
+    """The burns of a sample, one per row; where that is wider than the console, one element per
+    row instead (a burn per column), so no value is ever cut. Also says whether a cell is marked."""
+    from rich.measure import Measurement
+    from rich.table import Table
+
+    symbols = list(sample.analysis.pct)
+    mean = {s: ("<" if s in sample.analysis.below_limit else "") + content_text(s, pct)
+            for s, pct in sample.analysis.pct.items()}
+    cells = {burn.label: {s: _reading_text(burn, s) for s in symbols} for burn in sample.burns}
+    marked = any(flag for row in cells.values() for _, flag in row.values())
+    labels = {burn.label: markup_safe(burn.label) + ("" if burn.accepted else " (left out)") for burn in sample.burns}
+    wide = Table(title=title, title_justify="left")
+    wide.add_column("Burn")
+    wide.add_column("Row", justify="right", style="dim")
+    for symbol in symbols:
+        wide.add_column(f"{symbol} ppm" if unit_of(symbol) == "ppm" else symbol, justify="right", no_wrap=True)
+    for burn in sample.burns:
+        wide.add_row(labels[burn.label], str(burn.row), *(cells[burn.label][s][0] for s in symbols),
+                     style=None if burn.accepted else "dim")
+    wide.add_section()
+    wide.add_row(f"mean of {len(sample.accepted_burns)}", "", *mean.values(), style="bold")
+    if Measurement.get(console, console.options.update_width(10_000), wide).maximum <= console.width:
+        return wide, marked
+    long = Table(title=title, title_justify="left")
+    long.add_column("El")
+    for burn in sample.burns:
+        long.add_column(f"burn {labels[burn.label]}\nrow {burn.row}", justify="right", no_wrap=True,
+                        style=None if burn.accepted else "dim")
+    long.add_column(f"mean of {len(sample.accepted_burns)}", justify="right", no_wrap=True, style="bold")
+    for symbol in symbols:
+        long.add_row(f"{symbol} ppm" if unit_of(symbol) == "ppm" else symbol,
+                     *(cells[burn.label][symbol][0] for burn in sample.burns), mean[symbol])
+    return long, marked
 
 
 def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], written: Path | None) -> None:
     from rich.console import Console
-    from rich.table import Table
 
     console = Console()
     marked = False
     for sample in samples:
-        symbols = list(sample.analysis.pct)
         title = f"Sample {markup_safe(sample.sample_id)}" + (f" · grade {markup_safe(sample.grade)}" if sample.grade else "")
-        grid = Table(title=title, title_justify="left")
-        grid.add_column("Burn")
-        grid.add_column("Row", justify="right", style="dim")
-        for symbol in symbols:
-            grid.add_column(f"{symbol} ppm" if symbol in PPM_ELEMENTS else symbol, justify="right")
-        for burn in sample.burns:
-            cells = []
-            for symbol in symbols:
-                reading = burn.readings.get(symbol)
-                if reading is None:
-                    cells.append("")
-                    continue
-                shown = ("<" if reading.below_limit else "") + _cell_text(symbol, reading.pct)
-                if symbol in burn.outlier_in:
-                    shown, marked = f"[bold red]{shown} ![/]", True
-                elif symbol in burn.disputed_in:
-                    shown, marked = f"[yellow]{shown} ?[/]", True
-                cells.append(shown)
-            label = markup_safe(burn.label) + ("" if burn.accepted else " (left out)")
-            grid.add_row(label, str(burn.row), *cells, style=None if burn.accepted else "dim")
-        mean = [("<" if s in sample.analysis.below_limit else "") + _cell_text(s, pct)
-                for s, pct in sample.analysis.pct.items()]
-        grid.add_section()
-        grid.add_row(f"mean of {len(sample.accepted_burns)}", "", *mean, style="bold")
+        grid, marked_here = _sample_table(sample, title, console)
+        marked = marked or marked_here
         console.print(grid)
         for flag in sample.flags:
             console.print(f"  [yellow]•[/] {markup_safe(flag)}")

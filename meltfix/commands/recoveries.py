@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING
 
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
 from meltfix.errors import InputError
+from meltfix.numbers import recovery_text
 
 if TYPE_CHECKING:
     from rich.console import RenderableType
@@ -72,10 +73,6 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _fraction(value: float | None) -> str:
-    return "–" if value is None else f"{value:.3f}"
-
-
 def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
     """The estimates as a rich table, with the notes under it."""
     from rich import box
@@ -96,8 +93,9 @@ def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
                           (level, "right"), ("Cases", "right"), ("Proposal", "left")):
         table.add_column(name, justify=justify, no_wrap=True, min_width=len(name))
     for found in fit.estimates:
-        interval = "–" if found.ci_low is None else f"{found.ci_low:.3f}–{found.ci_high:.3f}"
+        interval = "–" if found.ci_low is None else f"{recovery_text(found.ci_low)}–{recovery_text(found.ci_high)}"
         if found.propose:
+            # The figure to write in materials.toml, where recoveries are fractions.
             proposal = Text(f"→ {found.proposed:g}", style="bold green")
         elif found.cases < fit.min_cases:
             proposal = Text("too few cases", style="dim")
@@ -105,6 +103,6 @@ def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
             proposal = Text("keep", style="dim")
         else:
             proposal = Text("data contradict the balance", style="yellow")
-        table.add_row(found.material, found.element, _fraction(found.catalogue), _fraction(found.estimate),
+        table.add_row(found.material, found.element, recovery_text(found.catalogue), recovery_text(found.estimate),
                       interval, str(found.cases), proposal)
     return Group(head, table, notes)

@@ -6,7 +6,10 @@
 ``--json`` prints one object ``{"heat": ID, "steps": [{"sample", "planned", "actual", "predicted",
 "measured_next", "planned_cost", "actual_cost", ...}], ...}`` (see ReplayStep.to_json for every field).
 When the planner refuses a sample, that step keeps its actual additions and outcome, with
-``"planned": []``, ``"planned_cost": null`` and the reason in ``"plan_error"``. Exit 0 whether or not
+``"planned": []``, ``"planned_cost": null`` and the reason in ``"plan_error"``; a sample already inside
+every limit gets no plan either (``"plan_status": "inside"``, ``"plan_needed": false``).
+``"planned_total"`` is meltfix along the same path, its plan at ``"first_needed"`` (the plans of
+later samples replace it, so they are not added), against ``"actual_total"``. Exit 0 whether or not
 the heat met its grade (a replay reports history); 2 for a bad record or recipe book.
 The record format is described in meltfix.replay's docstring.
 """
@@ -54,7 +57,7 @@ def run(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.rule import Rule
 
-    from meltfix.replay_render import path_chart, step_renderable, summary_table
+    from meltfix.replay_render import fitted_path_chart, step_renderable, summary_table
 
     console = Console()
     grade = book.grade(record.grade)
@@ -64,11 +67,12 @@ def run(args: argparse.Namespace) -> int:
     for step in steps:
         console.print(step_renderable(step, dict(grade.window_pct), currency))
         console.print()
-    console.print(path_chart(element_paths(steps, grade), [s.sample.sample_id for s in steps]))
+    console.print(fitted_path_chart(element_paths(steps, grade), [s.sample.sample_id for s in steps], console,
+                                    console.width))
     console.print()
     console.print(summary_table(steps, currency))
-    console.print("[dim]Each plan starts from where the heat really was at that sample. meltfix advises; a "
-                  "qualified person decides, under local codes and the shop's own procedures.[/]")
+    console.print("[dim]meltfix advises; a qualified person decides, under local codes and the shop's own "
+                  "procedures.[/]")
     return 0
 
 

@@ -103,16 +103,20 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
         made = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, collapse_padding=True, pad_edge=False,
                      title_style="bold")
         for name, justify in columns:
-            made.add_column(name, justify=justify, no_wrap=True)
+            # Figures never wrap; a grade's name folds onto a second line rather than being cut.
+            if name == "Grade":
+                made.add_column(name, justify=justify, max_width=grade_width, overflow="fold")
+            else:
+                made.add_column(name, justify=justify, no_wrap=True)
         return made
 
     money = f" ({cur})" if cur else ""
-    grade_width = 16 if width < 100 else 28  # room for a grade's full name on a wide terminal
+    grade_width = 16 if width < 100 else 28  # room for a grade's full name on one line on a wide terminal
     heats = table(f"Cost per heat{money}", [("Heat", "left"), ("Started", "left"), ("Grade", "left"), ("t", "right"),
                                             ("Corr", "right"), ("Planned", "right"), ("Actual", "right"),
                                             (unit, "right")])
     for row in report.heats.itertuples(index=False):
-        heats.add_row(_data(row.heat), _when(row.started_at), _short(row.grade, grade_width), _tonnes(row.bath_t),
+        heats.add_row(_data(row.heat), _when(row.started_at), _data(row.grade), _tonnes(row.bath_t),
                       str(row.corrections), _money(row.planned_cost), _money(row.cost), _per_t(row.cost_per_t))
 
     chart = Table.grid(padding=(0, 1))
@@ -132,7 +136,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
                                          ("Actual", "right"), (unit, "right"), (">1 corr", "right"), ("", "left")])
     largest = report.grades["cost_per_t"].max()
     for row in report.grades.itertuples(index=False):
-        grades.add_row(_short(row.grade, grade_width), str(row.heats), _tonnes(row.tonnes), _money(row.planned_cost),
+        grades.add_row(row.grade, str(row.heats), _tonnes(row.tonnes), _money(row.planned_cost),
                        _money(row.cost), _per_t(row.cost_per_t), str(row.repeat_heats),
                        Text(bar(row.cost_per_t, largest, min(40, max(6, width - 72 - grade_width + 16))), style="cyan"))
 
@@ -153,7 +157,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
             ("Heat", "left"), ("Started", "left"), ("Grade", "left"), ("Corr", "right"), ("Actual", "right"),
             ("vs plan", "right"), (unit, "right")])
         for row in repeat.itertuples(index=False):
-            again.add_row(_data(row.heat), _when(row.started_at), _short(row.grade, grade_width), str(row.corrections),
+            again.add_row(_data(row.heat), _when(row.started_at), _data(row.grade), str(row.corrections),
                           _money(row.cost), _signed(row.difference), _per_t(row.cost_per_t))
         parts.append(again)
     if report.notes:
@@ -165,10 +169,6 @@ def _data(value: object):  # -> Text; a logbook's text is shown as it is, never 
     from rich.text import Text
 
     return Text(visible(str(value)))
-
-
-def _short(grade: str, width: int = 16):  # -> Text
-    return _data(grade if len(grade) <= width else grade[: width - 1] + "…")
 
 
 def _when(moment) -> str:

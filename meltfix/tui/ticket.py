@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING
 
 from meltfix.outputs import write_atomic
 from meltfix.recipes import RecipeBook
-from meltfix.tui.figures import content_text, kg_text, money_text, unit_of
+from meltfix.numbers import content_text, kg_text, limit_text, money_text, unit_of
 
 if TYPE_CHECKING:  # the planner pulls in SciPy; the ticket needs only its types
     from meltfix.heat import Heat
@@ -61,16 +61,16 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
         cells = [
             "—" if now is None else content_text(symbol, now),
             content_text(symbol, plan.predicted_pct.get(symbol, 0.0)),
-            content_text(symbol, low) if low > 0 else "",
-            "" if aim is None else content_text(symbol, aim),
-            content_text(symbol, high),
+            limit_text(symbol, low) if low > 0 else "",
+            "" if aim is None else limit_text(symbol, aim),
+            limit_text(symbol, high),
         ]
         flag = "  <- out" if any(v.element == symbol for v in plan.violations) else ""
         lines.append(f"  {symbol:<4}" + "".join(f"{c:>9}" for c in cells) + flag)
     if plan.violations:
         lines += ["", "OUT OF REACH"]
         for violation in plan.violations:
-            head = (f"{violation.element} {violation.limit} {content_text(violation.element, violation.limit_pct)}"
+            head = (f"{violation.element} {violation.limit} {limit_text(violation.element, violation.limit_pct)}"
                     f" {unit_of(violation.element)}: ")
             lines += _bullet(head + violation.reason)
     lines += ["", "CAUTIONS"]

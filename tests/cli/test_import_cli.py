@@ -10,6 +10,7 @@ import pytest
 
 from meltfix.cli import main
 from meltfix.heat import load_heat
+from meltfix.paths import demo_dir
 from meltfix.recipes import load_recipes
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -90,10 +91,27 @@ def test_table_marks_flagged_cells_and_bounds(capsys: pytest.CaptureFixture[str]
     status, out, _ = _run(capsys, str(DATA / "three_burns_outlier.csv"), "--recipes", str(recipes))
     assert status == 0
     assert "Sample KB-24117-1" in out and "mean of 3" in out
-    assert "0.8420 !" in out
+    assert "0.842 !" in out  # Mn to three decimals, one more than its limits (meltfix.numbers)
     assert "spark a fresh burn" in out
     status, out, _ = _run(capsys, str(DATA / "below_limit.csv"), "--recipes", str(recipes))
     assert "<0.0010" in out and "B ppm" in out and "<5.0" in out
+
+
+def test_narrow_terminal_lists_one_element_per_row(capsys: pytest.CaptureFixture[str], recipes: Path,
+                                                   monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("COLUMNS", "200")  # --width wins over $COLUMNS
+    export = str(demo_dir() / "spectro" / "KB-24117_ladle.csv")
+    status, out, _ = _run(capsys, export, "--recipes", str(recipes), "--width", "80")
+    assert status == 0
+    lines = out.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    assert "…" not in out  # no value cut short
+    assert any(line.startswith("│ Mn ") and "1.421 !" in line for line in lines)  # the flagged burn, in its row
+    status, wide, _ = _run(capsys, export, "--recipes", str(recipes), "--width", "200")
+    assert status == 0 and "│ Burn " not in out and "Burn" in wide
+    status, as_json, _ = _run(capsys, export, "--json", "--recipes", str(recipes), "--width", "80")
+    assert status == 0 and json.loads(as_json)["samples"]  # --json is not laid out at all
+    assert _run(capsys, export, "--recipes", str(recipes), "--width", "12")[0] == 2
 
 
 def test_shop_layout_from_recipes(capsys: pytest.CaptureFixture[str], recipes: Path) -> None:

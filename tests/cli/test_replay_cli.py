@@ -72,7 +72,7 @@ def test_tables_and_chart(capsys: pytest.CaptureFixture[str]) -> None:
     status, out, _ = _run(capsys, str(RECORDS / "KB-24214.toml"))
     assert status == 0
     for text in ("Plan meltfix makes", "Actually added", "Chemistry path", "Heat summary", "A1", "A2", "A3",
-                 "62%"):
+                 "61.7 %"):  # the Mn recovery the next sample implies, as a per cent (meltfix.numbers)
         assert text in out
 
 

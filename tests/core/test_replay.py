@@ -19,6 +19,7 @@ from meltfix.replay import (
     replay,
     replay_json,
     score_entry,
+    summarise,
 )
 
 RECORDS = sorted((demo_dir() / "records").glob("*.toml"))
@@ -102,8 +103,9 @@ def test_hand_computed_two_sample_heat(tmp_path: Path, hand_book: RecipeBook) ->
     assert hint.catalogue == pytest.approx(0.9)
     assert hint.implied == pytest.approx(0.852605, abs=1e-6)
     assert first.predicted_misses == () and first.measured_misses == ()
-    # S2 starts from the grown bath; Mn 0.77 is inside and above the aim: nothing to add or do.
+    # S2 starts from the grown bath; Mn 0.77 is inside: no plan is made, nothing was added.
     assert second.bath_kg == pytest.approx(10036.8)
+    assert second.inside and second.plan is None and second.planned_cost is None
     assert second.planned == () and second.actual == ()
     assert second.next_sample is None and second.measured_next_pct is None
 
@@ -113,28 +115,36 @@ def test_hand_computed_two_sample_heat(tmp_path: Path, hand_book: RecipeBook) ->
     for key in ("sample", "planned", "actual", "predicted", "measured_next", "planned_cost", "actual_cost"):
         assert key in step
     assert step["actual_cost"] == pytest.approx(80.0) and doc["steps"][1]["measured_next"] is None
+    assert doc["steps"][1]["plan_status"] == "inside" and doc["steps"][1]["plan_needed"] is False
+    # meltfix along the same path: its plan at S1 only (S2 needed none); the shop: the 80 EUR added.
+    assert doc["planned_total"] == pytest.approx(70.1164, abs=2e-3) and doc["first_needed"] == "S1"
+    assert doc["actual_total"] == pytest.approx(80.0) and doc["ended_outside"] is None
 
 
 def test_training_score_of_known_entries(tmp_path: Path, hand_book: RecipeBook) -> None:
     record = load_record(_record_file(tmp_path, RECORD), hand_book)
     first = replay(record, hand_book)[0]
 
-    # 30 kg: Mn (50 + 30 * 0.72) / (10000 + 30 * 0.92) = 71.6 / 10027.6 = 0.714029 % -> in spec.
-    # Cheapest plan inside the window (aims off) just reaches the minimum 0.60:
-    # x = 10000 * (0.0060 - 0.0050) / (0.72 - 0.92 * 0.0060) = 10 / 0.71448 = 13.9962 kg = 27.9924 EUR.
-    # Points = round(100 * 27.9924 / 60) = round(46.65) = 47.
+    # One meltfix cost per sample: the trainee is scored against the plan the replay shows at S1,
+    # worked by hand above: 35.0582 kg of FeMn test = 70.1164 EUR.
+    # 30 kg: Mn (50 + 30 * 0.72) / (10000 + 30 * 0.92) = 71.6 / 10027.6 = 0.714029 % -> in spec,
+    # for 60 EUR, less than the plan: full points.
     score = score_entry(first, parse_entry("femn 30", hand_book), hand_book)
     assert score.in_spec and not score.breaks
     assert score.predicted_pct["Mn"] == pytest.approx(0.714029, abs=1e-6)
     assert score.entry_cost == pytest.approx(60.0)
-    assert score.best_cost == pytest.approx(27.9924, abs=2e-3)
-    assert score.points == 47
-    assert score.extra_cost == pytest.approx(60.0 - 27.9924, abs=2e-3)
+    assert score.best_cost == pytest.approx(70.1164, abs=2e-3) and score.best_cost == first.planned_cost
+    assert score.points == 100
+    assert score.extra_cost == pytest.approx(60.0 - 70.1164, abs=2e-3)
+    # 50 kg: (50 + 36) / (10000 + 46) = 0.856062 %, inside 0.60-0.90, for 100 EUR:
+    # points = round(100 * 70.1164 / 100) = 70.
+    dear = score_entry(first, (("FeMn test", 50.0),), hand_book)
+    assert dear.in_spec and dear.points == 70
 
     # 10 kg: (50 + 7.2) / 10009.2 = 0.571474 % < 0.60 -> out of spec, no points.
     short = score_entry(first, (("FeMn test", 10.0),), hand_book)
     assert not short.in_spec and short.points == 0
-    assert short.misses and short.misses[0].startswith("Mn min 0.6 %")
+    assert short.misses and short.misses[0].startswith("Mn min 0.60 %")
 
 
 def _independent_steps(path: Path, book: RecipeBook) -> list[tuple[float, dict[str, float], dict[str, float] | None]]:
@@ -182,10 +192,15 @@ def test_every_demo_record_replays_and_matches_an_independent_mass_balance(path:
         for symbol, pct in predicted.items():
             assert step.predicted_pct[symbol] == pytest.approx(pct, rel=1e-9, abs=1e-12), symbol
         assert step.measured_next_pct == measured
-        # The planner must answer at every sample of a demo heat (a refusal would show as plan_error).
-        assert step.plan is not None, step.plan_error
-        assert step.plan.status in ("optimal", "closest")
-        assert math.isfinite(step.plan.total_cost) and step.actual_cost >= 0
+        # The planner must answer at every sample of a demo heat that needs a plan (a refusal
+        # would show as plan_error); a sample inside the grade gets none.
+        if step.inside:
+            assert step.plan is None and not step.plan_error
+        else:
+            assert step.plan is not None, step.plan_error
+            assert step.plan.status in ("optimal", "closest")
+            assert math.isfinite(step.plan.total_cost)
+        assert step.actual_cost >= 0
     paths = element_paths(steps, book.grade(record.grade))
     assert {p.element for p in paths} == set(book.grade(record.grade).window_pct)
 
@@ -216,6 +231,24 @@ def test_demo_stories_hold() -> None:
     clean = _steps("KB-24215")  # one trim, then in spec where the mass balance said
     assert not clean[0].measured_misses and not clean[0].predicted_misses
     assert all(abs(g) < 0.01 for g in clean[0].gap_pct.values())
+
+
+def test_summary_compares_the_heat_with_meltfix_along_the_same_path() -> None:
+    book = load_recipes()
+    path = demo_dir() / "records" / "KB-24211.toml"
+    steps = replay(load_record(path, book), book)
+    summary = summarise(steps)
+    # Three corrections, in spec at the last sample: that sample gets no plan.
+    assert [s.inside for s in steps] == [False, False, False, True] and steps[-1].plan is None
+    # The shop: every addition of the file at its catalogue price, summed here from the raw TOML.
+    raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    prices = {m.name: m.price_per_kg for m in book.materials}
+    assert summary.actual_cost == pytest.approx(math.fsum(a["kg"] * prices[a["material"]] for a in raw["addition"]))
+    # meltfix: its plan at S1 alone (had it been followed, S2 and S3 would not have needed theirs),
+    # never the sum of the three alternative plans.
+    assert summary.first_needed == "S1" and summary.meltfix_cost == steps[0].planned_cost
+    assert summary.meltfix_cost < math.fsum(s.planned_cost or 0.0 for s in steps)
+    assert summary.ended_outside is None and summary.shop_cost == summary.actual_cost
 
 
 def test_midnight_needs_date_times_and_then_works(tmp_path: Path, hand_book: RecipeBook) -> None:

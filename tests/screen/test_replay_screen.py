@@ -88,7 +88,7 @@ async def test_usable_at_80_by_24_and_side_by_side_when_wide() -> None:
     async with app.run_test(size=(80, 24)) as pilot:
         await app.workers.wait_for_complete()
         await pilot.pause()
-        await pilot.press("n", "n", "n")  # the last sample: the longest path chart, four values per element
+        await pilot.press("n", "n")  # the third sample: the last that needs a plan (the fourth is inside)
         chemistry, plan, actual = (screen.query_one(f"#replay-{part}") for part in ("chemistry", "plan", "actual"))
         assert screen.has_class("-narrow")
         # The chemistry across the screen; the plan beside the actual additions under it, each wide
@@ -96,10 +96,14 @@ async def test_usable_at_80_by_24_and_side_by_side_when_wide() -> None:
         assert plan.region.y > chemistry.region.y and plan.region.y == actual.region.y
         assert min(plan.region.width, actual.region.width) >= 35 and actual.region.right <= 80
         plan_text = _shown(plan)
-        for addition in screen.steps[-1].plan.additions:
+        third = screen.steps[2].plan
+        assert third is not None
+        for addition in third.additions:
             assert all(word in plan_text for word in addition.material.split())
+        await pilot.press("n")  # the last sample: the longest path chart, four values per element
+        assert "inside every limit already" in " ".join(_shown(plan).split())
         chart = _shown(screen.query_one("#replay-chart"))
-        assert "…" not in chart and all(f"{low:g}–{high:g}" in chart for low, high in
+        assert "…" not in chart and all(f"{low:.2f}–{high:.2f}" in chart for low, high in
                                         (book.grade(record.grade).window_pct[s] for s in ("C", "Mn", "Mo")))
         body = screen.query_one("#replay-body")
         assert screen.focused is body and body.max_scroll_y > 0  # the rest is a scroll away, by keyboard

@@ -45,7 +45,7 @@ from meltfix.logbook import (
 )
 from meltfix.recipes import RecipeBook
 from meltfix.replay import record_from_history
-from meltfix.tui.figures import content_text, kg_text, money_text, unit_of
+from meltfix.numbers import content_text, kg_text, money_text, unit_of
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.replay import ReplayScreen
 

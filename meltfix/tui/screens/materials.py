@@ -20,7 +20,7 @@ from meltfix.elements import parse_number
 from meltfix.errors import InputError
 from meltfix.heat import Heat, validate_heat
 from meltfix.recipes import Material, RecipeBook
-from meltfix.tui.figures import kg_text, money_text
+from meltfix.numbers import kg_text, money_text
 from meltfix.tui.keys import hint
 from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
 from meltfix.tui.widgets.reason import ReasonLine

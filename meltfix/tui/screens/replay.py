@@ -4,7 +4,7 @@ At each sample: the analysis against the window, the plan meltfix makes there, t
 actually made, the chemistry they should have given against the next sample, and every element's
 path through the heat. In training mode the plan, the actual additions and the outcome stay hidden
 until the trainee has entered their own additions; then the score shows (in spec or not, cost
-against the cheapest plan).
+against the plan meltfix makes at that sample, the one the screen shows).
 
 Open it with ``app.push_screen(ReplayScreen(record, book))``; with ``record=None`` the screen
 first lists the demo shop's recorded heats to choose from. Planning runs in a thread worker.
@@ -18,7 +18,6 @@ from typing import Any
 
 from rich import box
 from rich.console import Group, RenderableType
-from rich.measure import Measurement
 from rich.table import Table
 from rich.text import Text
 from textual import on, work
@@ -48,17 +47,12 @@ from meltfix.replay_render import (
     additions_table,
     chemistry_table,
     cost_line,
+    fitted_path_chart,
     hints_table,
-    path_chart,
     plan_renderable,
     score_renderable,
 )
 from meltfix.tui.palette import ScreenActions
-
-# Longest and shortest bar of the chemistry path chart [characters]: the longest reads best, the
-# shortest still shows where each sample fell against the window.
-_BAR_WIDTHS = (36, 12)
-
 
 @dataclass
 class ReplayReady(Message):
@@ -289,16 +283,11 @@ class ReplayScreen(Screen[None]):
         upto = min(self.index + 1, last) if self.revealed else self.index
         paths = element_paths(self.steps, self.book.grade(self.record.grade))
         sample_ids = [s.sample.sample_id for s in self.steps]
-        longest, shortest = _BAR_WIDTHS
-        chart = path_chart(paths, sample_ids, upto=upto, current=self.index, width=longest)
-        console = self.app.console
-        natural = Measurement.get(console, console.options.update_width(10_000), chart).maximum
         body = self.query_one("#replay-body")
         # From the screen's width: the body may not be laid out yet when it has just been shown.
-        excess = natural - (self.size.width - body.styles.gutter.width - body.styles.scrollbar_size_vertical)
-        if excess > 0:  # below the shortest bar the table squeezes its other columns instead
-            chart = path_chart(paths, sample_ids, upto=upto, current=self.index, width=max(shortest, longest - excess))
-        self.query_one("#replay-chart", Static).update(chart)
+        room = self.size.width - body.styles.gutter.width - body.styles.scrollbar_size_vertical
+        self.query_one("#replay-chart", Static).update(
+            fitted_path_chart(paths, sample_ids, self.app.console, room, upto=upto, current=self.index))
 
     def on_resize(self) -> None:
         self._draw_chart()

@@ -29,7 +29,7 @@ from meltfix.paths import demo_dir
 from meltfix.recipes import RecipeBook
 from meltfix.tui.accept import record_accepted
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat
-from meltfix.tui.figures import cell_text, kg_text
+from meltfix.numbers import cell_text, kg_text
 from meltfix.tui.messages import PlanFailed, PlanReady
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.added import AddedDialog

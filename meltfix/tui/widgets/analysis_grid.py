@@ -12,7 +12,7 @@ from textual.widgets import Input, Label, Static
 
 from meltfix.recipes import Grade
 from meltfix.tui.draft import cell_key
-from meltfix.tui.figures import content_text, unit_of
+from meltfix.numbers import limit_text, unit_of
 from meltfix.tui.widgets.reason import ReasonLine
 
 
@@ -31,8 +31,8 @@ def window_hint(grade: Grade, symbol: str) -> str:
         return ""
     low, high = grade.window_pct[symbol]
     if low <= 0:
-        return f"≤ {content_text(symbol, high)}"
-    return f"{content_text(symbol, low)}–{content_text(symbol, high)}"
+        return f"≤ {limit_text(symbol, high)}"
+    return f"{limit_text(symbol, low)}–{limit_text(symbol, high)}"
 
 
 class CellRow(Vertical):

@@ -16,7 +16,7 @@ from textual.geometry import Size
 from textual.widget import Widget
 
 from meltfix.recipes import Grade
-from meltfix.tui.figures import content_text, unit_of
+from meltfix.numbers import content_text, limit_text, unit_of
 
 _LABEL = 5  # width of the min and max labels either side of the rail
 _FIXED = 6 + 3 + 6 + 1  # now, arrow, after, space (the name column is as wide as the longest name)
@@ -83,14 +83,14 @@ def gauge_line(row: GaugeRow, rail_cells: int, labels: bool = True, name_width: 
     now = "—" if row.now_pct is None else content_text(row.symbol, row.now_pct)
     after = "" if row.after_pct is None else content_text(row.symbol, row.after_pct)
     after_style = "$text-success" if inside else "bold $text-error"
-    low_label = content_text(row.symbol, low) if low > 0 else "0"
+    low_label = limit_text(row.symbol, low) if low > 0 else "0"
     parts: list[tuple[str, str] | str] = [
         (f"{row.symbol:<{name_width}}", "bold"), f"{now:>6}", (" → " if after else "   ", "$foreground-muted"),
         (f"{after:<6}", after_style), " ",
     ]
     if labels:
         parts += [(f"{low_label:>{_LABEL}} ", "$foreground-muted"), *rail,
-                  (f" {content_text(row.symbol, high):<{_LABEL}}", "$foreground-muted")]
+                  (f" {limit_text(row.symbol, high):<{_LABEL}}", "$foreground-muted")]
     else:
         parts += rail
     return Content.assemble(*parts)

@@ -18,7 +18,7 @@ from textual.widgets import Static
 
 from meltfix.heat import Heat
 from meltfix.recipes import Grade
-from meltfix.tui.figures import content_text, kg_text, money_text, packs_text, unit_of
+from meltfix.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
 from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
 
 if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
@@ -127,7 +127,7 @@ def _out_of_reach(plan: Plan) -> Content:
     for v in plan.violations:
         unit = unit_of(v.element)
         lines.append(Content.assemble(
-            (f"{v.element} {v.limit} {content_text(v.element, v.limit_pct)} {unit}", "bold"),
+            (f"{v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit}", "bold"),
             f": {content_text(v.element, v.predicted_pct)} {unit} after, off by "
             f"{content_text(v.element, v.by_pct)}. ", v.reason))
     return Content("\n").join(lines)
