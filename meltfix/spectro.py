@@ -19,10 +19,11 @@ from __future__ import annotations
 import codecs
 import csv
 import io
+import itertools
 import math
 import re
 import statistics
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from collections import Counter
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -350,20 +351,23 @@ class _Column:
     ppm: bool
 
 
-def _rows(body: str, delimiter: str, source: object) -> list[tuple[int, list[str]]]:
-    """Non-blank rows with the file line each starts on."""
+# The header is looked for in this many non-blank rows at the top (instrument preambles are a few
+# lines): scanning a whole 50 MB export once per candidate separator cost most of its reading time.
+_HEADER_SEARCH_ROWS = 200
+
+
+def _rows(body: str, delimiter: str, source: object) -> Iterator[tuple[int, list[str]]]:
+    """Non-blank rows with the file line each starts on, one at a time (an export may be large)."""
     reader = csv.reader(io.StringIO(body, newline=""), delimiter=delimiter)
-    rows: list[tuple[int, list[str]]] = []
     line = 1
     try:
         for cells in reader:
             stripped = [cell.strip() for cell in cells]
             if any(stripped):
-                rows.append((line, stripped))
+                yield line, stripped
             line = reader.line_num + 1
     except csv.Error as exc:
         raise InputError(source, f"line {reader.line_num}", f"cannot be split into cells ({exc})") from None
-    return rows
 
 
 def _sample_index(cells: Sequence[str], layout: ExportLayout) -> int | None:
@@ -376,22 +380,23 @@ def _sample_index(cells: Sequence[str], layout: ExportLayout) -> int | None:
 
 
 def _find_table(body: str, source: object, layout: ExportLayout, forced: str | None
-                ) -> tuple[list[tuple[int, list[str]]], int, int]:
-    """Pick the separator under which a header with a sample column appears.
+                ) -> tuple[str, list[tuple[int, list[str]]], int, int]:
+    """Pick the separator under which a header with a sample column appears near the top.
 
-    Returns the rows, the header's position among them and the sample column's index.
+    Returns the separator, the rows up to the header, the header's position among them and the
+    sample column's index.
     """
     candidates = [forced] if forced else ([layout.delimiter] if layout.delimiter else ["\t", ";", ","])
-    best: tuple[int, list[tuple[int, list[str]]], int, int] | None = None
+    best: tuple[int, str, list[tuple[int, list[str]]], int, int] | None = None
     any_rows = False
     for delimiter in candidates:
-        rows = _rows(body, delimiter, source)
+        rows = list(itertools.islice(_rows(body, delimiter, source), _HEADER_SEARCH_ROWS))
         any_rows = any_rows or bool(rows)
         for position, (_, cells) in enumerate(rows):
             sample_col = _sample_index(cells, layout) if len(cells) >= 2 else None
             if sample_col is not None:
                 if best is None or len(cells) > best[0]:
-                    best = (len(cells), rows, position, sample_col)
+                    best = (len(cells), delimiter, rows[:position + 1], position, sample_col)
                 break
     if not any_rows:
         raise InputError(source, "", "the file is empty")
@@ -401,7 +406,7 @@ def _find_table(body: str, source: object, layout: ExportLayout, forced: str | N
                              f"no column '{layout.sample_column}' (shop.toml spectrometer.sample_column)")
         raise InputError(source, "header", "no sample column found (looked for 'Sample', 'Sample ID', 'ID'); "
                          "name it with sample_column in shop.toml [spectrometer]")
-    return best[1], best[2], best[3]
+    return best[1], best[2], best[3], best[4]
 
 
 def _role_index(header: Sequence[str], configured: str | None, known: Sequence[str], setting: str,
@@ -513,7 +518,7 @@ def parse_export(body: str, source: object, layout: ExportLayout | None = None, 
     if sep:
         # Spreadsheet programs write "sep=;" as a first line; keep the line count by leaving it blank.
         forced, body = sep.group(1), "\n" + rest
-    rows, header_at, sample_col = _find_table(body, source, layout, forced)
+    delimiter, rows, header_at, sample_col = _find_table(body, source, layout, forced)
     header_line, header = rows[header_at]
     notes: list[str] = []
     if header_at:
@@ -531,7 +536,9 @@ def parse_export(body: str, source: object, layout: ExportLayout | None = None, 
     width = max(i for i, name in enumerate(header) if name) + 1
     decimals = _DecimalStyle(layout.decimal)
     samples: dict[str, _RawSample] = {}
-    for line, cells in rows[header_at + 1:]:
+    for line, cells in _rows(body, delimiter, source):
+        if line <= header_line:
+            continue
         if len(cells) < width:
             raise InputError(source, f"row {line}", f"has {len(cells)} cells but the header (row {header_line}) "
                              f"has {width}: a ragged row")
