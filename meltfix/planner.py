@@ -20,7 +20,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from meltfix.cautions import plan_cautions
+from meltfix.cautions import BathState, plan_cautions
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.heat import Heat, checked_grade, unchecked_caution, validate_heat
@@ -307,8 +307,9 @@ class Planner:
             checks=checks,
             violations=tuple(violations),
             binding=binding,
-            cautions=unchecked_caution(heat) + plan_cautions(used, heat.bath_kg, drop, heat.temperature_c,
-                                                             book.settings),
+            cautions=unchecked_caution(heat) + plan_cautions(
+                used, heat.bath_kg, drop, heat.temperature_c, book.settings,
+                BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c)),
             temperature_drop_c=drop,
             notes=notes,
             currency=book.settings.currency,
