@@ -73,7 +73,13 @@ def _history(db: Backend, heat_ids: set[str] | None = None) -> Rows:
                              for key, row in batches.values()]
     out["addition"] = [(*batches[row[0]][0], *row[1:]) for row in rows(
         f"SELECT batch_id, {_LINE} FROM addition ORDER BY batch_id, line_no") if row[0] in batches]
-    return {table: sorted(found, key=lambda row, n=_KEY_LENGTH[table]: row[:n]) for table, found in out.items()}
+    return {table: sorted(found, key=_key_of(table)) for table, found in out.items()}
+
+
+def _key_of(table: str) -> Callable[[tuple], tuple]:
+    """A row's identifying fields: rows sort by them (their content may hold None, which does not sort)."""
+    length = _KEY_LENGTH[table]
+    return lambda row: row[:length]
 
 
 def _numbered(rows: list[tuple], wanted: Callable[[str], bool]) -> dict[int, tuple[tuple[str, int], tuple]]:

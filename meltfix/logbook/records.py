@@ -155,7 +155,8 @@ class HeatHistory:
     @property
     def events(self) -> tuple[HeatEvent, ...]:
         """Samples, plans and additions merged in time order (at the same second: sample, plan, additions)."""
-        ranked = [(s.taken_at, 0, k, s) for k, s in enumerate(self.samples)]
+        ranked: list[tuple[datetime, int, int, HeatEvent]] = [
+            (s.taken_at, 0, k, s) for k, s in enumerate(self.samples)]
         ranked += [(p.made_at, 1, k, p) for k, p in enumerate(self.plans)]
         ranked += [(a.added_at, 2, k, a) for k, a in enumerate(self.additions)]
         return tuple(item[3] for item in sorted(ranked, key=lambda item: item[:3]))
