@@ -26,19 +26,26 @@ class ChoiceDialog(ModalScreen[str | None]):
     ]
 
     def __init__(self, title: str, items: Sequence[tuple[str, str]], *, typed: str = "",
-                 current: str | None = None) -> None:
-        """``items`` are (key, text) pairs; the filter matches anywhere in the text, any case."""
+                 current: str | None = None, noun: str = "items", searched: str = "text") -> None:
+        """``items`` are (key, text) pairs; the filter matches anywhere in the text, any case.
+
+        ``noun`` ("grades") and ``searched`` ("name, family and standard") word the line shown
+        when the filter matches nothing, so an empty list never looks like a fault.
+        """
         super().__init__()
         self.title_text = title
         self.items = tuple(items)
         self.typed = typed
         self.current = current
+        self.noun = noun
+        self.searched = searched
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog") as box:
             box.border_title = Content(visible(self.title_text))
             yield Input(self.typed, placeholder="type to filter", id="choice-filter")
             yield OptionList(id="choice-list")
+            yield Label(id="choice-empty")
             yield Label("↓ into the list · Enter picks · Esc backs out", classes="dialog-help")
 
     def on_mount(self) -> None:
@@ -55,6 +62,11 @@ class ChoiceDialog(ModalScreen[str | None]):
         keys = [key for key, _ in shown]
         if shown:
             options.highlighted = keys.index(self.current) if self.current in keys else 0
+        empty = self.query_one("#choice-empty", Label)
+        empty.update(f"Nothing matches “{text.strip()}”: searched the {self.searched} of all {len(self.items)} "
+                     f"{self.noun}. Backspace widens the search." if not shown else "")
+        empty.display = not shown
+        options.display = bool(shown)
 
     @on(Input.Changed, "#choice-filter")
     def _filter(self, event: Input.Changed) -> None:

@@ -12,7 +12,8 @@ from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from textual import on, work
+from textual import events, on, work
+from textual.actions import parse
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
@@ -260,6 +261,24 @@ class TrimScreen(Screen[None]):
             return self.accepted is not None or None
         return True
 
+    def on_key(self, event: events.Key) -> None:
+        """A key whose action cannot run now reaches here (its binding declined it): say why."""
+        bindings = list(Binding.make_bindings(self.BINDINGS))
+        binding = next((b for b in bindings if b.key == event.key and b.description), None)
+        if binding is None:
+            return
+        _, name, parameters = parse(binding.action)
+        if self.check_action(name, parameters):
+            return
+        key = self.app.get_key_display(binding)
+        if name == "record_added":
+            accept = next(self.app.get_key_display(b) for b in bindings if b.action == "accept")
+            why = f"accept a plan first ({accept}), then record what went in"
+        else:
+            why = "waits for a plan of the inputs on screen (the line above says what stops it)"
+        self.query_one(PlanView).say(f"{key} {binding.description}: {why}")
+        event.stop()
+
     def action_step_field(self, step: int) -> None:
         fields = self._fields()
         focused = self.focused
@@ -287,7 +306,8 @@ class TrimScreen(Screen[None]):
             await self._set_rows(name, self.query_one(AnalysisGrid).texts())
             self.inputs_changed()
 
-        self.app.push_screen(ChoiceDialog("Grade", items, typed=typed, current=self.query_one(HeatForm).grade),
+        self.app.push_screen(ChoiceDialog("Grade", items, typed=typed, current=self.query_one(HeatForm).grade,
+                                          noun="grades", searched="name, family and standard"),
                              chosen)
 
     def action_open_heat(self) -> None:
@@ -328,7 +348,8 @@ class TrimScreen(Screen[None]):
                     if key is not None:
                         self._offer_sample(samples[int(key)])
 
-                self.app.push_screen(ChoiceDialog("Which sample?", items, current=items[-1][0]), picked)
+                self.app.push_screen(ChoiceDialog("Which sample?", items, current=items[-1][0], noun="samples",
+                                                  searched="id and burns"), picked)
 
         self.app.push_screen(OpenFileDialog("Read a spectrometer export", folder, [".csv", ".txt", ".tsv"], read),
                              samples_read)
