@@ -213,6 +213,10 @@ class ShopSettings:
     """Stirring or dissolution time between two lots [min] (common practice: a few minutes)."""
     superheat_c: float = 30.0
     """How far above the liquidus the bath must stay after the additions [°C] (common practice)."""
+    ticket_dir: str = ""
+    """Folder the screen writes crew tickets to ("" = the current folder; --tickets overrides)."""
+    ticket_print_command: str = ""
+    """Command a written ticket is sent to, e.g. "lp -d pulpit" ("" = not printed)."""
 
 
 @dataclass(frozen=True)
@@ -610,7 +614,8 @@ def load_grades(folder: Path, material_names: set[str]) -> dict[str, Grade]:
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
               "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
-              "max_portion_kg", "stir_min", "superheat_c"}
+              "max_portion_kg", "stir_min", "superheat_c", "ticket_dir",
+              "ticket_print_command"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -675,6 +680,8 @@ def load_settings(folder: Path) -> ShopSettings:
         else number(data["max_portion_kg"], path, "max_portion_kg", positive=True),
         stir_min=number(data.get("stir_min", defaults.stir_min), path, "stir_min"),
         superheat_c=number(data.get("superheat_c", defaults.superheat_c), path, "superheat_c"),
+        ticket_dir=_optional_text(data, "ticket_dir", path, ""),
+        ticket_print_command=_optional_text(data, "ticket_print_command", path, ""),
     )
 
 

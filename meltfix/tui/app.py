@@ -46,7 +46,8 @@ class MeltfixApp(App[None]):
         self.heat_path = heat_path
         self.logbook_path = logbook_path
         """The logbook file; None = the logbook module's own default (its environment variable)."""
-        self.tickets_dir = tickets_dir if tickets_dir is not None else Path.cwd()
+        # --tickets, else the shop's ticket_dir, else here.
+        self.tickets_dir = tickets_dir if tickets_dir is not None else Path(book.settings.ticket_dir or Path.cwd())
         self.light = light
 
     def notify(self, message: str, *, title: str = "", severity: SeverityLevel = "information",

@@ -6,12 +6,16 @@ Plain text on purpose: it is printed or shown on a pulpit screen, and must read 
 from __future__ import annotations
 
 import re
+import shlex
+import shutil
+import subprocess
 import textwrap
 from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 from meltfix.outputs import write_atomic
+from meltfix.elements import element_sort_key
 from meltfix.recipes import RecipeBook
 from meltfix.numbers import content_text, kg_text, limit_text, money_text, unit_of
 
@@ -22,12 +26,21 @@ if TYPE_CHECKING:  # the planner pulls in SciPy; the ticket needs only its types
 _WIDTH = 72
 
 
-def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime) -> str:
-    """The ticket as text lines of at most 72 characters (longer names are left whole)."""
+# A content the plan changes by less than this is not "moved" [wt %].
+_MOVED_PCT = 0.0005
+
+
+def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime, *, sample: str | None = None,
+                plan_number: int | None = None, odds: float | None = None) -> str:
+    """The ticket as text lines of at most 72 characters (longer names are left whole): heat, sample,
+    plan number, time and stage; the additions in order with their lots; the predicted chemistry of
+    the grade's elements and of every element the plan moves; odds; the temperature; the cautions;
+    and a line for the signature of the person who decides."""
     grade = book.grade(plan.grade)
     lines = [
         f"ADDITION TICKET — {book.settings.shop_name}",
-        f"Heat {plan.heat_id}   grade {plan.grade}   stage {heat.stage}   written {written:%Y-%m-%d %H:%M}",
+        f"Heat {plan.heat_id}   sample {sample or '—'}   plan {'#' + str(plan_number) if plan_number else 'not accepted yet'}",
+        f"Grade {plan.grade}   stage {heat.stage}   written {written:%Y-%m-%d %H:%M}",
         f"Bath {plan.bath_kg:,.0f} kg -> {plan.final_kg:,.0f} kg after the additions dissolve",
         "",
     ]
@@ -48,11 +61,17 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
         lines.append("  nothing: the bath is already where it should be")
     lines += ["", f"Cost {money_text(plan.total_cost)} {plan.currency} "
                   f"({money_text(plan.cost_per_t)} {plan.currency}/t)   "
-                  f"temperature change {-plan.temperature_drop_c:+.1f} °C", ""]
+                  f"temperature change {-plan.temperature_drop_c:+.1f} °C"]
+    lines += _temperature_lines(heat, plan)
+    if odds is not None:
+        lines.append(f"Odds of landing inside every window: {100 * odds:.0f} %")
+    lines.append("")
     lines.append("CHEMISTRY (wt %, N O B H in ppm)")
     lines.append(f"  {'':<4}{'now':>9}{'after':>9}{'min':>9}{'aim':>9}{'max':>9}")
-    for symbol in grade.elements:
-        low, high = grade.window_pct[symbol]
+    moved = sorted((s for s, after in plan.predicted_pct.items() if s not in grade.window_pct
+                    and abs(after - heat.analysis.pct.get(s, 0.0)) >= _MOVED_PCT), key=element_sort_key)
+    for symbol in grade.elements + tuple(moved):
+        low, high = grade.window_pct.get(symbol, (0.0, 0.0))
         aim = grade.aim_pct.get(symbol)
         now = heat.analysis.pct.get(symbol)
         if symbol in heat.not_measured:
@@ -63,7 +82,7 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
             content_text(symbol, plan.predicted_pct.get(symbol, 0.0)),
             limit_text(symbol, low) if low > 0 else "",
             "" if aim is None else limit_text(symbol, aim),
-            limit_text(symbol, high),
+            limit_text(symbol, high) if symbol in grade.window_pct else "no limit",
         ]
         flag = "  <- out" if any(v.element == symbol for v in plan.violations) else ""
         lines.append(f"  {symbol:<4}" + "".join(f"{c:>9}" for c in cells) + flag)
@@ -76,14 +95,29 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime)
     lines += ["", "CAUTIONS"]
     for caution in plan.cautions:
         lines += _bullet(caution)
+    lines += ["", "DECIDED BY (name) ______________________   SIGNATURE ________________   TIME ______",
+              "The tool advises; the person signing decides, under the shop's procedures and local codes."]
     return "\n".join(lines) + "\n"
+
+
+def _temperature_lines(heat: "Heat", plan: "Plan") -> list[str]:
+    lines = []
+    if plan.reheat_c > 0:
+        lines.append(f"Arc heating about {plan.reheat_c:.0f} °C ({plan.reheat_min:.0f} min), "
+                     f"{money_text(plan.reheat_cost)} {plan.currency}")
+    if plan.temperature_after_c is not None and heat.temperature_c is not None:
+        liquidus = "" if plan.liquidus_c is None else (f"; liquidus about {plan.liquidus_c:.0f} °C, superheat "
+                                                       f"{plan.superheat_c:g} °C")
+        lines.append(f"Temperature {heat.temperature_c:.0f} °C now -> about {plan.temperature_after_c:.0f} °C after{liquidus}")
+    return lines
 
 
 def _bullet(text: str) -> list[str]:
     return textwrap.wrap(text, _WIDTH, initial_indent="  - ", subsequent_indent="    ", break_on_hyphens=False)
 
 
-def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime) -> Path:
+def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime, *,
+                 sample: str | None = None, plan_number: int | None = None, odds: float | None = None) -> Path:
     """Write the ticket as ``<heat>-ticket.txt`` in ``folder``; an earlier ticket is never overwritten."""
     stem = re.sub(r"[^A-Za-z0-9._-]+", "_", plan.heat_id).strip("._") or "heat"
     folder.mkdir(parents=True, exist_ok=True)
@@ -93,4 +127,20 @@ def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, wri
         path = folder / f"{stem}-ticket-{number}.txt"
         number += 1
     # Never overwrite: should another writer take the name in between, fail rather than replace it.
-    return write_atomic(path, ticket_text(heat, plan, book, written), what="the ticket", overwrite=False)
+    text = ticket_text(heat, plan, book, written, sample=sample, plan_number=plan_number, odds=odds)
+    return write_atomic(path, text, what="the ticket", overwrite=False)
+
+
+def print_ticket(path: Path, command: str) -> str:
+    """Send a written ticket to the shop's printer command (e.g. "lp -d pulpit"); returns what
+    happened in words. A machine without the command is told, not failed."""
+    argv = shlex.split(command)
+    if not argv or shutil.which(argv[0]) is None:
+        return f"not printed: no printer command '{argv[0] if argv else command}' on this machine"
+    try:
+        done = subprocess.run([*argv, str(path)], capture_output=True, text=True, timeout=30, check=False)
+    except (OSError, subprocess.TimeoutExpired) as exc:
+        return f"not printed: {exc}"
+    if done.returncode != 0:
+        return f"not printed: {argv[0]} said {(done.stderr or done.stdout).strip()[:120]}"
+    return f"sent to the printer ({command})"

@@ -163,7 +163,8 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
      "shop.toml", "max_temp_drop",
      "unknown key (expected one of: addition_order, aim_penalty, bath_kg_range, correction_cost, currency, "
      "large_addition_kg_per_t, max_portion_kg, max_temp_drop_c, max_unlisted_rise_pct, plan_time_limit_s, "
-     "plausible_max_pct, scatter, shop_name, spectrometer, stage, stir_min, superheat_c, target_odds)"),
+     "plausible_max_pct, scatter, shop_name, spectrometer, stage, stir_min, superheat_c, target_odds, "
+     "ticket_dir, ticket_print_command)"),
     ("negative temperature drop", edit("shop.toml", "max_temp_drop_c = 25.0", "max_temp_drop_c = -25.0"),
      "shop.toml", "max_temp_drop_c", "must not be negative, got -25.0"),
     ("grades folder missing", put("grades/g1.toml", None),

@@ -39,7 +39,7 @@ from meltfix.tui.screens.help import KeysScreen
 from meltfix.tui.screens.materials import MaterialsDialog
 from meltfix.tui.screens.open_file import OpenFileDialog
 from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
-from meltfix.tui.ticket import write_ticket
+from meltfix.tui.ticket import print_ticket, write_ticket
 from meltfix.tui.widgets.analysis_grid import AnalysisGrid, CellSpec, window_hint
 from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
 from meltfix.tui.widgets.plan_view import PlanView
@@ -449,14 +449,19 @@ class TrimScreen(Screen[None]):
             return
         heat, plan = self.current
         try:
-            path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now())
+            path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now(),
+                                sample=None if self.imported is None else self.imported[0].sample_id,
+                                plan_number=self.accepted[0] if self.accepted and self.accepted[1] is plan else None)
         except OSError as exc:
             self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
             return
         except InputError as exc:
             self.notify(str(exc), title="Ticket not written", severity="error")
             return
-        self.notify(str(path), title="Ticket written")
+        printed = ""
+        if self.book.settings.ticket_print_command:
+            printed = "\n" + print_ticket(path, self.book.settings.ticket_print_command)
+        self.notify(str(path) + printed, title="Ticket written")
 
     def action_add_element(self) -> None:
         grid = self.query_one(AnalysisGrid)
