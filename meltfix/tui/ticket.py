@@ -95,8 +95,10 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     lines += ["", "CAUTIONS"]
     for caution in plan.cautions:
         lines += _bullet(caution)
-    lines += ["", "DECIDED BY (name) ______________________   SIGNATURE ________________   TIME ______",
-              "The tool advises; the person signing decides, under the shop's procedures and local codes."]
+    lines += ["", "DECIDED BY (name) ____________________   SIGNATURE __________________",
+              "TIME ________",
+              "The tool advises; the person signing decides, under the shop's",
+              "procedures and local codes."]
     return "\n".join(lines) + "\n"
 
 
@@ -106,9 +108,9 @@ def _temperature_lines(heat: "Heat", plan: "Plan") -> list[str]:
         lines.append(f"Arc heating about {plan.reheat_c:.0f} °C ({plan.reheat_min:.0f} min), "
                      f"{money_text(plan.reheat_cost)} {plan.currency}")
     if plan.temperature_after_c is not None and heat.temperature_c is not None:
-        liquidus = "" if plan.liquidus_c is None else (f"; liquidus about {plan.liquidus_c:.0f} °C, superheat "
-                                                       f"{plan.superheat_c:g} °C")
-        lines.append(f"Temperature {heat.temperature_c:.0f} °C now -> about {plan.temperature_after_c:.0f} °C after{liquidus}")
+        lines.append(f"Temperature {heat.temperature_c:.0f} °C now -> about {plan.temperature_after_c:.0f} °C after")
+        if plan.liquidus_c is not None:
+            lines.append(f"  liquidus about {plan.liquidus_c:.0f} °C, superheat {plan.superheat_c:g} °C")
     return lines
 
 

@@ -26,9 +26,9 @@ def test_ticket_carries_what_the_crew_needs() -> None:
     assert "ADD, IN THIS ORDER" in text and " 1 Aluminium shot" in text
     assert "m of wire" in text  # the aluminium wire in metres
     assert "Odds of landing inside every window: 96 %" in text
-    assert f"-> about {plan.temperature_after_c:.0f} °C after; liquidus about {plan.liquidus_c:.0f} °C" in text
+    assert f"-> about {plan.temperature_after_c:.0f} °C after\n  liquidus about {plan.liquidus_c:.0f} °C" in text
     assert "SIGNATURE" in text and "local codes" in text
-    assert all(len(line) <= 90 for line in text.splitlines())
+    assert all(len(line) <= 72 for line in text.splitlines())
 
 
 def test_ticket_goes_to_the_folder_and_the_printer(tmp_path: Path) -> None:
