@@ -41,6 +41,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "(e.g. 0.99; default: shop.toml target_odds)")
     parser.add_argument("--on-paper", action="store_true",
                         help="plan to the exact windows with no margin for scatter (for comparison)")
+    parser.add_argument("--to-aims", action="store_true",
+                        help="pull a heat that is already inside at the target odds towards the aims "
+                             "(otherwise its plan is empty)")
     parser.add_argument("--draws", metavar="N", type=int, default=2000, help="Monte Carlo draws per heat (default 2000)")
     parser.add_argument("--seed", metavar="S", type=int, default=0, help="seed of the draws (default 0)")
     parser.add_argument("--jobs", metavar="N", type=int, default=1,
@@ -75,7 +78,8 @@ def _run_here(args: argparse.Namespace) -> int:
         try:
             heat = load_heat(name, book)
             try:
-                risk = planner.plan(heat, args.sure, options, draws=args.draws, seed=args.seed, on_paper=args.on_paper)
+                risk = planner.plan(heat, args.sure, options, draws=args.draws, seed=args.seed, on_paper=args.on_paper,
+                                    to_aims=args.to_aims)
             except InputError as exc:  # the planner knows the heat, not its file: name the file
                 raise InputError(name, exc.field, exc.message) from None
         except InputError as exc:

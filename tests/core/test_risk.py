@@ -284,3 +284,55 @@ def test_the_risk_aware_plan_costs_more_only_where_the_odds_were_short() -> None
         if paper.odds.heat >= 0.95:
             assert risk.plan.total_cost == pytest.approx(paper.plan.total_cost), heat.heat_id
         assert math.isfinite(risk.expected_total_cost)
+
+
+# --------------------------------------------------------------------------------------------
+# Nothing to add, the closest plan, what holds the cost up
+
+def test_a_heat_already_inside_at_the_target_odds_gets_an_empty_plan() -> None:
+    book = mn_book([0.80, 0.95])
+    heat = Heat("U3", "Mn", W, Analysis({"Mn": 0.875}))
+    risk = RiskPlanner(book).plan(heat, 0.95, draws=500)
+    assert risk.reached and risk.plan.additions == () and "nothing to add" in risk.plan.notes[-1]
+    # Asked to, it pulls towards the aims (this grade has none: the cheapest inside is still nothing).
+    assert RiskPlanner(book).plan(heat, 0.95, draws=500, to_aims=True).plan.total_cost == 0.0
+
+
+def test_the_closest_plan_adds_nothing_that_cannot_help() -> None:
+    # SAE 1045 with C 0.55 % and Mn 1.10 %, both over their maximum, in the ladle: only dilution
+    # could lower them, and no dilution material may go in at the ladle. Ferrosilicon, aluminium,
+    # nickel or copper would only thin the bath by their own weight (common practice: a melter
+    # never adds an alloy to lower another element).
+    book = load_recipes(None)
+    heat = load_heat(heat_path("KB-24101"), book)
+    pct = dict(heat.analysis.pct, C=0.55, Mn=1.10)
+    heat = heat.with_changes(analysis=Analysis(pct, heat.analysis.below_limit))
+    risk = RiskPlanner(book).plan(heat, draws=300)
+    assert risk.plan.status == "closest"
+    assert {(v.element, v.limit) for v in risk.plan.violations} == {("C", "max"), ("Mn", "max")}
+    assert risk.plan.additions == ()
+    assert any(note.startswith("left out ") for note in risk.plan.notes)
+
+
+def test_what_holds_the_cost_up_is_money_a_re_solve_confirms() -> None:
+    book = load_recipes(None)
+    planner = RiskPlanner(book)
+    shown = 0
+    for path in DEMO_HEATS:
+        heat = load_heat(path, book)
+        assert not any(b.name.endswith("aim") for b in planner.plan(heat, draws=300).plan.binding)
+        risk = planner.plan(heat, options=PlanOptions(use_aim=False), draws=300, on_paper=True)
+        grade = book.grade(heat.grade)
+        for binding in risk.plan.binding:
+            symbol, side, *_ = binding.name.split()
+            if side not in ("min", "max") or symbol not in grade.window_pct:
+                continue
+            low, high = grade.window_pct[symbol]
+            moved = replace(grade, window_pct=MappingProxyType(
+                {**grade.window_pct, symbol: (low - 0.01, high) if side == "min" else (low, high + 0.01)}))
+            again = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: moved}))).plan(
+                heat, PlanOptions(use_aim=False))
+            # The saving of 0.01 % more room, planned again from scratch, within 5 %.
+            assert risk.plan.total_cost - again.total_cost == pytest.approx(binding.saving, rel=0.05), binding
+            shown += 1
+    assert shown >= 3
