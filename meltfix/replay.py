@@ -61,6 +61,7 @@ from meltfix.numbers import content_text, limit_text, unit_of
 from meltfix.planner import LIMIT_TOL_PCT, Addition, Plan, Planner, PlanOptions, limit_checks
 from meltfix.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require, table,
                              text)
+from meltfix.risk import RiskPlanner
 
 if TYPE_CHECKING:  # a replay from a file never opens the logbook
     from meltfix.logbook import HeatHistory
@@ -457,7 +458,8 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
            planner: Planner | None = None) -> tuple[ReplayStep, ...]:
     """Walk the recorded heat sample by sample (see the module's docstring)."""
     validate_record(record, book)
-    planner = planner or Planner(book)
+    # Each sample is planned as the shop plans today: to its target odds (meltfix.risk).
+    to_target = RiskPlanner(book, planner or Planner(book))
     grade = book.grade(record.grade)
     steps: list[ReplayStep] = []
     bath_kg = record.bath_kg
@@ -478,7 +480,7 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
         plan_error = ""
         if not inside:
             try:
-                plan = planner.plan(heat, options)
+                plan = to_target.plan(heat, options=options).plan
             except InputError as exc:
                 plan_error = exc.message
         made = [a for a in record.additions

@@ -11,6 +11,7 @@ from meltfix.heat import Heat
 
 if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
     from meltfix.planner import Plan
+    from meltfix.risk import RiskPlan
 
 
 @dataclass
@@ -20,6 +21,8 @@ class PlanReady(Message):
     revision: int
     heat: Heat
     plan: Plan
+    risk: RiskPlan | None = None
+    """The plan's odds against the shop's target (the plan is ``risk.plan``)."""
 
 
 @dataclass

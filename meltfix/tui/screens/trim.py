@@ -45,7 +45,8 @@ from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
 from meltfix.tui.widgets.plan_view import PlanView
 
 if TYPE_CHECKING:
-    from meltfix.planner import Plan, Planner
+    from meltfix.planner import Plan
+    from meltfix.risk import RiskPlan, RiskPlanner
     from meltfix.spectro import ImportResult, SpectroSample
 
 _FIELD_NAMES = {BATH: "bath kg", CAPACITY: "vessel kg", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
@@ -105,13 +106,15 @@ class TrimScreen(Screen[None]):
         self.revision = 0
         self.current: tuple[Heat, Plan] | None = None
         """The heat and plan for exactly the inputs on screen, once the worker has made it."""
+        self.current_risk: RiskPlan | None = None
+        """The current plan's odds against the shop's target."""
         self.accepted: tuple[int, Plan] | None = None
         """The logbook's id of the plan accepted for this heat, and that plan."""
         self.imported: tuple[SpectroSample, dict[str, str]] | None = None
         """The spectrometer sample last read into the analysis, and the cells it filled."""
         self.plannable = False
         """The inputs hold together and the planner accepted them (a plan is, or is about to be, current)."""
-        self._planner: Planner | None = None
+        self._planner: RiskPlanner | None = None
         self._inputs: HeatInputs | None = None
         self._binding_state: tuple[bool, bool] | None = None
 
@@ -189,23 +192,24 @@ class TrimScreen(Screen[None]):
     @work(thread=True, exclusive=True, exit_on_error=False, group="planner")
     def plan_in_background(self, heat: Heat, revision: int) -> None:
         if self._planner is None:
-            from meltfix.planner import Planner  # the solver loads here, after the first frame
+            from meltfix.risk import RiskPlanner  # the solver loads here, after the first frame
 
-            self._planner = Planner(self.book)
+            self._planner = RiskPlanner(self.book)
         try:
-            plan = self._planner.plan(heat)
+            risk = self._planner.plan(heat)
         except InputError as exc:
             self.post_message(PlanFailed(revision, exc.message))
             return
         if not get_current_worker().is_cancelled:
-            self.post_message(PlanReady(revision, heat, plan))
+            self.post_message(PlanReady(revision, heat, risk.plan, risk))
 
     @on(PlanReady)
     def _plan_ready(self, message: PlanReady) -> None:
         if message.revision != self.revision:
             return  # made for inputs that have changed since
         self.current = (message.heat, message.plan)
-        self.query_one(PlanView).show(message.heat, message.plan, self.book.grade(message.heat.grade))
+        self.current_risk = message.risk
+        self.query_one(PlanView).show(message.heat, message.plan, self.book.grade(message.heat.grade), message.risk)
 
     @on(PlanFailed)
     def _plan_failed(self, message: PlanFailed) -> None:
@@ -451,7 +455,8 @@ class TrimScreen(Screen[None]):
         try:
             path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now(),
                                 sample=None if self.imported is None else self.imported[0].sample_id,
-                                plan_number=self.accepted[0] if self.accepted and self.accepted[1] is plan else None)
+                                plan_number=self.accepted[0] if self.accepted and self.accepted[1] is plan else None,
+                                odds=None if self.current_risk is None else self.current_risk.odds.heat)
         except OSError as exc:
             self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
             return

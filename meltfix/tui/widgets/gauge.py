@@ -2,7 +2,8 @@
 
 Each line reads ``Mn  0.620 → 0.880  0.75 ─═══┿═●══─ 1.00``: the rail spans the window (═) with a
 margin either side (─); ``┿`` marks the aim, ``○`` where the bath is now, ``●`` where the plan
-takes it. A marker beyond the rail's reach sits at its end as an arrow. On a narrow panel the
+takes it. A marker beyond the rail's reach sits at its end as an arrow. A limit the plan is less
+than 99 % sure to land inside shows its odds after the rail. On a narrow panel the
 min and max labels give way to a longer rail (the analysis grid shows the window in figures).
 """
 
@@ -34,18 +35,35 @@ class GaugeRow:
     aim_pct: float | None
     now_pct: float | None
     after_pct: float | None
+    odds: float | None = None
+    """Probability [0..1] that the plan lands inside this row's window (its weaker limit)."""
 
 
-def gauge_rows(grade: Grade, now_pct: Mapping[str, float], after_pct: Mapping[str, float]) -> list[GaugeRow]:
-    """A row per element of the grade's window, then one per index (carbon equivalent, ...)."""
+_SHOW_ODDS_BELOW = 0.99  # a gauge shows its odds only when they are worth a look
+_ODDS = 5  # width of " 87%"-style odds after the rail
+
+
+def gauge_rows(grade: Grade, now_pct: Mapping[str, float], after_pct: Mapping[str, float],
+               odds: Mapping[str, float] | None = None) -> list[GaugeRow]:
+    """A row per element of the grade's window, then one per index (carbon equivalent, ...);
+    ``odds`` by limit ("Mn min") give each row the odds of its weaker limit."""
+    def weaker(name: str) -> float | None:
+        found = [odds[label] for label in (f"{name} min", f"{name} max") if odds and label in odds]
+        return min(found) if found else None
+
     rows = [GaugeRow(symbol, *grade.window_pct[symbol], grade.aim_pct.get(symbol), now_pct.get(symbol),
-                     after_pct.get(symbol, 0.0))
+                     after_pct.get(symbol, 0.0), weaker(symbol))
             for symbol in grade.elements]
     for index in grade.indices:
         low = index.min_value or 0.0
         high = index.max_value if index.max_value is not None else 2 * max(low, index.value(after_pct))
-        rows.append(GaugeRow(index.name, low, high, None, index.value(now_pct), index.value(after_pct)))
+        rows.append(GaugeRow(index.name, low, high, None, index.value(now_pct), index.value(after_pct),
+                             weaker(index.name)))
     return rows
+
+
+def _doubtful(row: GaugeRow) -> bool:
+    return row.odds is not None and row.odds < _SHOW_ODDS_BELOW
 
 
 def _cell(value: float, start: float, stop: float, cells: int) -> int:
@@ -93,6 +111,8 @@ def gauge_line(row: GaugeRow, rail_cells: int, labels: bool = True, name_width: 
                   (f" {limit_text(row.symbol, high):<{_LABEL}}", "$foreground-muted")]
     else:
         parts += rail
+    if _doubtful(row):
+        parts.append((f"{100 * row.odds:>{_ODDS - 1}.0f}%", "bold $text-warning"))  # type: ignore[operator]
     return Content.assemble(*parts)
 
 
@@ -115,7 +135,8 @@ class ChemistryGauges(Widget):
 
     def render(self) -> Content:
         name_width = max([3, *(len(row.symbol) + 1 for row in self._rows)])
-        free = self.size.width - _FIXED - name_width
+        # Room for the odds only when a row shows them.
+        free = self.size.width - _FIXED - name_width - (_ODDS if any(map(_doubtful, self._rows)) else 0)
         labels = free - _LABELS >= _RAIL_MIN
         rail_cells = max(6, free - (_LABELS if labels else 0))
         return Content("\n").join(gauge_line(row, rail_cells, labels, name_width) for row in self._rows)

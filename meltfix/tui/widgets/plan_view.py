@@ -23,6 +23,7 @@ from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
 
 if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
     from meltfix.planner import Plan
+    from meltfix.risk import RiskPlan
 
 
 class PlanView(Vertical):
@@ -51,13 +52,18 @@ class PlanView(Vertical):
             yield Static(id="plan-cautions-text")
 
     # -- what the screen calls ------------------------------------------------------------
-    def show(self, heat: Heat, plan: Plan, grade: Grade) -> None:
-        """Show a plan that matches the inputs on screen."""
+    def show(self, heat: Heat, plan: Plan, grade: Grade, risk: RiskPlan | None = None) -> None:
+        """Show a plan that matches the inputs on screen (with its odds against the target, when given)."""
         self.plan, self.is_current = plan, True
         self.remove_class("-stale")
         self.set_class(plan.status != "optimal", "-closest")
-        if plan.status == "optimal":
-            status = Content.assemble(("● current", "bold $text-success"), " · every window met")
+        odds = "" if risk is None else f"{100 * risk.odds.heat:.0f} % odds"
+        if plan.status == "optimal" and (risk is None or risk.reached):
+            status = Content.assemble(("● current", "bold $text-success"), " · every window met",
+                                      f" · {odds}" if odds else "")
+        elif plan.status == "optimal" and risk is not None:
+            status = Content.assemble(("▲ current · met on paper", "bold $text-warning"),
+                                      f" · {odds}, short of the {100 * risk.target:g} % target")
         else:
             status = Content.assemble(("▲ current · closest plan", "bold $text-error"),
                                       " · the grade cannot be met, see why below")
@@ -68,7 +74,8 @@ class PlanView(Vertical):
         out = self.query_one("#plan-out-of-reach", Static)
         out.update(_out_of_reach(plan))
         out.display = bool(plan.violations)
-        self.query_one(ChemistryGauges).show(gauge_rows(grade, heat.analysis.pct, plan.predicted_pct))
+        self.query_one(ChemistryGauges).show(gauge_rows(grade, heat.analysis.pct, plan.predicted_pct,
+                                                        None if risk is None else risk.odds.limits))
         binding = self.query_one("#plan-binding", Static)
         binding.update(_binding(plan))
         binding.display = bool(plan.binding)
