@@ -15,6 +15,7 @@ from textual.widgets import Input, Static
 from meltfix.analysis import parse_reading
 from meltfix.heat import Heat
 from meltfix.planner import Planner
+from meltfix.risk import RiskPlanner
 from meltfix.tui.app import make_app
 from meltfix.numbers import kg_text
 from meltfix.tui.palette import ScreenActions
@@ -40,9 +41,9 @@ async def test_typed_analysis_gives_the_core_planners_plan(demo_book, demo_heat,
         await settle(pilot)
         view = screen.query_one(PlanView)
         typed = parse_reading("0,71", "test", "Mn").pct
-        expected = Planner(demo_book).plan(demo_heat.with_changes(
+        expected = RiskPlanner(demo_book).plan(demo_heat.with_changes(
             analysis=type(demo_heat.analysis)({**demo_heat.analysis.pct, "Mn": typed},
-                                              demo_heat.analysis.below_limit)))
+                                              demo_heat.analysis.below_limit))).plan  # to the shop's target odds
         assert view.is_current
         assert view.plan is not None and view.plan.to_json() == expected.to_json()
         assert "current" in _shown(screen.query_one("#plan-status", Static))
@@ -177,7 +178,7 @@ async def test_materials_switched_off_and_locked_for_this_heat(demo_book, demo_h
         await settle(pilot)
         view = app.screen.query_one(PlanView)
         heat = demo_heat.with_changes(switched_off=frozenset({first}), locked_kg={second: 40.0})
-        expected = Planner(demo_book).plan(heat)
+        expected = RiskPlanner(demo_book).plan(heat).plan
         assert view.is_current and view.plan.to_json() == expected.to_json()
         kg = {a.material: a.kg for a in view.plan.additions}
         assert first not in kg and kg[second] == 40.0
