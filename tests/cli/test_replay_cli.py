@@ -48,6 +48,8 @@ def test_json_with_own_recipes_matches_hand_arithmetic(tmp_path: Path, capsys: p
     (folder / "grades").mkdir(parents=True)
     (folder / "materials.toml").write_text(
         '[[material]]\nname = "Mn metal"\nprice_per_kg = 3.0\ncomposition = { Mn = 100.0 }\n', encoding="utf-8")
+    # No scatter: the plan to the target odds is the plan on paper, so the arithmetic below holds.
+    (folder / "shop.toml").write_text("[scatter]\nrecovery = 0\nbath = 0\nanalysis = 0\n", encoding="utf-8")
     (folder / "grades" / "g.toml").write_text('name = "G"\n[window]\nMn = [0.5, 1.0]\n', encoding="utf-8")
     record = tmp_path / "two.toml"
     record.write_text(
