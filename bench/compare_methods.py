@@ -36,14 +36,18 @@ from rich.table import Table
 from meltfix.analysis import Analysis
 from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
-from meltfix.handmethod import hand_plan
-from meltfix.heat import Heat
-from meltfix.planner import LIMIT_TOL_PCT, PlanOptions, Planner
+from meltfix.handmethod import HandPlan, hand_plan
+from meltfix.heat import Heat, stage_material
+from meltfix.planner import LIMIT_TOL_PCT, PlanOptions
 from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_quantile
 from meltfix.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from population import population  # bench/ is on sys.path when this file runs as a script
 
 METHODS = ("meltfix", "hand")
+# Draws behind each meltfix plan's odds: fewer than `solve`'s 2,000, for speed; the benchmark's own
+# Monte Carlo below judges every plan on fresh draws anyway.
+_PLAN_DRAWS = 500
 
 
 # ---------------------------------------------------------------------------------------------
@@ -85,6 +89,9 @@ class Draws:
     """Draws truly inside every window after at most one correction."""
     correction_cost_per_t: float
     """Sum over draws of the correction's cost [currency/t]."""
+    total_cost_per_t: float
+    """Sum over draws of what the heat cost [currency/t]: the first additions, the correction's
+    additions and, when corrected, the shop's correction_cost."""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -92,7 +99,7 @@ class Draws:
 
 
 _BOOK: RecipeBook
-_PLANNER: Planner
+_PLANNER: RiskPlanner
 _OPTIONS: PlanOptions
 _HEATS: list[Heat]
 
@@ -103,7 +110,7 @@ def _start_worker(recipes: str | None, n_heats: int, seed: int, options: PlanOpt
     # nothing of its own, so its descriptor 1 goes to the null device and the tables stay clean.
     os.dup2(os.open(os.devnull, os.O_WRONLY), 1)
     _BOOK = load_recipes(recipes)
-    _PLANNER = Planner(_BOOK)
+    _PLANNER = RiskPlanner(_BOOK)
     _OPTIONS = options
     _HEATS = population(_BOOK, n_heats, seed)
 
@@ -117,15 +124,30 @@ def _kg_vector(additions: Iterable[tuple[str, float]]) -> np.ndarray:
 
 
 def _meltfix(index: int, heat: Heat) -> Outcome:
-    plan = _PLANNER.plan(heat, _OPTIONS)
+    plan = _PLANNER.plan(heat, options=_OPTIONS, draws=_PLAN_DRAWS, seed=index).plan  # to the shop's target odds
     return Outcome(index, heat.grade, plan.status == "optimal", plan.total_cost, plan.final_kg,
                    _kg_vector((a.material, a.kg) for a in plan.additions),
                    tuple(f"{v.element} {v.limit}" for v in plan.violations),
                    tuple(v.reason for v in plan.violations), plan.temperature_drop_c)
 
 
+def hand_margins_pct(heat: Heat, plan: HandPlan, book: RecipeBook) -> dict[str, float]:
+    """The margin the shop keeps inside each limit [wt %], for the melter to keep too: z sigma, sigma
+    of each limit at the melter's plan without margins (meltfix.risk's linearisation), z for each
+    limit at risk reaching the k-th root of the shop's target."""
+    target = book.settings.target_odds if isinstance(book.settings.target_odds, float) else 0.95
+    used = [(stage_material(heat, book, a.material), a.kg) for a in plan.additions]
+    grade = book.grade(heat.grade)
+    sigma = limit_sigma_pct(heat, grade, used, book.settings.scatter, plan.checks)
+    margins = np.array([c.margin_pct for c in plan.checks])
+    at_risk = max(int(np.sum(closed_form_odds(margins, sigma) < 0.999)), 1)
+    z = float(normal_quantile(target ** (1.0 / at_risk)))
+    return {f"{c.element} {c.limit}": z * float(sd) for c, sd in zip(plan.checks, sigma)}
+
+
 def _hand(index: int, heat: Heat) -> Outcome:
-    plan = hand_plan(heat, _BOOK)
+    # A competent melter: first the usual sheet, then again keeping the shop's margin inside each limit.
+    plan = hand_plan(heat, _BOOK, margins_pct=hand_margins_pct(heat, hand_plan(heat, _BOOK), _BOOK))
     return Outcome(index, heat.grade, plan.in_spec, plan.total_cost, plan.final_kg,
                    _kg_vector((a.material, a.kg) for a in plan.additions),
                    tuple(f"{c.element} {c.limit}" for c in plan.checks if c.margin_pct < -LIMIT_TOL_PCT),
@@ -172,6 +194,7 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
         to_correct = np.flatnonzero(~limits.inside(read))
         final = in_first.copy()
         cost_per_t = 0.0
+        total_per_t = float(np.sum(plan.cost / (bath_kg / 1000.0)))
         for d in to_correct:
             kg = _correction_kg(method, heat, plan, {s: round(float(read[d, k]), 4) for k, s in enumerate(symbols)
                                                        if s in watched})
@@ -179,7 +202,9 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
             final_kg = bath_kg[d] + dissolved_kg.sum()
             final[d] = limits.inside(100.0 * (element_kg[d] + dissolved_kg) / final_kg)
             cost_per_t += float(prices @ kg) / (final_kg / 1000.0)
-        result[method] = Draws(int(in_first.sum()), len(to_correct), int(final.sum()), cost_per_t)
+            total_per_t += book.settings.correction_cost / (final_kg / 1000.0)
+        result[method] = Draws(int(in_first.sum()), len(to_correct), int(final.sum()), cost_per_t,
+                               total_per_t + cost_per_t)
     return result
 
 
@@ -365,7 +390,10 @@ def tables(results: Results, book: RecipeBook, currency: str) -> list[Table]:
         mc.add_row(label, *(_pct(sum(getattr(x[m], name) for x in d), total) for m in METHODS))
     mc.add_row(f"mean correction cost [{currency}/t per heat]",
                *(f"{sum(x[m].correction_cost_per_t for x in d) / total:.2f}" for m in METHODS))
+    mc.add_row(f"expected total cost [{currency}/t per heat]",
+               *(f"{sum(x[m].total_cost_per_t for x in d) / total:.2f}" for m in METHODS))
     out.append(mc)
+    out.append(_by_family(results, book, currency))
 
     speed = Table(title="Throughput (heats planned per second)", title_justify="left")
     for name, justify in (("method", "left"), ("processes", "right"), ("heats", "right"), ("seconds", "right"),
@@ -378,6 +406,28 @@ def tables(results: Results, book: RecipeBook, currency: str) -> list[Table]:
                   f"{n / results.seconds_all:,.0f}")
     out.append(speed)
     return out
+
+
+def _by_family(results: Results, book: RecipeBook, currency: str) -> Table:
+    """What a shop pays, per grade family: heats truly inside after the first additions, corrections
+    per heat, expected total cost per tonne (additions, corrections' additions, correction_cost)."""
+    table = Table(title=f"By grade family, in the uncertain world (correction_cost "
+                        f"{book.settings.correction_cost:,.0f} {currency} a correction)", title_justify="left")
+    for name in ("family", "heats", "inside first: meltfix", "hand", "corrections/heat: meltfix", "hand",
+                 f"total {currency}/t: meltfix", "hand"):
+        table.add_column(name, justify="left" if name == "family" else "right")
+    families: dict[str, list[int]] = defaultdict(list)
+    for i, outcome in enumerate(results.outcomes["meltfix"]):
+        families[book.grade(outcome.grade).family].append(i)
+    for family, members in sorted(families.items()):
+        draws = len(members) * results.n_draws
+        sums = {m: {f: sum(getattr(results.draws[i][m], f) for i in members)
+                    for f in ("in_spec_first", "corrected", "total_cost_per_t")} for m in METHODS}
+        table.add_row(family, f"{len(members)}",
+                      *(f"{100 * sums[m]['in_spec_first'] / draws:.1f} %" for m in METHODS),
+                      *(f"{sums[m]['corrected'] / draws:.3f}" for m in METHODS),
+                      *(f"{sums[m]['total_cost_per_t'] / draws:.2f}" for m in METHODS))
+    return table
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from meltfix.analysis import Analysis
-from meltfix.heat import Heat
+from meltfix.heat import Heat, needed_elements
 from meltfix.recipes import RecipeBook
 
 
@@ -70,6 +70,9 @@ ROUTES: dict[str, Route] = {
                                              "Ni": (0.03, 0.40), "Cu": (0.08, 0.40), "Mg": (0.001, 0.0)}),
 }
 
+_UNREPORTED_PCT = 0.005
+"""An element a grade limits but the route does not list is reported below this detection limit
+[wt %] (a residual nobody adds; common practice for a spark spectrometer's lower limits)."""
 _BATH_SPREAD = 0.03
 """Relative sd of the tapped bath around the route's usual heat (log-normal)."""
 _LEAST_FREE = 0.01
@@ -110,6 +113,10 @@ def population(book: RecipeBook, n_heats: int, seed: int) -> list[Heat]:
         spread = np.array([route.first_sample[s][1] for s in symbols])
         pct = np.round(median * np.exp(spread * rng.standard_normal(len(symbols))), 4)
         below = frozenset(s for s, (_, sd) in route.first_sample.items() if sd == 0)
+        unreported = sorted(needed_elements(book.grade(name)) - set(symbols))
+        symbols += unreported
+        pct = np.append(pct, [_UNREPORTED_PCT] * len(unreported))
+        below |= frozenset(unreported)
         capacity_kg = route.vessel_t * 1000.0
         bath_kg = min(round(route.bath_t * 1000.0 * float(np.exp(_BATH_SPREAD * rng.standard_normal())), -1),
                       capacity_kg * (1.0 - _LEAST_FREE))

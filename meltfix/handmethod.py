@@ -7,8 +7,10 @@ carries of later elements (carbon in ferromanganese) is seen when their turn com
 carries of earlier ones on the next pass. Passes repeat until nothing more is needed. A residual
 over its maximum is diluted with clean material at the start of each pass. Stock is respected
 (when the usual alloy runs out the next one on the list is used) and the trim stops when the vessel
-is full. Derived indices (carbon equivalents) and the temperature limit are not planned for: a
-melter checks them afterwards, which is what :attr:`HandPlan.checks` does.
+is full. When manganese and silicon are both short, silicomanganese (a material carrying both) goes
+first for manganese. A competent melter keeps the same margin inside each limit that the shop's
+planner keeps (``margins_pct``). Derived indices (carbon equivalents) and the temperature limit
+are not planned for: a melter checks them afterwards, which is what :attr:`HandPlan.checks` does.
 
 Everything here is common practice, from no published source; the rules are spelled out in
 :class:`HandRules` so that a comparison with the planner can say exactly what it compared against.
@@ -159,7 +161,8 @@ def _step_up(kg: float, step_kg: float) -> float:
     return math.ceil(kg / step_kg - 1e-9) * step_kg if step_kg > 0 else kg
 
 
-def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRules) -> bool:
+def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRules,
+            margins_pct: Mapping[str, float]) -> bool:
     """Dilute every residual over its maximum, the one needing most material first."""
     changed = False
     spent: set[str] = set()  # clean materials whose stock is gone (or below their minimum addition)
@@ -168,9 +171,10 @@ def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRul
         needs: list[tuple[float, Material]] = []
         for symbol, (low, high) in grade.window_pct.items():
             now = pct.get(symbol, 0.0)
-            if now <= high:
+            ceiling = high - margins_pct.get(f"{symbol} max", 0.0)
+            if now <= ceiling:
                 continue
-            target = high - rules.dilution_margin * (high - low)
+            target = min(high - rules.dilution_margin * (high - low), ceiling)
             options = [m for m in clean if m.name not in spent and trim.stock_left_kg(m) > 0
                        and m.yield_pct(symbol) < m.mass_yield * target]
             if not options:
@@ -193,10 +197,18 @@ def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRul
     return changed
 
 
-def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], rules: HandRules) -> bool:
-    """Bring ``symbol`` up to its aim (mid-window without one) with the usual alloy; True if anything went in."""
+def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], rules: HandRules,
+           margins_pct: Mapping[str, float]) -> bool:
+    """Bring ``symbol`` up to its aim (mid-window without one, and at least the margin inside its
+    minimum) with the usual alloy; True if anything went in."""
     low, high = grade.window_pct[symbol]
-    target = grade.aim_pct.get(symbol, (low + high) / 2.0)
+    middle = (low + high) / 2.0
+    low = min(low + margins_pct.get(f"{symbol} min", 0.0), middle)
+    target = max(grade.aim_pct.get(symbol, middle), low)
+    if symbol == "Mn" and "Si" in grade.window_pct:
+        si_low = grade.window_pct["Si"][0] + margins_pct.get("Si min", 0.0)
+        if trim.predicted(trim.low_analysis)[1].get("Si", 0.0) < si_low:  # both short: silicomanganese first
+            alloys = sorted(alloys, key=lambda m: m.yield_pct("Si") <= 0)
     changed = False
     for material in alloys:
         final_kg, pct = trim.predicted(trim.low_analysis)
@@ -233,8 +245,11 @@ def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], r
     return changed
 
 
-def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> HandPlan:
-    """Trim ``heat`` the way a melter does by hand (see the module notes). Raises InputError on a bad heat."""
+def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules(),
+              margins_pct: Mapping[str, float] | None = None) -> HandPlan:
+    """Trim ``heat`` the way a melter does by hand (see the module notes), keeping ``margins_pct``
+    [wt %] inside each limit by label ("Mn min"). Raises InputError on a bad heat."""
+    margins_pct = margins_pct or {}
     validate_heat(heat, book)
     grade = checked_grade(heat, book.grade(heat.grade))
     usable = usable_materials(heat, book)
@@ -243,11 +258,11 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules()) -> H
     sheet = [(symbol, usual_materials(grade, usable, symbol)) for symbol in sheet_order(grade)]
     passes = 0
     for passes in range(1, rules.max_passes + 1):
-        changed = _dilute(trim, grade, clean, rules)
+        changed = _dilute(trim, grade, clean, rules, margins_pct)
         for symbol, alloys in sheet:
             if trim.full:
                 break
-            changed |= _raise(trim, grade, symbol, alloys, rules)
+            changed |= _raise(trim, grade, symbol, alloys, rules, margins_pct)
         if not changed or trim.full:
             break
     else:

@@ -223,12 +223,15 @@ class RiskPlanner:
         The least-violation plan will use any alloy as a few kilograms of diluent (ferrosilicon or
         aluminium to take carbon down by a thousandth); a melter adds only what acts on the missed
         limits: dilution materials against a maximum, carriers of the element against a minimum.
-        Materials that keep another limit inside (a minimum the plan meets with nothing to spare) stay.
+        Materials that keep another limit inside (a minimum the plan meets with nothing to spare) or
+        lift an element towards its aim stay.
         """
         grade = checked_grade(heat, self.book.grade(heat.grade))
         missed = [v for v in closest.plan.violations]
         # The minimums the plan works for: missed or met with nothing to spare.
         needed = {c.element for c in closest.plan.checks if c.limit == "min" and c.margin_pct <= 1e-6}
+        # ... and the aims the plan pulls towards from below (an alloy that lifts Mn to its aim acts).
+        needed |= {s for s, aim in grade.aim_pct.items() if options.use_aim and heat.analysis.get(s) < aim}
         indices = {ix.name: ix for ix in grade.indices}
 
         def acts(name: str) -> bool:

@@ -1,0 +1,58 @@
+"""How much longer a plan to the shop's target odds takes than the plan on paper: prints figures, asserts nothing.
+
+    python bench/odds_speed.py [--repeat 5] [--draws 2000]
+
+For each demo heat: the median time of the plan on paper (the planner alone), of the same plan
+with its odds judged (`solve --on-paper`: the plan and a Monte Carlo of 2,000 draws), and of the
+risk-aware plan (`solve`, meltfix.risk), and the risk-aware plan's time as a ratio to each. The
+issue's goal: at most 3x the plan on paper.
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import time
+from collections.abc import Callable
+
+from meltfix.heat import load_heat
+from meltfix.paths import demo_dir
+from meltfix.planner import Planner
+from meltfix.recipes import load_recipes
+from meltfix.risk import RiskPlanner
+
+
+def median_ms(run: Callable[[], object], repeat: int) -> float:
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        run()
+        times.append((time.perf_counter() - start) * 1000.0)
+    return statistics.median(times)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--repeat", type=int, default=5)
+    parser.add_argument("--draws", type=int, default=2000)
+    args = parser.parse_args()
+    book = load_recipes(None)
+    planner = Planner(book)
+    risk = RiskPlanner(book, planner)
+    heats = [load_heat(path, book) for path in sorted((demo_dir() / "heats").glob("*.toml"))]
+    planner.plan(heats[0])  # the first solve pays the solver's start-up
+    print(f"{'heat':<10}{'paper ms':>10}{'+odds ms':>10}{'target ms':>11}{'x paper':>9}{'x +odds':>9}  odds")
+    ratios = []
+    for heat in heats:
+        paper = median_ms(lambda: planner.plan(heat), args.repeat)
+        judged = median_ms(lambda: risk.plan(heat, draws=args.draws, on_paper=True), args.repeat)
+        to_target = median_ms(lambda: risk.plan(heat, draws=args.draws), args.repeat)
+        odds = risk.plan(heat, draws=args.draws).odds.heat
+        ratios.append(to_target / paper)
+        print(f"{heat.heat_id:<10}{paper:>10.1f}{judged:>10.1f}{to_target:>11.1f}{to_target / paper:>9.1f}"
+              f"{to_target / judged:>9.1f}  {100 * odds:.1f} %")
+    print(f"median ratio to the plan on paper: {statistics.median(ratios):.1f}x (goal: at most 3x)")
+
+
+if __name__ == "__main__":
+    main()
