@@ -245,7 +245,8 @@ class RiskPlanner:
             return False
 
         before = {(v.element, v.limit) for v in missed}
-        off, plan = frozenset(), closest.plan
+        off: frozenset[str] = frozenset()
+        plan = closest.plan
         for _ in range(3):  # leaving some out can bring another diluent in: leave that out too
             idle = frozenset(a.material for a in plan.additions if not acts(a.material))
             if not idle:
