@@ -2,12 +2,14 @@
 
     python3 bench/plan_speed.py [--heats 1000] [--repeat 10] [--seed 7] [--sizes 25,100,200,400]
 
-1. Per plan on each demo heat, as an LP (--continuous) and with whole packs: the planner's time
-   against the floor, HiGHS itself solving the same problem on a hot model of its own (the heat's
-   bounds and costs written, one run: the MIP when the problem has integers, else the LP).
+1. Per plan on each demo heat, as an LP (loose amounts, minimum additions left out) and with whole
+   packs: the planner's time against the floor, HiGHS itself solving the same problem on a hot model
+   of its own (the heat's bounds and costs written, one run: the MIP when the problem has integers,
+   else the LP). Heats that cannot be brought in cost the planner two more phases (the closest plan).
 2. A batch of varied heats (each demo heat with its bath and analysis shaken, seeded; some cannot
-   be brought in and get closest plans), with packs: one process, and `meltfix solve --jobs 2` on
-   the same heats written as files, against the floor's time for the same heats.
+   be brought in and get closest plans), with packs: one process, and `meltfix solve` with --jobs 1
+   and 2 on the same heats written as files (plans alone with --on-paper --draws 1, and as by
+   default, each plan judged by its odds), against the floor's time for the same heats.
 3. Plan time with packs at 25, 100, 200 and 400 materials (the demo book's materials repeated with
    shaken prices and contents), against the time budget per plan (shop.toml plan_time_limit_s).
 
@@ -82,7 +84,9 @@ class Floor:
         self.book = book
         self.models: dict[tuple[str, str, bool, bool], HotModel] = {}
 
-    def seconds(self, heat: Heat, options: PlanOptions) -> float:
+    def seconds(self, heat: Heat, options: PlanOptions, integers: bool = True) -> float:
+        """One solve of ``heat``'s problem: branch and bound when it has integers (and ``integers``),
+        else the LP."""
         key = (heat.grade, heat.stage, options.continuous, options.use_aim)
         if key not in self.models:
             self.models[key] = HotModel(ModelShape(self.book, self.book.grade(heat.grade), *key[1:]))
@@ -91,7 +95,7 @@ class Floor:
         load = model.shape.load(heat, penalty)
         start = time.perf_counter()
         model.load(load)
-        if load.integrality.any():
+        if integers and load.integrality.any():
             model.solve_mip(60.0, options.mip_rel_gap, load.integrality > 0)
         else:
             model.solve_lp()
@@ -113,13 +117,18 @@ def per_plan(book: RecipeBook, repeat: int) -> None:
     planner, floor = Planner(book), Floor(book)
     base = demo_heats(book)
     print(f"1. per plan, {len(book.materials)} materials, {len(base)} demo heats x {repeat}")
-    for name, options in (("LP (--continuous)", PlanOptions(continuous=True)), ("whole packs", PlanOptions())):
+    # The LP: loose amounts and no minimum additions, so the plan is one linear programme.
+    lp_book = replace(book, materials=tuple(replace(m, min_kg=0.0) for m in book.materials))
+    lp_planner, lp_floor = Planner(lp_book), Floor(lp_book)
+    for name, options, ours_of, floor_of, integers in (
+            ("LP (loose, no minimums)", PlanOptions(continuous=True), lp_planner, lp_floor, False),
+            ("whole packs", PlanOptions(), planner, floor, True)):
         ours, hers = [], []
         for heat in base:
-            planner.plan(heat, options), floor.seconds(heat, options)  # the first of each pays the build
+            ours_of.plan(heat, options), floor_of.seconds(heat, options, integers)  # the first pays the build
             for _ in range(repeat):  # interleaved, so a burst of load hits both alike
-                ours.append(timed(planner, heat, options))
-                hers.append(floor.seconds(heat, options))
+                ours.append(timed(ours_of, heat, options))
+                hers.append(floor_of.seconds(heat, options, integers))
         ratio = statistics.median(ours) / statistics.median(hers)
         print(f"   {name:<18} planner {ms(ours)}")
         print(f"   {'':<18} floor   {ms(hers)}   ratio of medians {ratio:.2f} "
@@ -147,12 +156,14 @@ def batch(book: RecipeBook, count: int, seed: int) -> None:
             path.write_text(heat_to_toml(heat), encoding="utf-8")
             paths.append(str(path))
         code = "import sys; from meltfix.cli import main; sys.exit(main())"
-        for jobs in (1, 2):
+        # --on-paper --draws 1: the plans alone; by default every plan is also judged by its odds.
+        for jobs, extra in ((1, ["--on-paper", "--draws", "1"]), (2, ["--on-paper", "--draws", "1"]), (1, []), (2, [])):
             start = time.perf_counter()
-            subprocess.run([sys.executable, "-c", code, "solve", *paths, "--json", "--jobs", str(jobs)],
+            subprocess.run([sys.executable, "-c", code, "solve", *paths, "--json", "--jobs", str(jobs), *extra],
                            stdout=subprocess.DEVNULL, check=False)
             wall = time.perf_counter() - start
-            print(f"   meltfix solve --jobs {jobs} (whole process): {wall:6.2f} s   ratio to the floor {wall / floor_s:.2f}")
+            print(f"   meltfix solve --jobs {jobs} {' '.join(extra) or '(odds by default)'}, whole process: "
+                  f"{wall:6.2f} s   ratio to the floor {wall / floor_s:.2f}")
 
 
 def sizes(book: RecipeBook, counts: list[int], heats: int, seed: int) -> None:
