@@ -1,4 +1,4 @@
-"""The planner's linear model for one grade, built once and loaded with each heat (DESIGN §2).
+"""The planner's linear model for one grade, built once and loaded with each heat (meltfix.massbalance's mass balance as a linear programme).
 
 The decision per material is its mass [kg], or its number of packs when it comes in bags, bales or
 coils. Windows are linear once multiplied out by the final bath mass, so the optimum is exact:
@@ -28,7 +28,7 @@ import highspy
 import numpy as np
 from highspy._core import _Highs
 
-from meltfix.deoxidation import aluminium_owed_pct
+from meltfix.deoxidation import aluminium_owed_pct, oxygen_notes
 from meltfix.elements import element_sort_key
 from meltfix.heat import Heat, usable_materials
 from meltfix.liquidus import formula_for
@@ -44,7 +44,7 @@ _INF = math.inf
 # HiGHS options, set once per model. Presolve off: on these small models it saves nothing, its LP
 # presolve once called a feasible elastic model infeasible, and its MIP presolve makes HiGHS print
 # a debug line straight to file descriptor 1 when it repairs a presolved solution, which would
-# corrupt a running terminal screen and a --json stream (DESIGN §7). The neighbourhood heuristics
+# corrupt a running terminal screen and a --json stream (seen with HiGHS 1.12). The neighbourhood heuristics
 # (RINS, RENS) and the root reduced-cost heuristic each run a sub-MIP; on these models they take
 # about a third of the time and find nothing branch and bound does not. One thread per model:
 # threads plan heats side by side, each on its own model. No simplex scaling: HiGHS keeps the scale
@@ -335,12 +335,7 @@ class ModelShape:
         owed = aluminium_owed_pct(heat, grade)
         debt = np.array([owed.get(s, 0.0) / 100.0 for s in self.elements])
         now, now_low = now - debt, now_low - debt
-        for s, pct in owed.items():
-            notes.append(f"{bath * pct / 100.0:,.1f} kg of {s} goes to deoxidation ({heat.dissolved_o_ppm:g} ppm "
-                         "dissolved O bound as Al2O3) before any stays in the bath; the heat of that reaction is "
-                         "not credited to the temperature")
-        if heat.dissolved_o_ppm and not owed:
-            notes.append(f"the dissolved O reading is not used: grade {grade.name} sets no Al window")
+        notes += oxygen_notes(heat, grade, owed)
 
         row_lower = np.full(self.n_rows, -_INF)
         row_upper = np.full(self.n_rows, _INF)

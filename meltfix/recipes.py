@@ -1,6 +1,6 @@
 """The shop's recipe book: addition materials and grades, read from TOML and validated strictly.
 
-File layout (DESIGN §6): ``materials.toml`` at the root of a recipes folder (more ``*.toml`` files
+File layout (a contract: keep its names): ``materials.toml`` at the root of a recipes folder (more ``*.toml`` files
 under ``materials/`` add to it), one grade per file under ``grades/``, and an optional ``shop.toml``
 with shop-wide settings. Every problem raises :class:`InputError` naming the file and the field.
 """
@@ -20,6 +20,8 @@ from meltfix.elements import element_sort_key, normalise_symbol
 from meltfix.errors import InputError, control_character
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
+RECOVERY_BASES = ("killed", "tap")
+"""What a shop's aluminium recoveries may be measured on (see :mod:`meltfix.deoxidation`)."""
 ADDITION_CLASSES = ("scrap", "treatment", "deoxidiser", "bulk alloy", "carbon", "trim", "late", "wire")
 """Where a material comes in the order of additions; the shop's ``addition_order`` ranks them."""
 # The class a material takes when its entry names none: by its kind (a wire is told by kg_per_m).
@@ -126,6 +128,10 @@ class Grade:
     family: str = "steel"
     standard: str = ""
     source_file: str = ""
+    aluminium_recovery_basis: str = "killed"
+    """What the aluminium recoveries are measured on, the shop's ``aluminium_recovery_basis``
+    (:mod:`meltfix.deoxidation`): carried by each grade so that every mass balance of a heat of
+    this grade (plan, re-check, odds) follows the same basis."""
 
     @property
     def elements(self) -> tuple[str, ...]:
@@ -217,6 +223,9 @@ class ShopSettings:
     """Folder the screen writes crew tickets to ("" = the current folder; --tickets overrides)."""
     ticket_print_command: str = ""
     """Command a written ticket is sent to, e.g. "lp -d pulpit" ("" = not printed)."""
+    aluminium_recovery_basis: str = "killed"
+    """``"killed"``: aluminium recoveries are measured on killed steel, so a dissolved-oxygen reading
+    is bound first on top of them; ``"tap"``: measured from tap, the oxygen is already inside them."""
 
 
 @dataclass(frozen=True)
@@ -615,7 +624,7 @@ _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
               "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
               "max_portion_kg", "stir_min", "superheat_c", "ticket_dir",
-              "ticket_print_command"}
+              "ticket_print_command", "aluminium_recovery_basis"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -682,7 +691,16 @@ def load_settings(folder: Path) -> ShopSettings:
         superheat_c=number(data.get("superheat_c", defaults.superheat_c), path, "superheat_c"),
         ticket_dir=_optional_text(data, "ticket_dir", path, ""),
         ticket_print_command=_optional_text(data, "ticket_print_command", path, ""),
+        aluminium_recovery_basis=_recovery_basis(data.get("aluminium_recovery_basis",
+                                                          defaults.aluminium_recovery_basis), path),
     )
+
+
+def _recovery_basis(value: Any, source: object) -> str:
+    basis = text(value, source, "aluminium_recovery_basis")
+    if basis not in RECOVERY_BASES:
+        raise InputError(source, "aluminium_recovery_basis", f"'{basis}' is not one of {', '.join(RECOVERY_BASES)}")
+    return basis
 
 
 def parse_target_odds(value: Any, source: object, field_name: str) -> float | str:
@@ -751,5 +769,6 @@ def load_recipes(folder: Path | str | None = None) -> RecipeBook:
         raise InputError(folder, "", "recipes folder not found")
     settings = load_settings(folder)  # first: the materials name the shop's stages
     materials = load_materials(folder, tuple(settings.stages))
-    grades = load_grades(folder, {m.name for m in materials})
+    grades = {name: replace(grade, aluminium_recovery_basis=settings.aluminium_recovery_basis)
+              for name, grade in load_grades(folder, {m.name for m in materials}).items()}
     return RecipeBook(materials=materials, grades=MappingProxyType(grades), settings=settings, folder=folder)

@@ -6,9 +6,12 @@ Contents in wt %, oxygen in ppm, masses in kg, recoveries as fractions.
 
 from __future__ import annotations
 
+from dataclasses import replace
+from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
+import shutil
 import tomllib
 
 import periodictable
@@ -20,14 +23,17 @@ from meltfix.errors import InputError
 from meltfix.heat import Heat, heat_to_toml, parse_heat, validate_heat
 from meltfix.massbalance import bath_after
 from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.paths import default_recipes_dir
+from meltfix.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
 
 NO_AIM = PlanOptions(use_aim=False)
 W = 50_000.0  # 50 t
 R_AL = 0.5  # the aluminium's recovery, given
 
 
-def shop(al_window: list[float] | None, with_aluminium: bool = True) -> RecipeBook:
+def shop(al_window: list[float] | None, with_aluminium: bool = True, basis: str = "killed") -> RecipeBook:
+    """A two-material book; ``basis`` is what its aluminium recovery is measured on, carried by the
+    grade as load_recipes carries shop.toml's aluminium_recovery_basis."""
     materials = [{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}, "recovery": {"Mn": 0.9}}]
     if with_aluminium:
         materials.append({"name": "Al bar", "kind": "deoxidiser", "price_per_kg": 2.7,
@@ -36,8 +42,9 @@ def shop(al_window: list[float] | None, with_aluminium: bool = True) -> RecipeBo
     if al_window is not None:
         window["Al"] = al_window
     parsed = tuple(parse_material(m, "materials.toml", f"material #{k}.") for k, m in enumerate(materials, 1))
-    grade = parse_grade({"name": "Killed", "window": window}, "grades/killed.toml")
-    return RecipeBook(parsed, MappingProxyType({"Killed": grade}), ShopSettings())
+    grade = replace(parse_grade({"name": "Killed", "window": window}, "grades/killed.toml"),
+                    aluminium_recovery_basis=basis)
+    return RecipeBook(parsed, MappingProxyType({"Killed": grade}), ShopSettings(aluminium_recovery_basis=basis))
 
 
 def heat(oxygen_ppm: float | None, al_pct: float = 0.005) -> Heat:
@@ -52,18 +59,21 @@ def al_kg(plan: Any) -> float:
 # Stoichiometry
 
 def test_al_to_o_ratio_matches_the_published_ratio_and_periodictable() -> None:
-    assert AL_PER_O == pytest.approx(1.1243, abs=5e-5)  # REFERENCE §4.3 (from CIAAW 2021 weights)
-    assert 1 / AL_PER_O == pytest.approx(0.8894, abs=5e-5)  # REFERENCE §4.3, O : Al
-    # periodictable 2.x carries the IUPAC/CIAAW standard atomic weights; older tables differ in
-    # the 5th-7th digit, hence the relative tolerance (REFERENCE §4.2).
+    # Worked here from the IUPAC/CIAAW 2021 standard atomic weights (Al 26.9815384, O 15.999):
+    # 2 x 26.9815384 / (3 x 15.999) = 53.9631 / 47.997 = 1.12430; O : Al = 0.88944.
+    assert AL_PER_O == pytest.approx(1.1243, abs=5e-5)
+    assert 1 / AL_PER_O == pytest.approx(0.8894, abs=5e-5)
+    # periodictable 2.x carries the IUPAC/CIAAW standard atomic weights; older IUPAC tables differ in
+    # the 5th-7th digit (e.g. Al 26.981538 in 1997), hence the relative tolerance.
     outside = 2 * periodictable.Al.mass / (3 * periodictable.O.mass)
     assert AL_PER_O == pytest.approx(outside, rel=1e-4)
     alumina = periodictable.formula("Al2O3")
-    assert 2 * periodictable.Al.mass / alumina.mass == pytest.approx(0.5293, abs=5e-5)  # REFERENCE §4.3
+    # Al2O3 is 53.9631 / (53.9631 + 47.997) = 0.52926 aluminium by mass (CIAAW 2021 weights, worked here).
+    assert 2 * periodictable.Al.mass / alumina.mass == pytest.approx(0.5293, abs=5e-5)
 
 
 def test_removing_400_ppm_oxygen_needs_0_04497_percent_aluminium() -> None:
-    # REFERENCE §4.3 worked value (computed there): 400 ppm O -> 0.04497 % Al = 0.450 kg/t.
+    # Worked here: 400 ppm O = 0.0400 %, times 1.12430 = 0.04497 % Al = 0.450 kg per tonne.
     assert aluminium_for_oxygen_pct(400) == pytest.approx(0.04497, abs=5e-6)
     assert aluminium_for_oxygen_pct(400) * 10 == pytest.approx(0.450, abs=5e-4)  # wt % -> kg/t
     assert aluminium_for_oxygen_pct(0) == 0.0
@@ -82,7 +92,7 @@ def test_the_debt_applies_only_with_a_reading_and_an_al_window() -> None:
 
 def test_400_ppm_oxygen_needs_0_450_kg_per_t_more_recovered_aluminium() -> None:
     # Hand check at r_Al = 0.5: the cheapest plan lands Al on its 0.020 % minimum with or without
-    # the reading; with it, 0.450 kg/t more Al must dissolve first (REFERENCE §4.3) - plus a hair
+    # the reading; with it, 0.450 kg/t more Al must dissolve first (worked above) - plus a hair
     # for the extra bath the extra bar makes, c_min * g * dx, 0.0002 kg/t here.
     book = shop([0.020, 0.060])
     planner = Planner(book)
@@ -91,7 +101,7 @@ def test_400_ppm_oxygen_needs_0_450_kg_per_t_more_recovered_aluminium() -> None:
     assert without.status == with_o.status == "optimal"
     recovered_per_t = (al_kg(with_o) - al_kg(without)) * 0.995 * R_AL / (W / 1000)
     assert recovered_per_t == pytest.approx(0.450, abs=5e-4)
-    # Exactly the one-element closed form of DESIGN §2 with the start lowered by the debt:
+    # Exactly the one-element closed form (meltfix.massbalance) with the start lowered by the debt:
     # x = W (c_min - c0 + 0.04497 %) / (r a - g c_min), g = 0.995 r + 0.005 (iron balance at 1).
     g = 0.995 * R_AL + 0.005
     for plan, debt in ((without, 0.0), (with_o, 1.1243 * 0.0400 / 100)):
@@ -140,6 +150,58 @@ def test_a_reading_on_a_grade_without_an_al_window_is_noted_and_changes_nothing(
     plain, with_o = planner.plan(heat(None)), planner.plan(heat(400))
     assert with_o.additions == plain.additions
     assert any("dissolved O reading is not used" in note for note in with_o.notes)
+
+
+# --------------------------------------------------------------------------------------------
+# The basis of the aluminium recovery: killed steel (the oxygen owed on top) or from tap (inside it)
+
+def _closed_form_al_kg(debt_pct: float) -> float:
+    """x = W (c_min - c0 + debt) / (r a - g c_min) for Al 0.005 -> 0.020 % with the bar above."""
+    g = 0.995 * R_AL + 0.005
+    return W * (0.00020 - 0.00005 + debt_pct / 100) / (R_AL * 0.995 - g * 0.00020)
+
+
+def test_the_recipe_book_says_what_its_aluminium_recovery_is_measured_on(tmp_path: Path) -> None:
+    book = load_recipes()
+    assert book.settings.aluminium_recovery_basis == "killed"
+    assert {g.aluminium_recovery_basis for g in book.grades.values()} == {"killed"}
+    # A shop whose figures come from tap says so, and every grade follows.
+    folder = tmp_path / "recipes"
+    shutil.copytree(default_recipes_dir(), folder)
+    shop_toml = folder / "shop.toml"
+    shop_toml.write_text(shop_toml.read_text(encoding="utf-8").replace(
+        'aluminium_recovery_basis = "killed"', 'aluminium_recovery_basis = "tap"'), encoding="utf-8")
+    assert {g.aluminium_recovery_basis for g in load_recipes(folder).grades.values()} == {"tap"}
+
+
+def test_on_killed_steel_recoveries_the_reading_is_owed_on_top() -> None:
+    plan = Planner(shop([0.020, 0.060])).plan(heat(400), NO_AIM)
+    assert al_kg(plan) == pytest.approx(_closed_form_al_kg(AL_PER_O * 0.0400), rel=1e-4)
+
+
+def test_from_tap_the_reading_is_inside_the_recovery_and_not_counted_again() -> None:
+    book = shop([0.020, 0.060], basis="tap")
+    planner = Planner(book)
+    without, with_o = planner.plan(heat(None), NO_AIM), planner.plan(heat(400), NO_AIM)
+    assert aluminium_owed_pct(heat(400), book.grade("Killed")) == {}
+    # The hand closed form with no debt, reading or not.
+    assert al_kg(with_o) == pytest.approx(al_kg(without), rel=1e-9)
+    assert al_kg(with_o) == pytest.approx(_closed_form_al_kg(0.0), rel=1e-4)
+    assert with_o.predicted_pct["Al"] == pytest.approx(0.020, abs=1e-9)
+    assert any("not counted again" in note and "from tap" in note for note in with_o.notes)
+    # The re-check follows the same basis: the plain mass balance with nothing owed.
+    used = [(book.material(a.material), a.kg) for a in with_o.additions]
+    assert bath_after(W, heat(400).analysis.pct, used)[1]["Al"] == pytest.approx(with_o.predicted_pct["Al"],
+                                                                                    rel=1e-9)
+
+
+def test_counting_the_oxygen_twice_is_caught() -> None:
+    # The deliberately wrong arithmetic for a tap basis: subtracting the reading anyway, as the
+    # killed-steel planner does. It asks 0.450 kg/t more recovered aluminium (22.5 kg at 50 t), which
+    # the tap check above (the closed form with no debt, rel 1e-4) would fail.
+    twice = al_kg(Planner(shop([0.020, 0.060], basis="killed")).plan(heat(400), NO_AIM))
+    assert twice != pytest.approx(_closed_form_al_kg(0.0), rel=1e-4)
+    assert (twice - _closed_form_al_kg(0.0)) * 0.995 * R_AL == pytest.approx(22.49, abs=0.05)
 
 
 # --------------------------------------------------------------------------------------------
