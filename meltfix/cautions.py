@@ -1,4 +1,4 @@
-"""Safety cautions printed with every plan (DESIGN §4). The tool advises; a qualified person decides.
+"""Safety cautions printed with every plan. The tool advises; a qualified person decides.
 
 Every caution defers to the shop's written procedures and local codes; the thresholds here are
 common practice, not a standard, and say so.

@@ -18,7 +18,7 @@ from typing import NoReturn
 from meltfix import __version__
 from meltfix.errors import InputError
 
-# Exit status (DESIGN §6): every window met at the target odds / bad input / only a closest plan
+# Exit status (a contract scripts rely on): every window met at the target odds / bad input / only a closest plan
 # exists / every window met on paper but the odds short of the target.
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2

@@ -302,7 +302,7 @@ def build_demo_logbook(path: Path | str, book: RecipeBook | None = None, days: i
 @contextmanager
 def _solver_chatter_hidden() -> Iterator[None]:
     """HiGHS may print debug lines straight to file descriptor 1, under Python's sys.stdout
-    (DESIGN §7); the build prints nothing of its own, so descriptor 1 is pointed at the null device."""
+    (seen with HiGHS 1.12); the build prints nothing of its own, so descriptor 1 is pointed at the null device."""
     sys.stdout.flush()
     saved = os.dup(1)
     try:

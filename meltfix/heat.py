@@ -1,4 +1,4 @@
-"""A heat to be trimmed: what HEAT.toml holds (DESIGN §6), plus this heat's own overrides."""
+"""A heat to be trimmed: what HEAT.toml holds (its keys are a contract), plus this heat's own overrides."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""The mass balance of additions to a bath, written plainly (DESIGN §2).
+"""The mass balance of additions to a bath, written plainly.
 
 Kept apart from the optimiser so that plans, replays and tests can re-check any set of additions
 with arithmetic that shares nothing with the LP's matrices.
@@ -45,7 +45,7 @@ def temperature_drop_c(bath_kg: float, additions: Iterable[tuple[Material, float
 
 def single_addition_kg(bath_kg: float, now_pct: float, aim_pct: float, content_pct: float,
                        recovery: float, mass_yield: float) -> float:
-    """Closed form for one element and one material [kg] (DESIGN §2).
+    """Closed form for one element and one material [kg]: the mass balance above solved for x.
 
     x = W (c_aim - c0) / (r a - g c_aim), all as fractions; ``mass_yield`` is g, the fraction of
     the material that dissolves (1 when the whole addition joins the bath).

@@ -1,4 +1,4 @@
-"""The addition planner: the cheapest additions that bring a heat into its grade (DESIGN §2).
+"""The addition planner: the cheapest additions that bring a heat into its grade (meltfix.massbalance).
 
 The model (``meltfix.plan_model``) is linear and exact once each window is multiplied out by the
 final bath mass; it is built once per recipe book, grade and mode and kept hot in HiGHS, and each
@@ -171,7 +171,7 @@ class Plan:
         return math.fsum(a.kg for a in self.additions)
 
     def to_json(self) -> dict[str, object]:
-        """The JSON object of DESIGN §6 (numbers unrounded), with a few extra fields."""
+        """The JSON object of `meltfix solve --json`, a contract (numbers unrounded), with a few extra fields."""
         return {
             "heat": self.heat_id,
             "grade": self.grade,
@@ -358,7 +358,7 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     """Solve the loaded problem (or its elastic version) within the column bounds ``lower`` and
     ``upper``: None = infeasible.
 
-    The LP relaxation comes first (DESIGN §7): it is a fraction of the integer solve's time, proves
+    The LP relaxation comes first (measured in bench/plan_speed.py): it is a fraction of the integer solve's time, proves
     infeasibility on its own, and when its optimum already has whole packs and no addition under its
     minimum it is the integer optimum, duals included. Otherwise branch and bound picks the packs and
     the on/off choices, and the LP with those fixed gives the masses: exact whole packs, minimums held

@@ -85,7 +85,7 @@ class RiskPlan:
         return self.plan.total_cost + (1.0 - self.odds.heat) * self.correction_cost
 
     def to_json(self) -> dict[str, object]:
-        """The plan's JSON object with the odds fields of DESIGN §6.1."""
+        """The plan's JSON object with the odds fields (a contract: keep their names)."""
         line = self.plan.to_json()
         line.update({"target_odds": self.target, "odds": self.odds.to_json(),
                      "correction_cost": self.correction_cost, "expected_total_cost": self.expected_total_cost})

@@ -1,4 +1,4 @@
-"""The odds that a plan lands the heat inside its grade when the world is not as measured (DESIGN §3).
+"""The odds that a plan lands the heat inside its grade when the world is not as measured.
 
 A plan is exact for the bath it was given. The real bath differs, as the shop's ``[scatter]`` says
 (meltfix.recipes.Scatter): each (material, element) recovery is off by a normal relative error of
@@ -7,7 +7,7 @@ counts as 1; the iron balance does not scatter), the bath weight by a normal rel
 the analysis by the spectrometer's repeatability (normal, sigma = r / 2.8 with r from
 meltfix.spectro's curves: r = 2.8 sigma is the ISO 5725-6 limit for two results, from memory)
 times ``analysis``. A reading below the detection limit L is anywhere in 0..L. Many such heats are
-drawn at once (NumPy, seeded) and the additions applied to each by the mass balance of DESIGN §2;
+drawn at once (NumPy, seeded) and the additions applied to each by the mass balance of meltfix.massbalance;
 the share of draws inside each limit is that limit's odds, the share inside all of them the heat's.
 This simulation is the judge of every plan's odds; meltfix.risk plans to a target with a closed
 form and leaves the verdict to it.

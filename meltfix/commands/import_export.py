@@ -1,7 +1,7 @@
 """`meltfix import FILE`: read a spectrometer export, show or print its samples, optionally write a HEAT.toml.
 
 The reading, checking and averaging live in :mod:`meltfix.spectro`; this module only handles the
-command line: the rich table, the JSON object of DESIGN §6 and the heat file.
+command line: the rich table, the JSON object (a contract: keep its names) and the heat file.
 """
 
 from __future__ import annotations
@@ -81,7 +81,7 @@ def _settings(folder: str | None) -> ShopSettings:
 
 
 # ---------------------------------------------------------------------------------------------
-# JSON (DESIGN §6, with a few added fields)
+# JSON (a contract: keep its names; fields may be added)
 
 
 def _as_json(result: ImportResult, samples: tuple[SpectroSample, ...]) -> dict[str, Any]:
@@ -109,7 +109,7 @@ def _as_json(result: ImportResult, samples: tuple[SpectroSample, ...]) -> dict[s
 
 
 def heat_file_text(sample: SpectroSample, heat: Heat, source: str) -> str:
-    """A HEAT.toml (DESIGN §6) for one sample, headed by where it came from and the sample's flags."""
+    """A HEAT.toml for one sample, headed by where it came from and the sample's flags."""
     lines = [f"Written by meltfix import from {source}, sample {sample.sample_id} "
              f"({len(sample.accepted_burns)} burns averaged)."]
     lines += [f"Flag: {flag}" for flag in sample.flags]

@@ -1,4 +1,4 @@
-"""`meltfix solve HEAT.toml [HEAT.toml ...] [--recipes DIR] [--json]` (DESIGN §6).
+"""`meltfix solve HEAT.toml [HEAT.toml ...] [--recipes DIR] [--json]` (options, JSON and exit codes are a contract).
 
 Every plan is the cheapest whose odds of landing inside every window reach the shop's
 ``target_odds`` (meltfix.risk), judged by a seeded Monte Carlo run (meltfix.uncertainty);

@@ -1,4 +1,4 @@
-"""`meltfix import` end to end through meltfix.cli.main: JSON shape (DESIGN §6), tables, heat files, errors."""
+"""`meltfix import` end to end through meltfix.cli.main: JSON shape (the import contract), tables, heat files, errors."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""`meltfix solve` end to end (DESIGN §6): the rich table, --json, JSON Lines, --no-aim,
+"""`meltfix solve` end to end (its contract): the rich table, --json, JSON Lines, --no-aim,
 --continuous, exit status 0 / 3 / 2, and one clear line on stderr for every kind of bad input.
 
 A small recipe book of our own is written into tmp_path so the figures do not move when the demo
@@ -91,7 +91,7 @@ def test_json_has_the_contract_fields_unrounded(capsys: pytest.CaptureFixture[st
     assert (status, err) in ((0, ""), (4, ""))
     (line,) = out.splitlines()
     plan = json.loads(line)
-    # DESIGN §6 field names and types.
+    # The contract's field names and types (README, JSON output).
     assert plan["heat"] == "manganese"  # the file's name when the file gives no id
     assert plan["status"] == "optimal"
     assert isinstance(plan["total_cost"], float) and isinstance(plan["final_kg"], float)
@@ -99,7 +99,8 @@ def test_json_has_the_contract_fields_unrounded(capsys: pytest.CaptureFixture[st
     assert all(isinstance(c, str) for c in plan["cautions"]) and plan["cautions"]
     (addition,) = plan["additions"]
     assert set(addition) >= {"material", "kg", "cost"}
-    # The closed form of DESIGN §2 (g = r = 0.9 here), REFERENCE §4.4: 431.78 kg; numbers unrounded.
+    # The closed form x = W (c* - c0) / (r a - g c*) (g = r = 0.9 here), worked by hand:
+    # 100 000 x 0.0030 / (0.9 x 0.78 - 0.9 x 0.0080) = 300 / 0.6948 = 431.78 kg; numbers unrounded.
     x = 100_000 * (0.0080 - 0.0050) / (0.9 * 0.78 - 0.9 * 0.0080)
     assert addition["material"] == "FeMn"
     assert addition["kg"] == pytest.approx(x, rel=1e-6)
@@ -192,7 +193,7 @@ def test_the_built_in_recipe_book_plans_a_heat(capsys: pytest.CaptureFixture[str
 
 
 def test_nothing_but_the_plans_reaches_the_terminal() -> None:
-    # DESIGN §7: HiGHS can write straight to file descriptor 1, under Python's sys.stdout, which would
+    # HiGHS can write straight to file descriptor 1 (seen with HiGHS 1.12), under Python's sys.stdout, which would
     # corrupt a running screen; a separate process catches that. The demo heats (whole packs: integer
     # solves) and three heats on which HiGHS 1.12 printed a debug line while its MIP presolve was on.
     heats = sorted((ROOT / "demo" / "heats").glob("*.toml")) + sorted(HEATS.glob("highs_chatter_*.toml"))

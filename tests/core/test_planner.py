@@ -38,7 +38,7 @@ def kg_of(plan: Plan, name: str) -> float:
 
 
 # --------------------------------------------------------------------------------------------
-# One element, one material: x = W (c_aim - c0) / (r a - g c_aim)   (DESIGN §2, REFERENCE §4.4)
+# One element, one material: x = W (c_aim - c0) / (r a - g c_aim)   (meltfix.massbalance, worked below)
 
 W = 100_000.0  # 100 t
 MN_WINDOW = {"name": "Mn trim", "window": {"Mn": [0.80, 0.90], "C": [0.0, 1.0]}}
@@ -50,39 +50,43 @@ def closed_form_kg(bath_kg: float, c0: float, c_aim: float, a: float, r: float, 
 
 
 def test_single_alloy_whole_material_at_the_same_recovery_matches_the_worked_example() -> None:
-    # REFERENCE §4.4 worked example (computed there): W = 100 t, Mn 0.50 -> 0.80 %, HC FeMn a = 0.78,
-    # r = 0.90, bath growing by r x ("brief's form") -> 431.78 kg. Every element of the material,
-    # its iron too (listed, since iron otherwise recovers fully), dissolves at 0.90: g = 0.90.
+    # A worked example, computed here (no textbook example with figures was found): W = 100 t,
+    # Mn 0.50 -> 0.80 %, HC FeMn a = 0.78, r = 0.90, the bath growing by r x:
+    # x = W (c* - c0) / (r (a - c*)) = 100 000 x 0.0030 / (0.9 x (0.78 - 0.0080)) = 300 / 0.6948 = 431.78 kg.
+    # Every element of the material, its iron too (listed, since iron otherwise recovers fully),
+    # dissolves at 0.90: g = 0.90.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}, "default_recovery": 0.9,
                   "recovery": {"Fe": 0.9}}], [MN_WINDOW])
     plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50, "C": 0.0}), shop, NO_AIM)
     expected = closed_form_kg(W, 0.0050, 0.0080, 0.78, 0.90, g=0.90)
     assert plan.status == "optimal"
     assert kg_of(plan, "FeMn") == pytest.approx(expected, rel=1e-6)
-    assert kg_of(plan, "FeMn") == pytest.approx(431.78, abs=0.005)  # REFERENCE §4.4, printed to 0.01 kg
+    assert kg_of(plan, "FeMn") == pytest.approx(431.78, abs=0.005)  # worked above, to 0.01 kg
     assert plan.final_kg == pytest.approx(W + 0.90 * expected, rel=1e-9)
-    # Back-substitution returns exactly the aim (REFERENCE §4.4): (W c0 + r a x) / (W + g x).
+    # Back-substitution returns exactly the aim: (W c0 + r a x) / (W + g x).
     x = kg_of(plan, "FeMn")
     assert (W * 0.0050 + 0.9 * 0.78 * x) / (W + 0.9 * x) == pytest.approx(0.0080, rel=1e-6)
 
 
 def test_single_alloy_with_the_iron_balance_recovering_fully() -> None:
     # Mn at r = 0.90 but the 22 % iron balance dissolves fully: g = 0.78 * 0.90 + 0.22 = 0.922, between
-    # the "brief's form" (g = r, 431.78 kg) and the "alternative" balance (g = 1, 432.28 kg) of
-    # REFERENCE §4.4; our mass balance takes g from the material, so neither is exact here.
+    # the bath growing by r x (g = r, 431.78 kg above) and by the whole addition (g = 1:
+    # 300 / (0.702 - 0.0080) = 432.28 kg, worked here); our mass balance takes g from the material,
+    # so neither is exact here.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0}, "recovery": {"Mn": 0.9}}],
                 [MN_WINDOW])
     plan = plan_heat(heat("Mn trim", W, {"Mn": 0.50, "C": 0.0}), shop, NO_AIM)
     g = 0.78 * 0.90 + 0.22 * 1.0
     expected = closed_form_kg(W, 0.0050, 0.0080, 0.78, 0.90, g)
     assert kg_of(plan, "FeMn") == pytest.approx(expected, rel=1e-6)
-    assert 431.78 < kg_of(plan, "FeMn") < 432.28  # REFERENCE §4.4 bounds (g = 0.90 and g = 1)
+    assert 431.78 < kg_of(plan, "FeMn") < 432.28  # the two worked bounds (g = 0.90 and g = 1)
     assert kg_of(plan, "FeMn") == pytest.approx(432.28, rel=1e-3)
 
 
 def test_carbon_carried_in_by_ferromanganese_is_tracked() -> None:
-    # REFERENCE §4.4 side effect (computed there): 431.78 kg of FeMn at 7 % C, r_C = 0.90, adds
-    # 0.0271 % C. With every element at 0.90 (C included) g is still 0.90, so the Mn balance is the
+    # Worked here: 431.78 kg of FeMn at 7 % C, r_C = 0.90, into a bath that grows to
+    # 100 000 + 0.9 x 431.78 = 100 388.6 kg adds 0.063 x 431.78 / 100 388.6 = 27.20 / 100 388.6 = 0.0271 % C.
+    # With every element at 0.90 (C included) g is still 0.90, so the Mn balance is the
     # same 431.78 kg and the carbon follows from the same closed form.
     shop = book([{"name": "FeMn", "price_per_kg": 1.4, "composition": {"Mn": 78.0, "C": 7.0},
                   "default_recovery": 0.9, "recovery": {"Fe": 0.9}}], [MN_WINDOW])
@@ -91,7 +95,7 @@ def test_carbon_carried_in_by_ferromanganese_is_tracked() -> None:
     assert kg_of(plan, "FeMn") == pytest.approx(x, rel=1e-6)
     carbon_pct = 100 * 0.07 * 0.90 * x / (W + 0.90 * x)
     assert plan.predicted_pct["C"] == pytest.approx(carbon_pct, rel=1e-6)
-    assert plan.predicted_pct["C"] == pytest.approx(0.0271, abs=5e-5)  # REFERENCE §4.4
+    assert plan.predicted_pct["C"] == pytest.approx(0.0271, abs=5e-5)  # worked above
 
 
 def test_carbon_bearing_ferromanganese_with_iron_recovering_fully() -> None:
@@ -108,7 +112,7 @@ def test_carbon_bearing_ferromanganese_with_iron_recovering_fully() -> None:
 
 
 # --------------------------------------------------------------------------------------------
-# Two alloys, two elements (REFERENCE §4.4 two-alloy case)
+# Two alloys, two elements (a worked case)
 
 SIMN = {"name": "SiMn", "price_per_kg": 1.25, "composition": {"Mn": 65.0, "Si": 17.0},
         "recovery": {"Mn": 0.9, "Si": 0.8}}
@@ -132,7 +136,9 @@ def test_two_alloys_land_on_both_minimums_with_dilution() -> None:
     simn, fesi = two_alloy_exact_kg(0.80, 0.30)
     assert kg_of(plan, "SiMn") == pytest.approx(simn, rel=1e-6)
     assert kg_of(plan, "FeSi75") == pytest.approx(fesi, rel=1e-6)
-    # REFERENCE §4.4 "ignoring dilution": SiMn 512.82 kg, FeSi75 217.09 kg; dilution by the added
+    # Ignoring dilution, worked here: 300 kg Mn needs 300 / (0.65 x 0.9) = 512.82 kg SiMn, which brings
+    # 512.82 x 0.17 x 0.8 = 69.74 kg Si; the other 200 - 69.74 kg Si needs 130.26 / (0.75 x 0.8) = 217.09 kg
+    # FeSi75. Dilution by the added
     # mass asks a little more of each (about 1.7 % and 0.6 % here).
     assert 512.82 < simn < 512.82 * 1.02
     assert 217.09 < fesi < 217.09 * 1.01
@@ -141,7 +147,7 @@ def test_two_alloys_land_on_both_minimums_with_dilution() -> None:
 
 @pytest.mark.parametrize("prices", [(1.25, 1.6), (0.5, 9.0), (9.0, 0.5)])
 def test_two_alloys_with_a_one_point_window_give_the_unique_solution_whatever_the_prices(prices) -> None:
-    # REFERENCE §4.4: with only these two materials and exact targets the optimum is the unique
+    # With only these two materials and exact targets the optimum is the unique
     # solution of the 2 x 2 system, whatever the prices.
     materials = [dict(SIMN, price_per_kg=prices[0]), dict(FESI, price_per_kg=prices[1])]
     shop = book(materials, [{"name": "G", "window": {"Mn": [0.80, 0.80], "Si": [0.30, 0.30]}}])
@@ -259,7 +265,8 @@ def test_a_closest_plan_still_meets_the_windows_it_can() -> None:
 
 
 # --------------------------------------------------------------------------------------------
-# Readings below the detection limit (REFERENCE §6: "< L" is at most L against a maximum,
+# Readings below the detection limit (ASTM E1950 calls a result under the quantitative limit not
+# individually quantitative; "< L" is at most L against a maximum,
 # unknown against a minimum; common practice)
 
 def test_below_limit_reading_is_taken_at_the_limit_against_a_maximum() -> None:
@@ -295,7 +302,7 @@ def test_a_ratio_with_a_negative_weight_takes_a_below_limit_reading_at_its_safe_
 
 
 # --------------------------------------------------------------------------------------------
-# The other limits of DESIGN §2
+# The planner's other limits: vessel, stock, packs, minimums, temperature, indices
 
 CARBON = {"name": "Carbon raiser", "kind": "carbon", "price_per_kg": 0.8, "composition": {"C": 98.0},
           "recovery": {"C": 0.9}, "pack_kg": 25, "stock_kg": 1000}
@@ -398,7 +405,7 @@ def test_plan_json_has_the_contract_fields() -> None:
     shop = book([CLEAN_IRON], [CU_GRADE])
     data = plan_heat(heat("Low Cu", 20_000.0, {"Cu": 0.40}), shop).to_json()
     for key in ("status", "additions", "total_cost", "final_kg", "predicted", "violations", "cautions"):
-        assert key in data  # DESIGN §6
+        assert key in data  # the solve --json contract
     assert set(data["additions"][0]) >= {"material", "kg", "cost"}
     assert data["cautions"][-1].startswith("Additions follow the shop's written procedures")
 

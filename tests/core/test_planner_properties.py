@@ -1,7 +1,7 @@
 """Properties every plan must have, on shops and heats drawn by Hypothesis (derandomised, so the
 suite is repeatable; the number of examples is kept modest so it stays fast).
 
-Each plan is re-checked by a mass balance written here from the definitions of DESIGN §2 (element
+Each plan is re-checked by a mass balance written here from the definitions of the mass balance (element
 mass W c + sum a r x, bath W + sum x sum_i a_i r_i), sharing no code with the planner:
 windows met (or exactly the reported violations), stock, capacity, temperature, whole packs,
 minimum additions, locks. Then two properties of the optimum: one more material never makes it

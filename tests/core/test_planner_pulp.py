@@ -3,7 +3,7 @@
 # PuLP 3.x / COIN-OR CBC as an independent solver (pulp's bundled PULP_CBC_CMD).
 
 Each seeded random heat comes with its own random recipe book. The model here is written from the
-contract (DESIGN §2 and the planner's documented semantics), term by term from the Material, Grade
+contract (the mass balance and the planner's documented semantics), term by term from the Material, Grade
 and Heat objects, sharing nothing with the planner's matrices:
 
 - x_j = 0 .. stock_j kg, or pack_j x n_j with n_j a whole number when the material comes in packs;

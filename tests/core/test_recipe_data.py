@@ -12,6 +12,7 @@ that cannot fail shows up there.
 from __future__ import annotations
 
 import math
+import re
 import shutil
 from collections.abc import Callable
 from pathlib import Path
@@ -454,6 +455,21 @@ def test_a_wrong_recipe_value_is_caught(tmp_path: Path, file: str, old: str, new
                                        check: Callable[[RecipeBook], Problems], named: str) -> None:
     problems = check(mutated_book(tmp_path, file, old, new))
     assert any(named in problem for problem in problems), problems
+
+
+# ---------------------------------------------------------------------------------------------
+# Sources a reader of the repository can open: no citation of a section of a document kept outside it.
+
+OUTSIDE_DOCUMENT = re.compile("(REFERENCE|DESIGN)(\\.md)? ?\u00a7")
+
+
+def test_no_citation_points_outside_the_repository() -> None:
+    root = Path(__file__).resolve().parents[2]  # the repository, wherever meltfix is installed
+    files = [p for folder in ("recipes", "meltfix", "tests") for p in (root / folder).rglob("*")
+             if p.suffix in {".py", ".toml", ".md"}] + [root / "README.md", root / "DEVELOPERS.md"]
+    cited = [f"{p.relative_to(root)}:{n}" for p in files if p.is_file()
+             for n, line in enumerate(p.read_text(encoding="utf-8").splitlines(), 1) if OUTSIDE_DOCUMENT.search(line)]
+    assert len(files) > 50 and cited == []
 
 
 # ---------------------------------------------------------------------------------------------

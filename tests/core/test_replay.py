@@ -78,7 +78,7 @@ def test_hand_computed_two_sample_heat(tmp_path: Path, hand_book: RecipeBook) ->
     record = load_record(_record_file(tmp_path, RECORD), hand_book)
     first, second = replay(record, hand_book)
 
-    # Mass balance of DESIGN §2, by hand. FeMn test: a = 0.80 Mn, r = 0.9; the 20 % iron balance
+    # The mass balance, by hand. FeMn test: a = 0.80 Mn, r = 0.9; the 20 % iron balance
     # dissolves whole, so the mass yield g = 0.80 * 0.9 + 0.20 * 1.0 = 0.92.
     # Planned at S1: the cheapest way to the aim 0.75 (the aim penalty, 5 EUR per kg of Mn off aim,
     # outweighs the 2 EUR / (0.72 - 0.92 * 0.0075) = 2.80 EUR per kg the alloy costs), so the

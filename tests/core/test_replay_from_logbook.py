@@ -69,7 +69,7 @@ def _record_heat(path: Path, book: RecipeBook) -> int:
 
 def _mass_balance(bath_kg: float, pct: dict[str, float],
                   made: list[tuple[float, float, float, str]]) -> tuple[float, dict[str, float]]:
-    """DESIGN §2 written out again: made = (kg, content fraction a, recovery r, element); the rest is
+    """The mass balance written out again: made = (kg, content fraction a, recovery r, element); the rest is
     iron, which dissolves whole. m = W c + sum(a r x); M = W + sum(x (a r + (1 - a)))."""
     element_kg = {s: bath_kg * p / 100.0 for s, p in pct.items()}
     final_kg = bath_kg
@@ -96,7 +96,7 @@ def test_a_logbook_heat_replays_with_the_mass_balance_of_its_actual_additions(
 
     first, second, third = replay(record, hand_book)
 
-    # By hand (DESIGN §2): Mn 10000 x 0.0050 + 40 x 0.80 x 0.9 = 50 + 28.8 = 78.8 kg;
+    # By hand (the mass balance): Mn 10000 x 0.0050 + 40 x 0.80 x 0.9 = 50 + 28.8 = 78.8 kg;
     # Si 10000 x 0.0020 + 10 x 0.75 x 0.8 = 20 + 6.0 = 26.0 kg; bath 10000 + 40 x (0.72 + 0.20)
     # + 10 x (0.60 + 0.25) = 10000 + 36.8 + 8.5 = 10045.3 kg -> Mn 0.784446 %, Si 0.258827 %.
     assert first.final_kg == pytest.approx(10_045.3)

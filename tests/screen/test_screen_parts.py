@@ -100,7 +100,7 @@ def test_closest_plan_ticket_says_so(demo_book, demo_heat) -> None:
 
 def test_solver_writes_nothing_to_the_terminal() -> None:
     """HiGHS writes below Python's sys.stdout; a single line would corrupt the running screen
-    (DESIGN §7). Optimal, whole-pack and closest plans, at the file-descriptor level."""
+    (seen with HiGHS 1.12). Optimal, whole-pack and closest plans, at the file-descriptor level."""
     code = textwrap.dedent("""
         from meltfix.analysis import Analysis
         from meltfix.commands.screen import first_demo_heat
