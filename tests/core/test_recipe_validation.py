@@ -5,12 +5,14 @@ Every case starts from a tiny valid recipes folder written into tmp_path and bre
 
 from __future__ import annotations
 
+import shutil
 from collections.abc import Callable
 from pathlib import Path
 
 import pytest
 
 from meltfix.errors import InputError
+from meltfix.paths import default_recipes_dir
 from meltfix.recipes import load_recipes
 
 MATERIALS = """\
@@ -273,3 +275,23 @@ def test_extra_materials_file_duplicate_names_the_other_file(tmp_path: Path) -> 
         load_recipes(tmp_path)
     assert str(caught.value) == (f"{tmp_path / 'materials' / 'extra.toml'}: material 'Scrap': "
                                  "duplicate name (also in materials.toml)")
+
+
+@pytest.mark.parametrize(("file", "old", "new", "field", "message"), [
+    ("materials.toml", "recovery = { Cr = 0.95, C = 0.90, Si = 0.80, Al = 0.30 }",
+     "recovery = { Cr = 1.2, C = 0.90, Si = 0.80, Al = 0.30 }", "material 'LC FeCr'.recovery.Cr",
+     "recovery must be above 0 and at most 1, got 1.2"),
+    ("grades/52100.toml", '"FeV 80"]', '"FeV 8O"]', "forbid", "no material named 'FeV 8O' in the recipe book"),
+])
+def test_one_wrong_value_in_the_built_in_book_is_named(tmp_path: Path, file: str, old: str, new: str, field: str,
+                                                       message: str) -> None:
+    # The shop's real book with one slip of the pen: the loader names the file and the field.
+    folder = tmp_path / "recipes"
+    shutil.copytree(default_recipes_dir(), folder)
+    path = folder / file
+    content = path.read_text(encoding="utf-8")
+    assert content.count(old) == 1
+    path.write_text(content.replace(old, new), encoding="utf-8")
+    with pytest.raises(InputError) as caught:
+        load_recipes(folder)
+    assert (caught.value.source, caught.value.field, caught.value.message) == (str(path), field, message)
