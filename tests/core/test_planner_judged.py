@@ -1,7 +1,7 @@
 """A plan is judged after it is solved: its status is its own re-check, its minimum additions hold
 exactly, and the solver writes nothing to the terminal, at any bath weight.
 
-The checks here are the planner's own contract (DESIGN §2: x = 0 or x >= min; a plan is "optimal"
+The checks here are the planner's own contract (x = 0 or x >= min; a plan is "optimal"
 only when every window is met); the outside checks of the maths are in test_planner*.py.
 """
 
@@ -48,7 +48,7 @@ def test_status_and_minimums_hold_after_rounding_at_every_bath(continuous: bool,
                     assert line.kg >= material.min_kg, (where, line)  # exactly, not within a tolerance
                 if line.packs is not None:
                     assert line.kg == line.packs * material.pack_kg, (where, line)
-    # HiGHS can write below Python's sys.stdout, straight to file descriptor 1 (DESIGN §7).
+    # HiGHS can write below Python's sys.stdout, straight to file descriptor 1 (seen with HiGHS 1.12).
     out = capfd.readouterr().out
     assert out == "", out[:200]
 
