@@ -31,14 +31,12 @@ ATOMIC_WEIGHT: dict[str, float] = {
 
 # Display order: the usual order of a steel analysis sheet, then anything else alphabetically.
 _SHEET_ORDER = "C Si Mn P S Cr Ni Mo Cu Al V Nb Ti B N O H Sn Co W Ca Mg Zr".split()
+_SHEET_RANK = {symbol: rank for rank, symbol in enumerate(_SHEET_ORDER)}
 
 
 def element_sort_key(symbol: str) -> tuple[int, str]:
     """Sort key that lists elements as an analysis sheet does (C, Si, Mn, P, S, ...)."""
-    try:
-        return (_SHEET_ORDER.index(symbol), symbol)
-    except ValueError:
-        return (len(_SHEET_ORDER), symbol)
+    return (_SHEET_RANK.get(symbol, len(_SHEET_ORDER)), symbol)
 
 
 def normalise_symbol(text: str, source: object, field: str) -> str:

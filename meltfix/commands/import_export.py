@@ -8,17 +8,20 @@ from __future__ import annotations
 
 import argparse
 import json
+import shutil
 import sys
+import tempfile
+from collections.abc import Iterator
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import IO, TYPE_CHECKING, Any
 
 from meltfix.elements import normalise_symbol
 from meltfix.errors import InputError, visible
 from meltfix.heat import Heat, heat_to_toml, validate_heat
 from meltfix.numbers import content_text, unit_of
 from meltfix.outputs import markup_safe, write_atomic
-from meltfix.recipes import ShopSettings, identifier, load_recipes, load_settings
-from meltfix.spectro import Burn, ImportResult, SpectroSample, read_export
+from meltfix.recipes import RecipeBook, ShopSettings, identifier, load_recipes, load_settings
+from meltfix.spectro import Burn, SampleStream, SpectroSample, iter_samples
 
 if TYPE_CHECKING:  # rich is imported where the tables are printed
     from rich.console import Console
@@ -46,23 +49,55 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    result = read_export(args.file, _settings(args.recipes), drop_flagged=args.drop_flagged)
-    samples = result.samples
-    if args.sample is not None:
-        try:
-            samples = (result.sample(args.sample),)
-        except KeyError:
-            known = ", ".join(s.sample_id for s in result.samples)
-            raise InputError("command line", "--sample",
-                             f"no sample '{args.sample}' in {args.file} (it holds: {known})") from None
-    written = _write_heat(args, result, samples[-1]) if args.heat_out else None
+    stream = iter_samples(args.file, _settings(args.recipes), drop_flagged=args.drop_flagged)
+    # The samples are read one at a time (an export may hold a year of heats); --heat-out needs only
+    # the last one, or the one --sample names.
+    chosen: SpectroSample | None = None
+    others: list[str] = []
+    others_count = 0
+
+    def selected() -> Iterator[SpectroSample]:
+        nonlocal chosen, others_count
+        for sample in stream:
+            if args.sample is None or sample.sample_id == args.sample:
+                chosen = sample
+                yield sample
+            else:
+                others_count += 1
+                if len(others) < _LISTED_IDS:
+                    others.append(sample.sample_id)
+
+    def check_chosen() -> SpectroSample:
+        if chosen is None:
+            known = ", ".join(others) + (f" and {others_count - len(others)} more" if others_count > len(others) else "")
+            raise InputError("command line", "--sample", f"no sample '{args.sample}' in {args.file} (it holds: {known})")
+        return chosen
+
     if args.json:
-        print(json.dumps(_as_json(result, samples)))
+        # Written as each sample is read, but to a spool first: a problem further down the file
+        # must still leave stdout empty (nothing is half-imported).
+        with tempfile.SpooledTemporaryFile(max_size=_SPOOL_BYTES, mode="w+", encoding="utf-8") as spool:
+            _write_json(spool, stream, selected())
+            sample = check_chosen()
+            written = _write_heat(args, stream.source, sample) if args.heat_out else None
+            spool.seek(0)
+            shutil.copyfileobj(spool, sys.stdout)
+        print()
         if written:
-            print(visible(f"meltfix: wrote {written} from sample {samples[-1].sample_id}"), file=sys.stderr)
+            print(visible(f"meltfix: wrote {written} from sample {sample.sample_id}"), file=sys.stderr)
     else:
-        _print_tables(result, samples, written)
+        _check_heat_arguments(args)
+        _print_tables(stream, selected())
+        sample = check_chosen()
+        if args.heat_out:
+            _print_written(_write_heat(args, stream.source, sample), sample)
     return 0
+
+
+# Sample ids listed when --sample names none of the export's (a big export holds thousands).
+_LISTED_IDS = 20
+# JSON held in memory up to this size, then on disk.
+_SPOOL_BYTES = 4 << 20
 
 
 def _settings(folder: str | None) -> ShopSettings:
@@ -84,24 +119,26 @@ def _settings(folder: str | None) -> ShopSettings:
 # JSON (a contract: keep its names; fields may be added)
 
 
-def _as_json(result: ImportResult, samples: tuple[SpectroSample, ...]) -> dict[str, Any]:
+def _sample_json(sample: SpectroSample) -> dict[str, Any]:
     return {
-        "samples": [
-            {
-                "sample": sample.sample_id,
-                "burns": len(sample.accepted_burns),
-                "analysis": {symbol: round(pct, 6) for symbol, pct in sample.analysis.pct.items()},
-                "flags": list(sample.flags),
-                "below_limit": [s for s in sample.analysis.pct if s in sample.analysis.below_limit],
-                "left_out_burns": [b.label for b in sample.burns if not b.accepted],
-                "grade": sample.grade,
-            }
-            for sample in samples
-        ],
-        "source": result.source,
-        "ignored_columns": list(result.ignored_columns),
-        "notes": list(result.notes),
+        "sample": sample.sample_id,
+        "burns": len(sample.accepted_burns),
+        "analysis": {symbol: round(pct, 6) for symbol, pct in sample.analysis.pct.items()},
+        "flags": list(sample.flags),
+        "below_limit": [s for s in sample.analysis.pct if s in sample.analysis.below_limit],
+        "left_out_burns": [b.label for b in sample.burns if not b.accepted],
+        "grade": sample.grade,
     }
+
+
+def _write_json(out: IO[str], stream: SampleStream, samples: Iterator[SpectroSample]) -> None:
+    """One JSON object, ``{"samples": [...], "source": ..., "ignored_columns": ..., "notes": ...}``,
+    written a sample at a time (the notes are complete only once every sample is read)."""
+    out.write('{"samples": [')
+    for number, sample in enumerate(samples):
+        out.write((", " if number else "") + json.dumps(_sample_json(sample)))
+    out.write(f'], "source": {json.dumps(stream.source)}, "ignored_columns": {json.dumps(list(stream.ignored_columns))}, '
+              f'"notes": {json.dumps(list(stream.notes))}}}')
 
 
 # ---------------------------------------------------------------------------------------------
@@ -117,20 +154,37 @@ def heat_file_text(sample: SpectroSample, heat: Heat, source: str) -> str:
     return "".join(f"# {visible(' '.join(line.split()))}\n" for line in lines) + heat_to_toml(heat)
 
 
-def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroSample) -> Path:
+def _check_bath(args: argparse.Namespace) -> None:
+    if args.bath_kg is None:
+        raise InputError("command line", "--bath-kg", "is needed to write a heat file (the bath weight in kg)")
+    if not args.bath_kg > 0:
+        raise InputError("command line", "--bath-kg", f"must be above 0, got {args.bath_kg:g}")
+
+
+def _recipes_with(args: argparse.Namespace, grade: str) -> RecipeBook:
+    book = load_recipes(args.recipes)
+    if grade not in book.grades:
+        raise InputError("command line", "--grade", f"'{grade}' is not a grade of the recipes "
+                         f"(known: {', '.join(book.grades)})")
+    return book
+
+
+def _check_heat_arguments(args: argparse.Namespace) -> None:
+    """The --heat-out checks that need no sample, made before the tables of a long export are printed."""
+    if args.heat_out:
+        _check_bath(args)
+        if args.grade:
+            _recipes_with(args, args.grade)
+
+
+def _write_heat(args: argparse.Namespace, source: str, sample: SpectroSample) -> Path:
     path = Path(args.heat_out)
     grade = args.grade or sample.grade
     if not grade:
         raise InputError("command line", "--grade", f"the export names no grade for sample {sample.sample_id}; "
                          "give one with --grade")
-    if args.bath_kg is None:
-        raise InputError("command line", "--bath-kg", "is needed to write a heat file (the bath weight in kg)")
-    if not args.bath_kg > 0:
-        raise InputError("command line", "--bath-kg", f"must be above 0, got {args.bath_kg:g}")
-    book = load_recipes(args.recipes)
-    if grade not in book.grades:
-        raise InputError("command line", "--grade", f"'{grade}' is not a grade of the recipes "
-                         f"(known: {', '.join(book.grades)})")
+    _check_bath(args)
+    book = _recipes_with(args, grade)
     # The id becomes the heat file's `heat`: a sample id holding a control character or a
     # 10,000-character cell would write a file the planner then refuses, so it is refused here.
     try:
@@ -150,7 +204,7 @@ def _write_heat(args: argparse.Namespace, result: ImportResult, sample: SpectroS
             raise
         raise InputError("command line", "--not-measured", f"sample {sample.sample_id}: {exc.message.split(';')[0]}; "
                          "give --not-measured with those symbols to write the heat with those limits unchecked") from None
-    body = heat_file_text(sample, heat, Path(result.source).name)
+    body = heat_file_text(sample, heat, Path(source).name)
     if path.exists() and not args.force:
         raise InputError(path, "", "already exists; add --force to overwrite it")
     write_atomic(path, body, what="the heat file")
@@ -210,7 +264,8 @@ def _sample_table(sample: SpectroSample, title: str, console: Console) -> tuple[
     return long, marked
 
 
-def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], written: Path | None) -> None:
+def _print_tables(stream: SampleStream, samples: Iterator[SpectroSample]) -> None:
+    """Each sample's table as soon as it is read; the legend, if any cell is marked, at the end."""
     from rich.console import Console
 
     console = Console()
@@ -226,9 +281,13 @@ def _print_tables(result: ImportResult, samples: tuple[SpectroSample, ...], writ
     if marked:
         console.print("[bold red]![/] this burn disagrees with the others   "
                       "[yellow]?[/] burns disagree, cannot tell which   < below the detection limit (an upper bound)")
-    for note in result.notes:
+    for note in stream.notes:
         console.print(f"[dim]{markup_safe(note)}[/]")
-    if result.ignored_columns:
-        console.print(f"[dim]Columns not read: {markup_safe(', '.join(result.ignored_columns))}[/]")
-    if written:
-        console.print(f"Wrote {markup_safe(written)} from sample {markup_safe(samples[-1].sample_id)}.")
+    if stream.ignored_columns:
+        console.print(f"[dim]Columns not read: {markup_safe(', '.join(stream.ignored_columns))}[/]")
+
+
+def _print_written(written: Path, sample: SpectroSample) -> None:
+    from rich.console import Console
+
+    Console().print(f"Wrote {markup_safe(written)} from sample {markup_safe(sample.sample_id)}.")

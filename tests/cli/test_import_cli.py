@@ -218,3 +218,24 @@ def test_demo_ladle_export_becomes_a_heat_the_solver_reads(capsys: pytest.Captur
     status = main(["solve", str(heat_file), "--json"])
     plan = json.loads(capsys.readouterr().out)
     assert status in (0, 3) and plan["status"] in ("optimal", "closest")
+
+
+def test_json_of_an_export_rejected_at_its_last_row_prints_nothing(capsys: pytest.CaptureFixture[str],
+                                                                   recipes: Path, tmp_path: Path) -> None:
+    # The samples are read and written one at a time, but a bad row at the end still rejects the
+    # whole file: nothing half-imported reaches stdout.
+    path = tmp_path / "export.csv"
+    rows = "".join(f"KB-{n};1;0,{n:03d}\nKB-{n};2;0,{n:03d}\n" for n in range(1, 400))
+    path.write_text("Sample;Burn;C\n" + rows + "KB-x;1;0,1;0,2\n", encoding="utf-8")
+    status, out, err = _run(capsys, str(path), "--json", "--recipes", str(recipes))
+    assert (status, out) == (2, "")
+    assert "row 800" in err and err.count("\n") == 1
+
+
+def test_sample_not_in_a_big_export_lists_a_few_ids(capsys: pytest.CaptureFixture[str], recipes: Path,
+                                                    tmp_path: Path) -> None:
+    path = tmp_path / "export.csv"
+    path.write_text("Sample;C\n" + "".join(f"KB-{n};0,{n:03d}\n" for n in range(1, 100)), encoding="utf-8")
+    status, _, err = _run(capsys, str(path), "--json", "--sample", "KB-0", "--recipes", str(recipes))
+    assert status == 2
+    assert "it holds: KB-1, KB-2," in err and "KB-20 and 79 more" in err
