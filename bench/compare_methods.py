@@ -34,13 +34,13 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 
 from meltfix.analysis import Analysis
-from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.handmethod import HandPlan, hand_plan
 from meltfix.heat import Heat, stage_material
 from meltfix.planner import LIMIT_TOL_PCT, PlanOptions
 from meltfix.recipes import RecipeBook, load_recipes
 from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_quantile
+from meltfix.treatment import contents_owed_pct
 from meltfix.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from population import population  # bench/ is on sys.path when this file runs as a script
 
@@ -138,7 +138,7 @@ def hand_margins_pct(heat: Heat, plan: HandPlan, book: RecipeBook) -> dict[str, 
     target = book.settings.target_odds if isinstance(book.settings.target_odds, float) else 0.95
     used = [(stage_material(heat, book, a.material), a.kg) for a in plan.additions]
     grade = book.grade(heat.grade)
-    sigma = limit_sigma_pct(heat, grade, used, book.settings.scatter, plan.checks)
+    sigma = limit_sigma_pct(heat, grade, used, book.settings, plan.checks)
     margins = np.array([c.margin_pct for c in plan.checks])
     at_risk = max(int(np.sum(closed_form_odds(margins, sigma) < 0.999)), 1)
     z = float(normal_quantile(target ** (1.0 / at_risk)))
@@ -182,7 +182,7 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
     rng = np.random.default_rng([seed, 1, index])
 
     # The true world of each draw, shared by both methods (common random numbers).
-    world = draw_world(heat, materials, symbols, draws, rng, book.settings.scatter, aluminium_owed_pct(heat, grade))
+    world = draw_world(heat, materials, symbols, draws, rng, book.settings.scatter, contents_owed_pct(heat, grade, book.settings))
     noise = rng.standard_normal((draws, len(symbols)))  # the second sample's reading error
 
     prices = np.array([heat.material_price_per_kg(m) for m in materials])

@@ -269,7 +269,7 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules(),
         trim.note(f"the additions had not settled after {rules.max_passes} passes")
 
     used = [(trim.by_name[name], kg) for name, kg in trim.kg.items() if kg > 0]
-    final_kg, predicted, checks = recheck(heat, grade, used)  # judged exactly as the planner's plans
+    final_kg, predicted, checks = recheck(heat, grade, used, book.settings)  # judged exactly as the planner's plans
     additions = [addition(material, kg, heat.material_price_per_kg(material), material.name not in heat.locked_kg)
                  for material, kg in used]
     return HandPlan(

@@ -28,11 +28,12 @@ import highspy
 import numpy as np
 from highspy._core import _Highs
 
-from meltfix.deoxidation import aluminium_owed_pct, oxygen_notes
+from meltfix.deoxidation import oxygen_notes
 from meltfix.elements import element_sort_key
 from meltfix.heat import Heat, usable_materials
 from meltfix.liquidus import formula_for
 from meltfix.recipes import Grade, Material, RecipeBook
+from meltfix.treatment import contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg
 
 # Kilograms of element off aim -> penalty: 0.01 wt % of a bath of M kg is M/10000 kg, per tonne
 # of bath that is M/1000 t, so w currency per (0.01 % x t) is exactly 10 w per kg off aim.
@@ -320,6 +321,23 @@ class ModelShape:
         # Floored away from 0 so HiGHS keeps the matrix's structure (it deletes a 0 coefficient).
         return reheat_max_c, reheat_cost, coefficient if abs(coefficient) > 1e-8 else 1e-8
 
+    def _treatment_note(self, heat: Heat) -> str:
+        """How many kg of magnesium go to MgS and to fade, and what that takes of the richest
+        nodulariser in the book."""
+        settings = self.book.settings
+        bath = heat.bath_kg
+        s_pct = heat.analysis.get("S")
+        to_sulphide = bath * magnesium_for_sulphur_pct(s_pct) / 100.0
+        to_fade = bath * magnesium_fade_pct(settings) / 100.0
+        note = (f"{to_sulphide:,.1f} kg of Mg goes to MgS (S {s_pct:g} %) and {to_fade:,.1f} kg to fade "
+                f"({settings.treatment_to_pour_min:g} min to pour at {settings.mg_fade_pct_per_min:g} % per min) "
+                "before any stays in the bath")
+        carriers = [m for m in self.materials if m.composition_pct.get("Mg", 0.0) > 0]
+        if carriers:
+            richest = max(carriers, key=lambda m: m.composition_pct["Mg"] * m.recovery.get("Mg", 1.0))
+            note += f"; about {nodulariser_kg(to_sulphide + to_fade, richest):,.0f} kg of {richest.name} for these"
+        return note
+
     def load(self, heat: Heat, aim_penalty: float) -> HeatLoad:
         """Bounds, costs and moving coefficients for ``heat``."""
         book, grade, n = self.book, self.grade, self.n_materials
@@ -330,12 +348,15 @@ class ModelShape:
         # maximum and at zero against a minimum, so the plan is safe whatever the true value.
         below = np.array([s in heat.analysis.below_limit for s in self.elements], dtype=bool)
         now_low = np.where(below, 0.0, now)
-        # Aluminium the dissolved oxygen binds is gone before any stays in the bath: the Al row
-        # starts lower by it (below 0 % is a debt the additions pay first), still linear.
-        owed = aluminium_owed_pct(heat, grade)
+        # Aluminium the dissolved oxygen binds, and magnesium the sulphur binds and fade takes, are
+        # gone before any stays in the bath: the row starts lower by them (below 0 % is a debt the
+        # additions pay first), still linear.
+        owed = contents_owed_pct(heat, grade, book.settings)
         debt = np.array([owed.get(s, 0.0) / 100.0 for s in self.elements])
         now, now_low = now - debt, now_low - debt
-        notes += oxygen_notes(heat, grade, owed)
+        notes += oxygen_notes(heat, grade, {s: pct for s, pct in owed.items() if s == "Al"})
+        if "Mg" in owed:
+            notes.append(self._treatment_note(heat))
 
         row_lower = np.full(self.n_rows, -_INF)
         row_upper = np.full(self.n_rows, _INF)

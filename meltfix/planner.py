@@ -21,15 +21,15 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from meltfix.cautions import BathState, plan_cautions
-from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.numbers import LIMIT_TOL_PCT  # defined beside the tables that mark a miss
 from meltfix.plan_model import HeatLoad, HotModel, ModelShape, Solution
 from meltfix.reasons import explain_violation
-from meltfix.recipes import Grade, Material, RecipeBook
+from meltfix.recipes import Grade, Material, RecipeBook, ShopSettings
 from meltfix.sequence import AdditionStep, sequence_additions
+from meltfix.treatment import contents_owed_pct
 
 # A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
 # as HiGHS's own MIP feasibility tolerance does.
@@ -267,7 +267,7 @@ class Planner:
         steps = sequence_additions(used, book.settings)
         by_name = {a.material: a for a in additions}
         additions = [by_name[step.material] for step in steps]
-        final_kg, predicted, checks = recheck(heat, grade, used)
+        final_kg, predicted, checks = recheck(heat, grade, used, book.settings)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
         # The status is the re-check's, on every path: a solver's "optimal" at a bath so small that
         # its tolerances matter, or after the minimums are cleaned, is judged like any other plan.
@@ -277,7 +277,7 @@ class Planner:
             # The reasons are read from the least-violation plan: it shows which limit stops the
             # heat getting closer.
             least_used = _additions(shape, load, least.x)[1] if least is not None else used
-            least_final_kg = recheck(heat, grade, least_used)[0]
+            least_final_kg = recheck(heat, grade, least_used, book.settings)[0]
             least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
             for check in missed:
                 reason = explain_violation(check.element, check.limit, heat, book, load.usable, least_used,
@@ -526,12 +526,12 @@ def _step_json(step: AdditionStep | None) -> dict[str, object]:
             "stir_min": step.stir_min, "metres": step.metres}
 
 
-def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]]
+def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings
             ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
     """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
     by the plain mass balance: the plan's own re-check, also against a grade other than the one
     planned for (meltfix.risk plans to tightened windows and reports against the real ones)."""
-    owed = aluminium_owed_pct(heat, grade)
+    owed = contents_owed_pct(heat, grade, settings)
     final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
     # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
     # closest plan reports the shortfall it was planned against.

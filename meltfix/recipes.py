@@ -226,6 +226,10 @@ class ShopSettings:
     aluminium_recovery_basis: str = "killed"
     """``"killed"``: aluminium recoveries are measured on killed steel, so a dissolved-oxygen reading
     is bound first on top of them; ``"tap"``: measured from tap, the oxygen is already inside them."""
+    mg_fade_pct_per_min: float = 0.001
+    """Magnesium a treated iron loses while it waits [wt % per min] (common practice: about 0.001)."""
+    treatment_to_pour_min: float = 0.0
+    """Minutes from the magnesium treatment to pouring: the fade the treatment must cover."""
 
 
 @dataclass(frozen=True)
@@ -624,7 +628,7 @@ _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
               "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
               "max_portion_kg", "stir_min", "superheat_c", "ticket_dir",
-              "ticket_print_command", "aluminium_recovery_basis"}
+              "ticket_print_command", "aluminium_recovery_basis", "mg_fade_pct_per_min", "treatment_to_pour_min"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -693,6 +697,10 @@ def load_settings(folder: Path) -> ShopSettings:
         ticket_print_command=_optional_text(data, "ticket_print_command", path, ""),
         aluminium_recovery_basis=_recovery_basis(data.get("aluminium_recovery_basis",
                                                           defaults.aluminium_recovery_basis), path),
+        mg_fade_pct_per_min=number(data.get("mg_fade_pct_per_min", defaults.mg_fade_pct_per_min), path,
+                                   "mg_fade_pct_per_min"),
+        treatment_to_pour_min=number(data.get("treatment_to_pour_min", defaults.treatment_to_pour_min), path,
+                                     "treatment_to_pour_min"),
     )
 
 

@@ -29,11 +29,11 @@ from types import MappingProxyType
 import numpy as np
 from scipy.special import ndtr, ndtri
 
-from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.heat import Heat, checked_grade, stage_material
 from meltfix.massbalance import bath_after
 from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, PlanOptions, Planner, limit_checks, recheck
-from meltfix.recipes import ECONOMIC, Grade, Material, RecipeBook, Scatter
+from meltfix.recipes import ECONOMIC, Grade, Material, RecipeBook, Scatter, ShopSettings
+from meltfix.treatment import contents_owed_pct
 from meltfix.uncertainty import (NO_SCATTER, LimitSet, Odds, Trial, analysis_sigma_pct, draw_trial, judge,
                                  world_symbols)
 
@@ -98,14 +98,15 @@ class RiskPlan:
 # The closed form
 
 
-def limit_sigma_pct(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], scatter: Scatter,
-                    checks: Sequence[LimitCheck]) -> np.ndarray:
+def limit_sigma_pct(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings,
+                    checks: Sequence[LimitCheck], scatter: Scatter | None = None) -> np.ndarray:
     """Standard deviation [wt %] of each checked quantity after ``used`` (material, kg), linearised
-    (see the module's docstring), in the order of ``checks``."""
+    (see the module's docstring), in the order of ``checks``; ``scatter`` defaults to the shop's."""
+    scatter = settings.scatter if scatter is None else scatter
     symbols = world_symbols(heat, grade, [m for m, _ in used])[:-1]  # iron is the balance
     limits = LimitSet(grade, symbols, checks)
     weights = limits.weights  # (symbols, limits): 1 for an element's own limit, the index weights
-    owed = aluminium_owed_pct(heat, grade)
+    owed = contents_owed_pct(heat, grade, settings)
     final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
     now = np.array([heat.analysis.get(s) - owed.get(s, 0.0) for s in symbols]) / 100.0
     after = np.array([predicted.get(s, 0.0) for s in symbols]) / 100.0
@@ -193,13 +194,14 @@ class RiskPlanner:
     def _judged(self, heat: Heat, plan: Plan, trial: Trial) -> _Tried:
         grade = checked_grade(heat, self.book.grade(heat.grade))
         used = [(stage_material(heat, self.book, a.material), a.kg) for a in plan.additions]
-        sigma = limit_sigma_pct(heat, grade, used, self.book.settings.scatter, plan.checks)
+        sigma = limit_sigma_pct(heat, grade, used, self.book.settings, plan.checks)
         return _Tried(plan, judge(trial, grade, plan), sigma)
 
     def _to_target(self, heat: Heat, target: float, options: PlanOptions, trial: Trial,
                    on_paper: bool, to_aims: bool = False) -> RiskPlan:
         grade = checked_grade(heat, self.book.grade(heat.grade))
-        if not to_aims and all(c.margin_pct >= -LIMIT_TOL_PCT for c in recheck(heat, grade, [])[2]):
+        unchanged = recheck(heat, grade, [], self.book.settings)[2]
+        if not to_aims and all(c.margin_pct >= -LIMIT_TOL_PCT for c in unchanged):
             # Inside every window already: nothing to add if the odds hold as it stands.
             bare = self._judged(heat, self.planner.plan(heat, replace(options, use_aim=False)), trial)
             if not bare.plan.additions and bare.odds.heat >= target:
@@ -339,7 +341,7 @@ class RiskPlanner:
             if candidate.status != "optimal":
                 return None
             used = [(stage_material(heat, self.book, a.material), a.kg) for a in candidate.additions]
-            candidate = replace(candidate, checks=recheck(heat, grade, used)[2])
+            candidate = replace(candidate, checks=recheck(heat, grade, used, self.book.settings)[2])
             result = replace(self._judged(heat, candidate, trial), z=z, planned_to=tight)
             settled = bool(np.all(np.abs(result.sigma - sigma) <= _SIGMA_SETTLED * np.maximum(sigma, 1e-12)))
             sigma = result.sigma

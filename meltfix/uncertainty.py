@@ -21,11 +21,11 @@ from types import MappingProxyType
 
 import numpy as np
 
-from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.heat import Heat, checked_grade
 from meltfix.planner import LIMIT_TOL_PCT, LimitCheck, Plan, limit_checks
 from meltfix.recipes import Grade, LinearIndex, Material, RecipeBook, Scatter
 from meltfix.spectro import default_curve
+from meltfix.treatment import contents_owed_pct
 
 R_TO_SIGMA = 2.8
 """Repeatability limit r = 2.8 sigma for two results (ISO 5725-6, from memory)."""
@@ -108,7 +108,7 @@ def draw_world(heat: Heat, materials: Sequence[Material], symbols: Sequence[str]
     """Draw ``draws`` true heats around what was measured (``symbols`` from :func:`world_symbols`).
 
     ``owed_pct`` [wt %] is taken off the true start (aluminium bound by dissolved oxygen,
-    meltfix.deoxidation), as the planner does. The draws come from ``rng`` in a fixed order
+    meltfix.deoxidation; magnesium bound by sulphur and lost to fade, meltfix.treatment), as the planner does. The draws come from ``rng`` in a fixed order
     (recoveries, bath, analysis, below-limit readings) so that a caller may draw more after them.
     """
     content = np.array([[m.composition_pct.get(s, 0.0) / 100.0 for m in materials] for s in symbols])
@@ -197,7 +197,7 @@ def draw_trial(heat: Heat, book: RecipeBook, draws: int, seed: int, scatter: Sca
     materials = [m.at_stage(heat.stage) for m in book.materials]
     symbols = world_symbols(heat, grade, materials)
     world = draw_world(heat, materials, symbols, draws, np.random.default_rng(seed),
-                       book.settings.scatter if scatter is None else scatter, aluminium_owed_pct(heat, grade))
+                       book.settings.scatter if scatter is None else scatter, contents_owed_pct(heat, grade, book.settings))
     return Trial(world, {name: j for j, name in enumerate(book.material_names)}, draws, seed)
 
 

@@ -23,12 +23,12 @@ from scipy.stats import norm
 
 from meltfix.analysis import Analysis
 from meltfix.cli import EXIT_SHORT, main
-from meltfix.deoxidation import aluminium_owed_pct
 from meltfix.errors import InputError
 from meltfix.heat import Heat, load_heat, stage_material
 from meltfix.planner import PlanOptions, Planner
 from meltfix.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, load_settings, parse_grade, parse_material
 from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
+from meltfix.treatment import contents_owed_pct
 from meltfix.uncertainty import analysis_sigma_pct, plan_odds
 
 DEMO_HEATS = sorted((Path(__file__).resolve().parents[2] / "demo" / "heats").glob("*.toml"))
@@ -84,7 +84,8 @@ def test_one_material_odds_follow_the_closed_form() -> None:
     odds = plan_odds(heat, book, plan, draws=20_000, seed=4)
     assert odds.limits["Mn min"] == pytest.approx(expected, abs=0.015)  # 3.4 standard errors at 20 000 draws
     # The linearised standard deviation gives the same odds to well under a point.
-    sigma = limit_sigma_pct(heat, book.grade("Mn"), [(book.material("FeMn"), X)], ONLY_RECOVERY, plan.checks)
+    sigma = limit_sigma_pct(heat, book.grade("Mn"), [(book.material("FeMn"), X)], book.settings, plan.checks,
+                            ONLY_RECOVERY)
     margins = np.array([c.margin_pct for c in plan.checks])
     labels = [f"{c.element} {c.limit}" for c in plan.checks]
     assert closed_form_odds(margins, sigma)[labels.index("Mn min")] == pytest.approx(expected, abs=0.005)
@@ -155,7 +156,7 @@ def independent_odds(heat: Heat, book: RecipeBook, plan_kg: dict[str, float], dr
     rng = np.random.default_rng(seed)
     grade = book.grade(heat.grade)
     scatter = book.settings.scatter
-    owed = aluminium_owed_pct(heat, grade)
+    owed = contents_owed_pct(heat, grade, book.settings)  # the debts are input, as the curve is
     symbols = sorted(set(grade.window_pct) | {s for ix in grade.indices for s in ix.terms})
     bath = heat.bath_kg * (1 + scatter.bath * rng.standard_normal(draws))
     measured = np.array([heat.analysis.get(s) for s in symbols])
