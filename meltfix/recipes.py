@@ -18,6 +18,7 @@ from typing import Any
 
 from meltfix.elements import element_sort_key, normalise_symbol
 from meltfix.errors import InputError, control_character
+from meltfix.units import UNIT_SYSTEMS, Units
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
 RECOVERY_BASES = ("killed", "tap")
@@ -230,6 +231,8 @@ class ShopSettings:
     """Magnesium a treated iron loses while it waits [wt % per min] (common practice: about 0.001)."""
     treatment_to_pour_min: float = 0.0
     """Minutes from the magnesium treatment to pouring: the fade the treatment must cover."""
+    units: Units = Units()
+    """What people read: metric (kg, t, °C) or US (lb, short ton, °F); data and JSON stay SI."""
 
 
 @dataclass(frozen=True)
@@ -628,7 +631,8 @@ _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
               "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
               "max_portion_kg", "stir_min", "superheat_c", "ticket_dir",
-              "ticket_print_command", "aluminium_recovery_basis", "mg_fade_pct_per_min", "treatment_to_pour_min"}
+              "ticket_print_command", "aluminium_recovery_basis", "mg_fade_pct_per_min", "treatment_to_pour_min",
+              "units"}
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
 
 
@@ -701,6 +705,7 @@ def load_settings(folder: Path) -> ShopSettings:
                                    "mg_fade_pct_per_min"),
         treatment_to_pour_min=number(data.get("treatment_to_pour_min", defaults.treatment_to_pour_min), path,
                                      "treatment_to_pour_min"),
+        units=_units(data.get("units", defaults.units.system), path),
     )
 
 
@@ -709,6 +714,12 @@ def _recovery_basis(value: Any, source: object) -> str:
     if basis not in RECOVERY_BASES:
         raise InputError(source, "aluminium_recovery_basis", f"'{basis}' is not one of {', '.join(RECOVERY_BASES)}")
     return basis
+
+
+def _units(raw: Any, path: Path) -> Units:
+    if raw not in UNIT_SYSTEMS:
+        raise InputError(path, "units", f"expected \"metric\" or \"us\", got {_short(raw)}")
+    return Units(raw)
 
 
 def parse_target_odds(value: Any, source: object, field_name: str) -> float | str:

@@ -12,6 +12,7 @@ from rich.text import Text
 from meltfix.numbers import content_text, is_outside, kg_text, limit_text, margin_text, money_text, unit_of
 from meltfix.outputs import markup_safe, visible
 from meltfix.planner import Plan
+from meltfix.units import Units
 
 if TYPE_CHECKING:  # rendering needs no NumPy or SciPy of its own
     from meltfix.risk import RiskPlan
@@ -45,27 +46,32 @@ def headline(plan: Plan, risk: RiskPlan | None = None) -> str:
     return "[green]all windows met[/]" + ("" if risk is None else f" · {100 * risk.odds.heat:.1f} % odds")
 
 
-def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None = None) -> Group:
+def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None = None,
+                    units: Units = Units()) -> Group:
     """The plan as rich tables: additions, predicted chemistry, binding limits, cautions; with
-    ``odds``, a line of in-spec odds under the chemistry (and the target, with ``risk``)."""
+    ``odds``, a line of in-spec odds under the chemistry (and the target, with ``risk``). Masses,
+    costs per ton and temperatures in the shop's ``units``; notes and cautions stay as written."""
+    mass = units.mass_unit
     cur = plan.currency
     title = f"Heat {markup_safe(plan.heat_id)} · {markup_safe(plan.grade)} · " + headline(plan, risk)
     adds = Table(title="Additions", title_justify="left", expand=False)
     adds.add_column("Material")
-    adds.add_column("kg", justify="right")
+    adds.add_column(mass, justify="right")
     adds.add_column("packs", justify="right")
     adds.add_column(f"cost {cur}", justify="right")
     adds.add_column("how (in this order)")
-    hows = [step.text() for step in plan.steps] if plan.steps else [""] * len(plan.additions)
+    hows = [step.text(units) for step in plan.steps] if plan.steps else [""] * len(plan.additions)
     for a, how in zip(plan.additions, hows):
-        adds.add_row(Text(visible(a.material)), kg_text(a.kg), "" if a.packs is None else f"{a.packs} × {a.pack_kg:g} kg",
+        packs = "" if a.packs is None or a.pack_kg is None else f"{a.packs} × {units.mass(a.pack_kg):.4g} {mass}"
+        adds.add_row(Text(visible(a.material)), kg_text(units.mass(a.kg)), packs,
                      money_text(a.cost), how)
     if not plan.additions:
         adds.add_row("(nothing to add)", "", "", "", "")
     adds.add_section()
-    adds.add_row("Total", kg_text(plan.added_kg), "", money_text(plan.total_cost), "")
-    adds.caption = (f"{money_text(plan.cost_per_t)} {cur}/t · bath {kg_text(plan.bath_kg)} → {kg_text(plan.final_kg)} kg · "
-                    f"temperature {-plan.temperature_drop_c:+.1f} °C")
+    adds.add_row("Total", kg_text(units.mass(plan.added_kg)), "", money_text(plan.total_cost), "")
+    adds.caption = (f"{money_text(units.per_ton(plan.cost_per_t))} {cur}/{units.ton_unit} · bath "
+                    f"{kg_text(units.mass(plan.bath_kg))} → {kg_text(units.mass(plan.final_kg))} {mass} · "
+                    f"temperature {units.temperature_change(-plan.temperature_drop_c):+.1f} {units.temperature_unit}")
 
     chem = Table(title="Predicted chemistry (wt %, ppm for N O B H)", title_justify="left")
     for column in ("Limit", "min", "predicted", "max", "margin"):
@@ -106,5 +112,5 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
 
 
 def print_plan(plan: Plan, console: Console | None = None, odds: Odds | None = None,
-               risk: RiskPlan | None = None) -> None:
-    (console or Console()).print(plan_renderable(plan, odds, risk))
+               risk: RiskPlan | None = None, units: Units = Units()) -> None:
+    (console or Console()).print(plan_renderable(plan, odds, risk, units))

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from meltfix.recipes import Material, ShopSettings
+from meltfix.units import Units
 
 
 @dataclass(frozen=True)
@@ -29,15 +30,16 @@ class AdditionStep:
     metres: float | None = None
     """Length of wire to feed [m], for a wire; None otherwise."""
 
-    def text(self) -> str:
-        """The lots in words: "3 × 200 kg, stir 2 min between", "120 m of wire", "one lot"."""
+    def text(self, units: Units = Units()) -> str:
+        """The lots in words: "3 × 200 kg, stir 2 min between", "120 m of wire", "one lot" (masses in
+        ``units``)."""
         if self.metres is not None:
             return f"{self.metres:,.0f} m of wire"
         if len(self.portions_kg) == 1:
             return "one lot"
-        sizes = sorted({round(p, 1) for p in self.portions_kg}, reverse=True)
+        sizes = sorted({round(units.mass(p), 1) for p in self.portions_kg}, reverse=True)
         size_text = " / ".join(f"{s:,.1f}".removesuffix(".0") for s in sizes)
-        return f"{len(self.portions_kg)} × {size_text} kg, stir {self.stir_min:g} min between"
+        return f"{len(self.portions_kg)} × {size_text} {units.mass_unit}, stir {self.stir_min:g} min between"
 
 
 def class_rank(settings: ShopSettings, addition_class: str) -> int:

@@ -94,7 +94,7 @@ def _run_here(args: argparse.Namespace) -> int:
             else:
                 from meltfix.render import print_plan
 
-                print_plan(risk.plan, odds=risk.odds, risk=risk)
+                print_plan(risk.plan, odds=risk.odds, risk=risk, units=book.settings.units)
         worst = max(worst, status, key=_SEVERITY.__getitem__)
     return worst
 

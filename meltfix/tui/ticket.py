@@ -18,6 +18,7 @@ from meltfix.outputs import write_atomic
 from meltfix.elements import element_sort_key
 from meltfix.recipes import RecipeBook
 from meltfix.numbers import content_text, kg_text, limit_text, money_text, unit_of
+from meltfix.units import Units
 
 if TYPE_CHECKING:  # the planner pulls in SciPy; the ticket needs only its types
     from meltfix.heat import Heat
@@ -37,32 +38,37 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     the grade's elements and of every element the plan moves; odds; the temperature; the cautions;
     and a line for the signature of the person who decides."""
     grade = book.grade(plan.grade)
+    units = book.settings.units  # masses and temperatures as the crew reads them; the chemistry is wt %
+    mass = units.mass_unit
     lines = [
         f"ADDITION TICKET — {book.settings.shop_name}",
         f"Heat {plan.heat_id}   sample {sample or '—'}   plan {'#' + str(plan_number) if plan_number else 'not accepted yet'}",
         f"Grade {plan.grade}   stage {heat.stage}   written {written:%Y-%m-%d %H:%M}",
-        f"Bath {plan.bath_kg:,.0f} kg -> {plan.final_kg:,.0f} kg after the additions dissolve",
+        f"Bath {units.mass(plan.bath_kg):,.0f} {mass} -> {units.mass(plan.final_kg):,.0f} {mass} after the additions "
+        "dissolve",
         "",
     ]
     if plan.status != "optimal":
         lines += ["*** CLOSEST PLAN: THE GRADE IS NOT MET — see 'Out of reach' below ***", ""]
     lines.append("ADD, IN THIS ORDER")
     if plan.additions:
-        lines.append(f"  {'material':<30}{'kg':>10}")
+        lines.append(f"  {'material':<30}{mass:>10}")
         steps = plan.steps or (None,) * len(plan.additions)
         for number, (addition, step) in enumerate(zip(plan.additions, steps), start=1):
             packs = "" if addition.packs is None else (
-                f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of {addition.pack_kg:g} kg")
-            lines.append(f"{number:>2} {addition.material:<29}{kg_text(addition.kg):>10}{packs}")
+                f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of "
+                f"{units.mass(addition.pack_kg or 0.0):.4g} {mass}")
+            lines.append(f"{number:>2} {addition.material:<29}{kg_text(units.mass(addition.kg)):>10}{packs}")
             if step is not None and (step.metres is not None or len(step.portions_kg) > 1):
-                lines.append(f"{'':<5}{step.text()}")
-        lines.append(f"  {'total':<30}{kg_text(plan.added_kg):>10}")
+                lines.append(f"{'':<5}{step.text(units)}")
+        lines.append(f"  {'total':<30}{kg_text(units.mass(plan.added_kg)):>10}")
     else:
         lines.append("  nothing: the bath is already where it should be")
     lines += ["", f"Cost {money_text(plan.total_cost)} {plan.currency} "
-                  f"({money_text(plan.cost_per_t)} {plan.currency}/t)   "
-                  f"temperature change {-plan.temperature_drop_c:+.1f} °C"]
-    lines += _temperature_lines(heat, plan)
+                  f"({money_text(units.per_ton(plan.cost_per_t))} {plan.currency}/{units.ton_unit})   "
+                  f"temperature change {units.temperature_change(-plan.temperature_drop_c):+.1f} "
+                  f"{units.temperature_unit}"]
+    lines += _temperature_lines(heat, plan, units)
     if odds is not None:
         lines.append(f"Odds of landing inside every window: {100 * odds:.0f} %")
     lines.append("")
@@ -102,15 +108,18 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     return "\n".join(lines) + "\n"
 
 
-def _temperature_lines(heat: "Heat", plan: "Plan") -> list[str]:
+def _temperature_lines(heat: "Heat", plan: "Plan", units: Units) -> list[str]:
     lines = []
+    deg = units.temperature_unit
     if plan.reheat_c > 0:
-        lines.append(f"Arc heating about {plan.reheat_c:.0f} °C ({plan.reheat_min:.0f} min), "
-                     f"{money_text(plan.reheat_cost)} {plan.currency}")
+        lines.append(f"Arc heating about {units.temperature_change(plan.reheat_c):.0f} {deg} "
+                     f"({plan.reheat_min:.0f} min), {money_text(plan.reheat_cost)} {plan.currency}")
     if plan.temperature_after_c is not None and heat.temperature_c is not None:
-        lines.append(f"Temperature {heat.temperature_c:.0f} °C now -> about {plan.temperature_after_c:.0f} °C after")
-        if plan.liquidus_c is not None:
-            lines.append(f"  liquidus about {plan.liquidus_c:.0f} °C, superheat {plan.superheat_c:g} °C")
+        lines.append(f"Temperature {units.temperature(heat.temperature_c):.0f} {deg} now -> about "
+                     f"{units.temperature(plan.temperature_after_c):.0f} {deg} after")
+        if plan.liquidus_c is not None and plan.superheat_c is not None:
+            lines.append(f"  liquidus about {units.temperature(plan.liquidus_c):.0f} {deg}, superheat "
+                         f"{units.temperature_change(plan.superheat_c):g} {deg}")
     return lines
 
 

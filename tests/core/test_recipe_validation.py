@@ -166,7 +166,7 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
      "unknown key (expected one of: addition_order, aim_penalty, aluminium_recovery_basis, bath_kg_range, "
      "correction_cost, currency, large_addition_kg_per_t, max_portion_kg, max_temp_drop_c, max_unlisted_rise_pct, "
      "mg_fade_pct_per_min, plan_time_limit_s, plausible_max_pct, scatter, shop_name, spectrometer, stage, stir_min, "
-     "superheat_c, target_odds, ticket_dir, ticket_print_command, treatment_to_pour_min)"),
+     "superheat_c, target_odds, ticket_dir, ticket_print_command, treatment_to_pour_min, units)"),
     ("aluminium recovery basis misspelt", edit("shop.toml", "max_temp_drop_c = 25.0",
                                                'max_temp_drop_c = 25.0\naluminium_recovery_basis = "tapped"'),
      "shop.toml", "aluminium_recovery_basis", "'tapped' is not one of killed, tap"),
