@@ -446,7 +446,8 @@ def parse_material(entry: Mapping[str, Any], source: object, where: str,
     )
 
 
-def _stage_name(value: Any, source: object, field_name: str, stages: Collection[str]) -> str:
+def stage_name(value: Any, source: object, field_name: str, stages: Collection[str]) -> str:
+    """A stage name the shop lists ([stage.NAME] in shop.toml), else one line naming the field."""
     name = text(value, source, field_name)
     if name not in stages:
         raise InputError(source, field_name, f"'{name}' is not a stage of this shop (shop.toml lists: "
@@ -461,7 +462,7 @@ def _material_stages(entry: Mapping[str, Any], source: object, where: str,
     raw = entry["stages"]
     if not isinstance(raw, list) or not raw:
         raise InputError(source, f"{where}stages", f"expected a non-empty list of stage names, got {raw!r}")
-    return frozenset(_stage_name(name, source, f"{where}stages", stages) for name in raw)
+    return frozenset(stage_name(name, source, f"{where}stages", stages) for name in raw)
 
 
 def _recovery_by_stage(entry: Mapping[str, Any], composition: Mapping[str, float], source: object, where: str,
@@ -470,7 +471,7 @@ def _recovery_by_stage(entry: Mapping[str, Any], composition: Mapping[str, float
     result: dict[str, Mapping[str, float]] = {}
     for stage, raw in table(entry.get("recovery_by_stage", {}), source, f"{where}recovery_by_stage").items():
         field_name = f"{where}recovery_by_stage.{stage}"
-        _stage_name(stage, source, field_name, stages)
+        stage_name(stage, source, field_name, stages)
         changes = {}
         for key, value in table(raw, source, field_name).items():
             symbol = normalise_symbol(key, source, f"{field_name}.{key}")

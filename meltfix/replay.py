@@ -7,7 +7,7 @@ A recorded heat is a TOML file of our own::
     bath_kg = 80000             # liquid bath at the FIRST sample [kg]
     capacity_kg = 86000         # optional: most the vessel holds [kg]
     max_temp_drop_c = 25        # optional: largest drop additions may cause [°C]; default: the shop's
-    stage = "ladle"             # optional: "ladle" (default) or "furnace"
+    stage = "ladle"             # optional: a stage shop.toml lists (default "ladle")
     date = 2026-03-09           # optional: the day of the heat (a TOML date or a text)
 
     [[sample]]                  # one per spectrometer result, listed in time order
@@ -59,8 +59,8 @@ from meltfix.massbalance import bath_after, temperature_drop_c
 from meltfix.numbers import content_text, limit_text, unit_of
 # limit_checks is the planner's own window and index test; reused so "in spec" means one thing.
 from meltfix.planner import LIMIT_TOL_PCT, Addition, Plan, Planner, PlanOptions, limit_checks
-from meltfix.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require, table,
-                             text)
+from meltfix.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require, stage_name,
+                             table, text)
 from meltfix.risk import RiskPlanner
 
 if TYPE_CHECKING:  # a replay from a file never opens the logbook
@@ -69,7 +69,6 @@ if TYPE_CHECKING:  # a replay from a file never opens the logbook
 _RECORD_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "max_temp_drop_c", "stage", "date", "sample", "addition"}
 _SAMPLE_KEYS = {"id", "time", "temperature_c", "analysis"}
 _ADDITION_KEYS = {"time", "material", "kg"}
-_STAGES = ("ladle", "furnace")
 # Below this catalogue-predicted rise [wt %] a recovery read from two samples is mostly the
 # spectrometer's scatter (a few thousandths of a per cent, common practice), so none is hinted.
 _HINT_MIN_RISE_PCT = 0.01
@@ -170,9 +169,7 @@ def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> He
     known_keys(data, _RECORD_KEYS, source, "")
     capacity = data.get("capacity_kg")
     drop = data.get("max_temp_drop_c")
-    stage = text(data.get("stage", "ladle"), source, "stage")
-    if stage not in _STAGES:
-        raise InputError(source, "stage", f"'{stage}' is not one of {', '.join(_STAGES)}")
+    stage = text(data.get("stage", "ladle"), source, "stage")  # checked against the shop's stages
     date = data.get("date", "")
     bath_kg = number(require(data, "bath_kg", source, ""), source, "bath_kg", positive=True)
     capacity_kg = None if capacity is None else number(capacity, source, "capacity_kg", positive=True)
@@ -251,10 +248,11 @@ def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> He
 
 
 def validate_record(record: HeatRecord, book: RecipeBook) -> HeatRecord:
-    """Check the record's grade and materials against the recipe book."""
+    """Check the record's grade, stage and materials against the recipe book."""
     if record.grade not in book.grades:
         raise InputError(record.source, "grade",
                          f"unknown grade '{record.grade}' (the recipe book has: {', '.join(book.grades)})")
+    stage_name(record.stage, record.source, "stage", book.settings.stages)
     names = set(book.material_names)
     for addition in sorted(record.additions, key=lambda a: a.entry):
         if addition.material not in names:

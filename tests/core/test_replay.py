@@ -315,3 +315,23 @@ def test_entry_breaking_stock_and_forbidden_material_scores_nothing() -> None:
     assert score.points == 0
     assert any("must never receive FeB 18" in b for b in score.breaks)
     assert any("150 kg in stock" in b for b in score.breaks)
+
+
+def test_a_record_may_be_at_any_stage_the_shop_lists(tmp_path: Path) -> None:
+    # The demo shop lists furnace, ladle and lf (the ladle furnace): a record at the ladle furnace
+    # replays, planned with the ladle furnace's own rules; a stage the shop does not list is one line.
+    book = load_recipes()
+    assert "lf" in book.settings.stages
+    body = RECORDS[0].read_text(encoding="utf-8")
+    assert 'stage = "ladle"' in body
+    path = tmp_path / "at-lf.toml"
+    path.write_text(body.replace('stage = "ladle"', 'stage = "lf"', 1), encoding="utf-8")
+    record = load_record(path, book)
+    assert record.stage == "lf"
+    steps = replay(record, book)
+    assert steps and all(step.heat.stage == "lf" for step in steps)
+    path.write_text(body.replace('stage = "ladle"', 'stage = "converter"', 1), encoding="utf-8")
+    with pytest.raises(InputError) as caught:
+        load_record(path, book)
+    assert (caught.value.source, caught.value.field) == (str(path), "stage")
+    assert "furnace, ladle, lf" in caught.value.message
