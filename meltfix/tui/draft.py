@@ -23,6 +23,7 @@ SOURCE = "screen"
 _GROUPED = re.compile(r"^\d{1,3}([.,]\d{3})+$")
 # Keys of Draft.errors besides "analysis.<symbol>": whole-heat fields and the materials' overrides.
 BATH, CAPACITY, GRADE, ANALYSIS, MATERIALS = "bath_kg", "capacity_kg", "grade", "analysis", "materials"
+TEMPERATURE = "temperature_c"
 # What a melter types in a cell to declare the element knowingly not analysed (case-blind).
 NOT_MEASURED_WORDS = frozenset({"nm", "n/m", "n.m.", "not measured"})
 NOT_MEASURED = "not measured: type the value, or nm to plan with its limits unchecked"
@@ -38,6 +39,8 @@ class HeatInputs:
     stage: str
     cells: Mapping[str, str] = field(default_factory=dict)
     """Element symbol -> cell text (wt %, or ppm for N, O, B, H); empty = not measured."""
+    temperature_text: str = ""
+    """The bath temperature taken with this sample [°C]; empty = no reading."""
 
 
 @dataclass(frozen=True)
@@ -55,12 +58,13 @@ def cell_key(symbol: str) -> str:
 def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     """Replace the base heat's grade, weights, stage and analysis with the typed inputs.
 
-    ``base`` carries what the screen does not type: the heat's id, temperature and this heat's
-    material overrides. Every field is checked, so all faults show at once, not one at a time.
+    ``base`` carries what the screen does not type: the heat's id and this heat's material
+    overrides. Every field is checked, so all faults show at once, not one at a time.
     """
     errors: dict[str, str] = {}
     bath_kg = _weight(inputs.bath_text, BATH, errors, required=True)
     capacity_kg = _weight(inputs.capacity_text, CAPACITY, errors, required=False)
+    temperature_c = _temperature(inputs.temperature_text, errors)
     pct: dict[str, float] = {}
     below: set[str] = set()
     declared: set[str] = set()
@@ -86,7 +90,7 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     # A declaration from the heat file holds until a value is typed into that cell.
     not_measured = frozenset((base.not_measured - set(pct)) | declared)
     heat = base.with_changes(grade=inputs.grade, bath_kg=bath_kg, capacity_kg=capacity_kg,
-                             stage=inputs.stage, analysis=analysis, not_measured=not_measured)
+                             temperature_c=temperature_c, stage=inputs.stage, analysis=analysis, not_measured=not_measured)
     if inputs.grade in book.grades:
         # An empty cell the grade needs is never 0 %: each is marked where it is, and nothing plans.
         missing = {cell_key(s): NOT_MEASURED for s in unmeasured(heat, book.grades[inputs.grade])}
@@ -95,10 +99,15 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     try:
         validate_heat(heat, book, SOURCE)
     except InputError as exc:
-        if exc.field.startswith(f"{ANALYSIS}.") or exc.field in (BATH, CAPACITY, GRADE):
+        if exc.field.startswith(f"{ANALYSIS}.") or exc.field in (BATH, CAPACITY, GRADE, TEMPERATURE):
             return Draft(None, {exc.field: exc.message})  # said in place, beside the cell at fault
         return Draft(None, {MATERIALS: f"{exc.field}: {exc.message}"})
     return Draft(heat, {})
+
+
+def _temperature(raw: str, errors: dict[str, str]) -> float | None:
+    text = raw.strip().removesuffix("°C").removesuffix("C").strip()
+    return _positive(text, raw, TEMPERATURE, errors, "a bath temperature in °C") if text else None
 
 
 def _weight(raw: str, key: str, errors: dict[str, str], *, required: bool) -> float | None:
@@ -110,12 +119,17 @@ def _weight(raw: str, key: str, errors: dict[str, str], *, required: bool) -> fl
     if _GROUPED.match(text):
         errors[key] = f"'{raw.strip()}' is ambiguous: write the weight in kg without a thousands separator"
         return None
+    return _positive(text, raw, key, errors, "a weight above 0 kg")
+
+
+def _positive(text: str, raw: str, key: str, errors: dict[str, str], what: str) -> float | None:
+    """``text`` as a finite number above 0, else None with the reason in ``errors[key]``."""
     try:
         value = parse_number(text, SOURCE, key)
     except InputError as exc:
         errors[key] = exc.message
         return None
     if not math.isfinite(value) or value <= 0:
-        errors[key] = f"must be a weight above 0 kg, got '{raw.strip()}'"
+        errors[key] = f"must be {what}, got '{raw.strip()}'"
         return None
     return value

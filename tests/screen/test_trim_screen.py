@@ -182,3 +182,26 @@ async def test_materials_switched_off_and_locked_for_this_heat(demo_book, demo_h
         assert view.is_current and view.plan.to_json() == expected.to_json()
         kg = {a.material: a.kg for a in view.plan.additions}
         assert first not in kg and kg[second] == 40.0
+
+
+async def test_the_temperature_field_feeds_the_sample_temperature_into_the_plan(demo_book, demo_heat, tmp_path,
+                                                                                settle) -> None:
+    expected = RiskPlanner(demo_book).plan(demo_heat.with_changes(temperature_c=1580.0)).plan
+    app = make_app(demo_book, demo_heat, tickets_dir=tmp_path)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        field, view = app.screen.query_one("#temperature", Input), app.screen.query_one(PlanView)
+        assert field.value == ("" if demo_heat.temperature_c is None else f"{demo_heat.temperature_c:g}")
+        field.focus()
+        await pilot.press("ctrl+u", *"1580")
+        await settle(pilot)
+        assert view.is_current and view.plan is not None
+        assert view.plan.temperature_after_c == expected.temperature_after_c
+        assert view.plan.to_json() == expected.to_json()
+        await pilot.press("ctrl+u", *"hot")  # not a number: said in place, the plan goes stale
+        await settle(pilot)
+        assert field.has_class("-bad") and not view.is_current
+        assert app.screen.query_one("#reason-temperature").display
+        await pilot.press("ctrl+u")  # no reading: planned without a temperature
+        await settle(pilot)
+        assert view.is_current and view.plan is not None and view.plan.temperature_after_c is None

@@ -100,7 +100,7 @@ class TrimScreen(Screen[None]):
         """The logbook file; None = the logbook's own default (its environment variable)."""
         self.tickets_dir = tickets_dir
         self.base = heat
-        """The heat minus what is typed on screen: its id, temperature and material overrides."""
+        """The heat minus what is typed on screen: its id and material overrides."""
         self.opened = heat
         self.heat_path = heat_path
         self.revision = 0
@@ -127,7 +127,7 @@ class TrimScreen(Screen[None]):
                 inputs.border_title = "Heat"
                 yield HeatForm(heat.grade, f"{heat.bath_kg:g}",
                                "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage,
-                               stages=tuple(self.book.settings.stages), id="form")
+                               _temperature_text(heat), stages=tuple(self.book.settings.stages), id="form")
                 yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
             yield PlanView(id="plan")
         yield Footer(compact=True, show_command_palette=False)
@@ -143,7 +143,8 @@ class TrimScreen(Screen[None]):
         self.imported = None
         self._sync_bindings()
         self.query_one(HeatForm).set_values(heat.grade, f"{heat.bath_kg:g}",
-                                            "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage)
+                                            "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage,
+                                            _temperature_text(heat))
         await self._set_rows(heat.grade, _cell_texts(heat))
         self._update_banner()
         self.inputs_changed(base_changed=True)
@@ -169,7 +170,8 @@ class TrimScreen(Screen[None]):
     def inputs_changed(self, *, base_changed: bool = False) -> None:
         """Re-read every input; plan in the background when they hold together, else say why not."""
         form, grid, view = self.query_one(HeatForm), self.query_one(AnalysisGrid), self.query_one(PlanView)
-        inputs = HeatInputs(form.grade, form.bath_text, form.capacity_text, form.stage, grid.texts())
+        inputs = HeatInputs(form.grade, form.bath_text, form.capacity_text, form.stage, grid.texts(),
+                            form.temperature_text)
         if inputs == self._inputs and not base_changed:
             return  # a cell re-mounted or re-set to the same text: nothing to plan again
         self._inputs = inputs
@@ -234,12 +236,12 @@ class TrimScreen(Screen[None]):
             self._binding_state = state
             self.refresh_bindings()
 
-    @on(Input.Changed, ".cell, #bath, #capacity")
+    @on(Input.Changed, ".cell, #bath, #capacity, #temperature")
     @on(CycleField.Changed)
     def _input_changed(self) -> None:
         self.inputs_changed()
 
-    @on(Input.Submitted, ".cell, #bath, #capacity")
+    @on(Input.Submitted, ".cell, #bath, #capacity, #temperature")
     def _submitted(self, event: Input.Submitted) -> None:
         fields = self._fields()
         if event.input is fields[-1]:
@@ -253,7 +255,7 @@ class TrimScreen(Screen[None]):
 
     def _fields(self) -> list[Widget]:
         return [self.query_one(GradeField), self.query_one("#bath"), self.query_one("#capacity"),
-                self.query_one(CycleField), *self.query(".cell")]
+                self.query_one(CycleField), self.query_one("#temperature"), *self.query(".cell")]
 
     # -- actions --------------------------------------------------------------------------
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
@@ -376,11 +378,16 @@ class TrimScreen(Screen[None]):
 
     async def _use_sample(self, sample: SpectroSample) -> None:
         """A new sample replaces the whole analysis: cells it does not report are emptied."""
-        grade = self.query_one(HeatForm).grade
+        form = self.query_one(HeatForm)
+        grade = form.grade
         texts = _cell_texts(sample)
         await self._set_rows(grade, texts)
         self.imported = (sample, texts)
         remarks = list(sample.flags)
+        if form.temperature_text.strip():
+            # The last reading belongs to the last sample: a stale one would allow the wrong chill.
+            form.set_temperature_text("")
+            remarks.append("the temperature field is cleared: type this sample's reading")
         # The export may name the sample's heat and grade: a mismatch is worth a second look.
         if sample.heat and sample.heat != self.base.heat_id:
             remarks.append(f"the export names heat {sample.heat}, this is heat {self.base.heat_id}")
@@ -502,6 +509,11 @@ def _cell_texts(source: Heat | SpectroSample) -> dict[str, str]:
     """Grid texts for the analysis of a heat or a spectrometer sample."""
     analysis = source.analysis
     return {s: cell_text(s, pct, s in analysis.below_limit) for s, pct in analysis.pct.items()}
+
+
+def _temperature_text(heat: Heat) -> str:
+    """The temperature field's text for a heat: its reading [°C], or empty for none."""
+    return "" if heat.temperature_c is None else f"{heat.temperature_c:g}"
 
 
 def _filled(texts: Mapping[str, str]) -> dict[str, str]:

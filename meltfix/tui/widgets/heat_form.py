@@ -1,4 +1,4 @@
-"""The heat's own fields: grade, bath weight, vessel capacity and stage."""
+"""The heat's own fields: grade, bath weight, vessel capacity, stage and the sample's temperature."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from textual.content import Content
 from textual.message import Message
 from textual.widgets import Input, Label, Static
 
-from meltfix.tui.draft import BATH, CAPACITY, GRADE
+from meltfix.tui.draft import BATH, CAPACITY, GRADE, TEMPERATURE
 from meltfix.tui.widgets.reason import ReasonLine
 
 
@@ -73,17 +73,17 @@ class CycleField(Static, can_focus=True):
 
 
 class HeatForm(Vertical):
-    """Grade, bath, capacity and stage; typing posts Input.Changed, the screen does the rest."""
+    """Grade, bath, capacity, stage and temperature; typing posts Input.Changed, the screen does the rest."""
 
-    def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, *,
+    def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, temperature_text: str = "", *,
                  stages: tuple[str, ...] = ("furnace", "ladle"), id: str | None = None) -> None:
         super().__init__(id=id)
-        self._initial = (grade, bath_text, capacity_text, stage)
+        self._initial = (grade, bath_text, capacity_text, stage, temperature_text)
         self._stages = stages
         """The shop's stages, in its order (shop.toml ``[stage.NAME]``)."""
 
     def compose(self) -> ComposeResult:
-        grade, bath_text, capacity_text, stage = self._initial
+        grade, bath_text, capacity_text, stage, temperature_text = self._initial
         with Horizontal(classes="form-row"):
             yield Label("Grade", classes="form-label")
             yield GradeField(grade, id="grade")
@@ -100,6 +100,11 @@ class HeatForm(Vertical):
         with Horizontal(classes="form-row"):
             yield Label("Stage", classes="form-label")
             yield CycleField(self._stages, stage, id="stage")
+        with Horizontal(classes="form-row"):
+            yield Label("Temp °C", classes="form-label")
+            yield Input(temperature_text, id="temperature", compact=True, classes="form-input",
+                        placeholder="no reading")
+        yield ReasonLine(id="reason-temperature")
 
     @property
     def grade(self) -> str:
@@ -117,20 +122,29 @@ class HeatForm(Vertical):
     def stage(self) -> str:
         return self.query_one(CycleField).value
 
-    def set_values(self, grade: str, bath_text: str, capacity_text: str, stage: str) -> None:
+    @property
+    def temperature_text(self) -> str:
+        return self.query_one("#temperature", Input).value
+
+    def set_values(self, grade: str, bath_text: str, capacity_text: str, stage: str, temperature_text: str = "") -> None:
         self.query_one(GradeField).set_grade(grade)
         with self.prevent(Input.Changed):
             self.query_one("#bath", Input).value = bath_text
             self.query_one("#capacity", Input).value = capacity_text
+            self.query_one("#temperature", Input).value = temperature_text
         stage_field = self.query_one(CycleField)
         if stage not in stage_field.choices:
             stage_field.choices = (*stage_field.choices, stage)
         stage_field.value = stage
         stage_field.refresh()
 
+    def set_temperature_text(self, text: str) -> None:
+        with self.prevent(Input.Changed):
+            self.query_one("#temperature", Input).value = text
+
     def show_errors(self, errors: Mapping[str, str]) -> None:
         """Mark each field at fault in place, with its reason on the line below."""
-        for key, widget_id in ((GRADE, "grade"), (BATH, "bath"), (CAPACITY, "capacity")):
+        for key, widget_id in ((GRADE, "grade"), (BATH, "bath"), (CAPACITY, "capacity"), (TEMPERATURE, "temperature")):
             reason = errors.get(key)
             self.query_one(f"#{widget_id}").set_class(reason is not None, "-bad")
             self.query_one(f"#reason-{widget_id}", ReasonLine).show(reason)
