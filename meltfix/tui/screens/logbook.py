@@ -18,7 +18,7 @@ from typing import Any
 
 from rich.table import Table
 from rich.text import Text
-from textual import on, work
+from textual import events, on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical, VerticalScroll
@@ -48,6 +48,7 @@ from meltfix.replay import record_from_history
 from meltfix.numbers import content_text, kg_text, money_text, unit_of
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.replay import ReplayScreen
+from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
 
 
 @dataclass
@@ -132,6 +133,7 @@ class LogbookScreen(Screen[None]):
 
     def compose(self) -> ComposeResult:
         yield Static(id="logbook-title")
+        yield WhyNot(id="logbook-why-not")
         yield Static(id="logbook-message")
         with Vertical(id="logbook-list"):
             shifts = OptionList(id="logbook-shifts")
@@ -320,6 +322,25 @@ class LogbookScreen(Screen[None]):
             return self.mode == "list" and bool(self.heats)
         return True
 
+    def on_key(self, event: events.Key) -> None:
+        """A key whose action cannot run now reaches here (its binding declined it): say why."""
+        say_why_declined(self, event, self.query_one(WhyNot), self._why_not)
+
+    def _why_not(self, action: str, parameters: tuple[object, ...]) -> str:
+        if self.mode == "reading":
+            return "waits for the logbook to be read"
+        if action == "open_demo":
+            return "the demo week is offered only when there is no logbook to list"
+        if self.mode == "absent":
+            return f"no heat to select: the logbook lists none ({key_for(self, 'open_demo')} opens the demo week)"
+        back = key_for(self, "back")
+        if action == "replay":
+            return f"no heat selected: open a heat's history first ({key_for(self, 'open_heat')}), then replay it"
+        if action == "open_heat":
+            return ("no heat selected: this shift has no heats" if self.mode == "list"
+                    else f"this heat's history is open; {back} goes back to the heat list")
+        return f"the shifts are beside the heat list; {back} goes back to it"
+
     def action_back(self) -> None:
         if self.mode == "history":
             self._show_mode("list")
@@ -354,6 +375,7 @@ class LogbookScreen(Screen[None]):
     # -- drawing ------------------------------------------------------------------------------
     def _show_mode(self, mode: str) -> None:
         self.mode = mode
+        self.query_one(WhyNot).say(None)  # what it explained has moved on
         self.query_one("#logbook-message").display = mode in ("reading", "absent")
         self.query_one("#logbook-list").display = mode == "list"
         self.query_one("#logbook-history").display = mode == "history"

@@ -20,7 +20,7 @@ from rich import box
 from rich.console import Group, RenderableType
 from rich.table import Table
 from rich.text import Text
-from textual import on, work
+from textual import events, on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Container, Vertical, VerticalScroll
@@ -53,6 +53,7 @@ from meltfix.replay_render import (
     score_renderable,
 )
 from meltfix.tui.palette import ScreenActions
+from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
 
 @dataclass
 class ReplayReady(Message):
@@ -114,6 +115,7 @@ class ReplayScreen(Screen[None]):
 
     def compose(self) -> ComposeResult:
         yield Static(id="replay-title")
+        yield WhyNot(id="replay-why-not")
         yield OptionList(id="replay-records")
         with VerticalScroll(id="replay-body"):
             # First in the body: the entry and the score show with the analysis right under them.
@@ -193,6 +195,17 @@ class ReplayScreen(Screen[None]):
             return bool(self.steps)
         return True
 
+    def on_key(self, event: events.Key) -> None:
+        """A key whose action cannot run now reaches here (its binding declined it): say why."""
+        say_why_declined(self, event, self.query_one(WhyNot), self._why_not)
+
+    def _why_not(self, action: str, parameters: tuple[object, ...]) -> str:
+        if not self.steps:
+            return f"choose a recorded heat first ({key_for(self, 'pick_record')}), then wait for its replay"
+        if int(parameters[0]) > 0:  # type: ignore[call-overload]
+            return f"this is the last sample of the heat ({len(self.steps)} of {len(self.steps)})"
+        return "this is the first sample of the heat"
+
     def action_step(self, delta: int) -> None:
         target = self.index + delta
         if self.steps and 0 <= target < len(self.steps):
@@ -245,6 +258,7 @@ class ReplayScreen(Screen[None]):
     def _show(self) -> None:
         if not self.steps or self.record is None:
             return
+        self.query_one(WhyNot).say(None)  # what it explained has moved on
         record, step = self.record, self.steps[self.index]
         grade = self.book.grade(record.grade)
         currency = self.book.settings.currency

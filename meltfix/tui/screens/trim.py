@@ -13,7 +13,6 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from textual import events, on, work
-from textual.actions import parse
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
@@ -43,6 +42,7 @@ from meltfix.tui.ticket import print_ticket, write_ticket
 from meltfix.tui.widgets.analysis_grid import AnalysisGrid, CellSpec, window_hint
 from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
 from meltfix.tui.widgets.plan_view import PlanView
+from meltfix.tui.widgets.why_not import key_for, say_why_declined
 
 if TYPE_CHECKING:
     from meltfix.planner import Plan
@@ -269,21 +269,12 @@ class TrimScreen(Screen[None]):
 
     def on_key(self, event: events.Key) -> None:
         """A key whose action cannot run now reaches here (its binding declined it): say why."""
-        bindings = list(Binding.make_bindings(self.BINDINGS))
-        binding = next((b for b in bindings if b.key == event.key and b.description), None)
-        if binding is None:
-            return
-        _, name, parameters = parse(binding.action)
-        if self.check_action(name, parameters):
-            return
-        key = self.app.get_key_display(binding)
-        if name == "record_added":
-            accept = next(self.app.get_key_display(b) for b in bindings if b.action == "accept")
-            why = f"accept a plan first ({accept}), then record what went in"
-        else:
-            why = "waits for a plan of the inputs on screen (the line above says what stops it)"
-        self.query_one(PlanView).say(f"{key} {binding.description}: {why}")
-        event.stop()
+        say_why_declined(self, event, self.query_one(PlanView).why_not, self._why_not)
+
+    def _why_not(self, action: str, parameters: tuple[object, ...]) -> str:
+        if action == "record_added":
+            return f"accept a plan first ({key_for(self, 'accept')}), then record what went in"
+        return "waits for a plan of the inputs on screen (the line above says what stops it)"
 
     def action_step_field(self, step: int) -> None:
         fields = self._fields()

@@ -20,6 +20,7 @@ from meltfix.heat import Heat
 from meltfix.recipes import Grade
 from meltfix.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
 from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
+from meltfix.tui.widgets.why_not import WhyNot
 
 if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
     from meltfix.planner import Plan
@@ -37,7 +38,7 @@ class PlanView(Vertical):
 
     def compose(self) -> ComposeResult:
         yield Static("◌ planning…", id="plan-status")
-        yield Static(id="plan-why-not")
+        yield WhyNot(id="plan-why-not")
         with VerticalScroll(id="plan-body", can_focus=True) as body:
             body.border_title = "Plan"
             yield Static(id="plan-additions")
@@ -68,7 +69,7 @@ class PlanView(Vertical):
             status = Content.assemble(("▲ current · closest plan", "bold $text-error"),
                                       " · the grade cannot be met, see why below")
         self.query_one("#plan-status", Static).update(status)
-        self.say(None)
+        self.why_not.say(None)
         self.query_one("#plan-additions", Static).update(_additions_table(plan))
         self.query_one("#plan-totals", Static).update(_totals(plan))
         out = self.query_one("#plan-out-of-reach", Static)
@@ -95,7 +96,7 @@ class PlanView(Vertical):
         """
         self.is_current = False
         self.query_one("#plan-status", Static).update(Content.styled("◌ updating…", "$foreground-muted"))
-        self.say(None)
+        self.why_not.say(None)
 
     def mark_stale(self, reason: str) -> None:
         """No plan can be made for the inputs: keep the old one visible, plainly marked as old."""
@@ -103,13 +104,12 @@ class PlanView(Vertical):
         self.add_class("-stale")
         prefix = "✗ the plan below is for earlier inputs: " if self.plan is not None else "✗ no plan: "
         self.query_one("#plan-status", Static).update(Content.assemble((prefix, "bold $text-error"), reason))
-        self.say(None)
+        self.why_not.say(None)
 
-    def say(self, text: str | None) -> None:
-        """A line under the status saying why a key did nothing; gone at the next change of the plan."""
-        why = self.query_one("#plan-why-not", Static)
-        why.update(Content.styled(text or "", "$text-warning"))
-        why.display = text is not None
+    @property
+    def why_not(self) -> WhyNot:
+        """The line under the status saying why a key did nothing; gone at the next change of the plan."""
+        return self.query_one("#plan-why-not", WhyNot)
 
 
 def _additions_table(plan: Plan) -> Table:
