@@ -198,6 +198,7 @@ async def test_the_temperature_field_feeds_the_sample_temperature_into_the_plan(
         assert view.is_current and view.plan is not None
         assert view.plan.temperature_after_c == expected.temperature_after_c
         assert view.plan.to_json() == expected.to_json()
+        assert "1580 °C" in _shown(app.screen.query_one("#banner", Static))  # the banner follows the field
         await pilot.press("ctrl+u", *"hot")  # not a number: said in place, the plan goes stale
         await settle(pilot)
         assert field.has_class("-bad") and not view.is_current

@@ -159,8 +159,9 @@ class TrimScreen(Screen[None]):
     async def _set_rows(self, grade_name: str, texts: Mapping[str, str], extra: frozenset[str] = frozenset()) -> None:
         await self.query_one(AnalysisGrid).set_rows(self._row_specs(grade_name, texts, extra))
 
-    def _update_banner(self) -> None:
-        heat = self.base
+    def _update_banner(self, heat: Heat | None = None) -> None:
+        """The banner for ``heat`` (default: the base heat): the temperature follows the field."""
+        heat = heat or self.base
         temperature = "" if heat.temperature_c is None else f" · {heat.temperature_c:.0f} °C"
         self.query_one("#banner", Static).update(Content.assemble(
             ("meltfix", "bold"), (f" · {self.book.settings.shop_name}", "$foreground-muted"),
@@ -184,6 +185,7 @@ class TrimScreen(Screen[None]):
         if draft.heat is None:
             view.mark_stale(_summary(draft.errors))
         else:
+            self._update_banner(draft.heat)
             view.mark_updating()
             if self._planner is None:  # the first plan: the frame paints first, then the solver loads
                 self.call_after_refresh(self.plan_in_background, draft.heat, self.revision)
