@@ -21,6 +21,7 @@ from meltfix.errors import visible
 from meltfix.heat import Heat
 from meltfix.recipes import RecipeBook
 from meltfix.tui.keys import key_name
+from meltfix.tui.toast_text import fit_paths
 from meltfix.tui.screens.trim import TrimScreen
 
 EXTRA_SCREENS = {
@@ -53,8 +54,13 @@ class MeltfixApp(App[None]):
     def notify(self, message: str, *, title: str = "", severity: SeverityLevel = "information",
                timeout: float | None = None, markup: bool = True) -> None:
         # Messages carry ids, names and notes from files: always plain, visible text, never markup
-        # (a heat "KB-1 [/]" would otherwise stop the app) and never a raw control character.
-        super().notify(visible(message), title=visible(title), severity=severity, timeout=timeout, markup=False)
+        # (a heat "KB-1 [/]" would otherwise stop the app) and never a raw control character. A path
+        # is shortened to fit a toast's text (Textual's Toast: 60 columns, at most half its rack,
+        # which is the screen less a 2-column scrollbar; less its padding and left border), so the
+        # wrapping moves it whole to a line of its own rather than breaking it mid-name.
+        width = min(60, (self.size.width - 2) // 2) - 3
+        super().notify(fit_paths(visible(message), width), title=visible(title), severity=severity, timeout=timeout,
+                       markup=False)
 
     def on_mount(self) -> None:
         if self.light:  # set only when asked: a theme change restyles every widget
