@@ -32,7 +32,7 @@ bath grown by the mass balance of every addition before it (catalogue recoveries
 shops weigh the bath once and rarely again. Unknown keys are refused, not ignored.
 
 For every sample a :class:`ReplayStep` holds the plan meltfix makes there (none at a sample already
-inside every limit: nothing is needed there), the additions actually
+inside at the shop's target odds, as the risk planner judges it: nothing is needed there), the additions actually
 made before the next sample, the chemistry those additions should have produced (the mass balance
 with the catalogue's recoveries) against the next sample's measured chemistry, and both costs. The
 gap between predicted and measured hints at the real recovery (:class:`RecoveryHint`).
@@ -376,7 +376,10 @@ class ReplayStep:
     plan_error: str = ""
     """Why meltfix could not plan at this sample (the rest of the step still stands)."""
     inside: bool = False
-    """The sample already meets every limit of the grade: meltfix makes no plan there (nothing is needed)."""
+    """The sample is inside every limit at the shop's target odds as it stands: the risk planner
+    plans nothing there (nothing is needed), so the step has no plan."""
+    in_spec: bool = False
+    """The sample's measured analysis meets every limit (its odds may still be short of the target)."""
 
     @property
     def bath_kg(self) -> float:
@@ -470,17 +473,20 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
         heat = Heat(heat_id=record.heat_id, grade=record.grade, bath_kg=bath_kg, analysis=sample.analysis,
                     capacity_kg=record.capacity_kg, temperature_c=sample.temperature_c,
                     max_temp_drop_c=record.max_temp_drop_c, stage=record.stage)
-        # A sample inside every limit needs no plan: a plan there would only chase the aims, and
-        # adding it up beside the real corrections would count money nobody had to spend.
-        # A step the planner refuses is still a step of the heat: keep it, with the reason.
-        inside = not limit_misses(grade, sample.analysis.pct)
+        # A sample the risk planner finds inside at the target odds needs no plan (it plans nothing
+        # there, as `meltfix solve` would): adding a plan up beside the real corrections would count
+        # money nobody had to spend. One inside every limit but with odds short of the target gets
+        # its plan. A step the planner refuses is still a step of the heat: keep it, with the reason.
+        inside, in_spec = False, not limit_misses(grade, sample.analysis.pct)
         plan: Plan | None = None
         plan_error = ""
-        if not inside:
-            try:
-                plan = to_target.plan(heat, options=options).plan
-            except InputError as exc:
-                plan_error = exc.message
+        try:
+            judged = to_target.plan(heat, options=options).plan
+        except InputError as exc:
+            plan_error = exc.message
+        else:
+            inside = not judged.additions and in_spec
+            plan = None if inside else judged
         made = [a for a in record.additions
                 if a.minute >= sample.minute and (nxt is None or a.minute < nxt.minute)]
         actual = tuple(ActualAddition(a.clock, a.material, a.kg, a.kg * book.material(a.material).price_per_kg)
@@ -502,6 +508,7 @@ def replay(record: HeatRecord, book: RecipeBook, options: PlanOptions = PlanOpti
             recovery_hints=_recovery_hints(bath_kg, sample.analysis, used, final_kg, predicted, measured),
             plan_error=plan_error,
             inside=inside,
+            in_spec=in_spec,
         ))
         bath_kg = final_kg
     return tuple(steps)
@@ -522,7 +529,7 @@ class ReplaySummary:
     actual_cost: float
     """Everything actually added [currency]."""
     first_needed: str | None
-    """The first sample outside the grade (None: every sample was inside)."""
+    """The first sample that needed a plan, not inside at the target odds (None: every sample was inside)."""
     meltfix_cost: float | None
     """meltfix's plan at ``first_needed`` [currency]; 0 when no sample needed one; None when it could not plan."""
     ended_outside: str | None
@@ -539,7 +546,8 @@ class ReplaySummary:
 def summarise(steps: Sequence[ReplayStep]) -> ReplaySummary:
     """Actual additions against meltfix along the same path (see :class:`ReplaySummary`)."""
     first = next((s for s in steps if not s.inside), None)
-    last = steps[-1] if steps and not steps[-1].inside else None
+    # A heat tapped on a sample that meets every limit ended inside, even with odds short of the target.
+    last = steps[-1] if steps and not steps[-1].in_spec else None
     return ReplaySummary(
         actual_cost=math.fsum(s.actual_cost for s in steps),
         first_needed=None if first is None else first.sample.sample_id,

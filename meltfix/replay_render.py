@@ -128,7 +128,7 @@ def plan_renderable(step: ReplayStep, currency: str) -> Table | Group:
     """The plan meltfix makes at the step, or why it made none there."""
     if step.inside:
         return Group(Text("Plan meltfix makes", style="italic"),
-                     Text("none: this sample is inside every limit already", style="green"))
+                     Text("none: this sample is inside every limit at the target odds already", style="green"))
     if step.plan is None:
         return Group(Text("Plan meltfix makes", style="italic"), Text(f"no plan: {step.plan_error}", style="red"))
     title = "Plan meltfix makes" + ("" if step.plan.status == "optimal" else " (closest: windows missed)")

@@ -7,7 +7,7 @@
 "measured_next", "planned_cost", "actual_cost", ...}], ...}`` (see ReplayStep.to_json for every field).
 When the planner refuses a sample, that step keeps its actual additions and outcome, with
 ``"planned": []``, ``"planned_cost": null`` and the reason in ``"plan_error"``; a sample already inside
-every limit gets no plan either (``"plan_status": "inside"``, ``"plan_needed": false``).
+every limit at the shop's target odds (as the risk planner judges it) gets no plan either (``"plan_status": "inside"``, ``"plan_needed": false``).
 ``"planned_total"`` is meltfix along the same path, its plan at ``"first_needed"`` (the plans of
 later samples replace it, so they are not added), against ``"actual_total"``. Exit 0 whether or not
 the heat met its grade (a replay reports history); 2 for a bad record or recipe book.
