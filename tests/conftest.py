@@ -9,6 +9,7 @@ PostgreSQL), which turns the skip into a failure.
 from __future__ import annotations
 
 import os
+import signal
 from collections.abc import Iterator
 
 import pytest
@@ -17,6 +18,9 @@ from pg_cluster import Cluster, ClusterUnavailable, throwaway_cluster
 
 @pytest.fixture(scope="session")
 def postgres() -> Iterator[Cluster]:
+    # A run stopped with SIGTERM (a time-out, a stopped job) would skip the teardown and leave the
+    # server running: while the cluster is up, SIGTERM is handled like Ctrl+C, which pytest unwinds.
+    previous = signal.signal(signal.SIGTERM, signal.default_int_handler)
     try:
         with throwaway_cluster() as cluster:
             yield cluster
@@ -24,6 +28,8 @@ def postgres() -> Iterator[Cluster]:
         if os.environ.get("MELTFIX_REQUIRE_PG") == "1":
             pytest.fail(f"PostgreSQL is required here (MELTFIX_REQUIRE_PG=1) but unavailable: {exc}")
         pytest.skip(f"no PostgreSQL for the logbook's server tests: {exc}")
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 @pytest.fixture()
