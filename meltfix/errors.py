@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import re
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
 
 # C0 controls (tab and newline too: an error is one line), DEL, C1 controls (0x9b starts a terminal
 # command on its own), and the bidirectional overrides that reorder what a reader sees.
@@ -38,3 +41,16 @@ class InputError(Exception):
     def __str__(self) -> str:
         where = f"{self.source}: {self.field}" if self.field else self.source
         return visible(f"{where}: {self.message}")
+
+
+@contextmanager
+def file_refusals(path: Path) -> Iterator[None]:
+    """Turn the operating system's refusal to open or read ``path`` into one InputError naming it."""
+    try:
+        yield
+    except FileNotFoundError:
+        raise InputError(path, "", "file not found") from None
+    except IsADirectoryError:
+        raise InputError(path, "", "is a folder, not a file") from None
+    except OSError as exc:
+        raise InputError(path, "", f"cannot be read ({exc.strerror})") from None

@@ -17,7 +17,7 @@ from types import MappingProxyType
 from typing import Any
 
 from meltfix.elements import element_sort_key, normalise_symbol
-from meltfix.errors import InputError, control_character
+from meltfix.errors import InputError, control_character, file_refusals
 from meltfix.units import UNIT_SYSTEMS, Units
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
@@ -264,21 +264,16 @@ class RecipeBook:
 
 def read_toml(path: Path) -> dict[str, Any]:
     """Parse a TOML file, turning every failure into one InputError naming the file."""
-    try:
-        with path.open("rb") as handle:
-            return tomllib.load(handle)
-    except FileNotFoundError:
-        raise InputError(path, "", "file not found") from None
-    except IsADirectoryError:
-        raise InputError(path, "", "is a folder, not a file") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(path, "", f"not valid TOML ({exc}){_decimal_comma_hint(path, str(exc))}") from None
-    except RecursionError:
-        raise InputError(path, "", "not valid TOML: tables or lists nested too deep") from None
-    except UnicodeDecodeError:
-        raise InputError(path, "", "not a UTF-8 text file") from None
-    except OSError as exc:
-        raise InputError(path, "", f"cannot be read ({exc.strerror})") from None
+    with file_refusals(path):
+        try:
+            with path.open("rb") as handle:
+                return tomllib.load(handle)
+        except tomllib.TOMLDecodeError as exc:
+            raise InputError(path, "", f"not valid TOML ({exc}){_decimal_comma_hint(path, str(exc))}") from None
+        except RecursionError:
+            raise InputError(path, "", "not valid TOML: tables or lists nested too deep") from None
+        except UnicodeDecodeError:
+            raise InputError(path, "", "not a UTF-8 text file") from None
 
 
 _AT_LINE = re.compile(r"at line (\d+)")

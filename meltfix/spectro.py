@@ -35,7 +35,7 @@ import numpy as np
 
 from meltfix.analysis import Analysis, Reading, parse_reading
 from meltfix.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key, normalise_symbol
-from meltfix.errors import InputError
+from meltfix.errors import InputError, file_refusals
 from meltfix.recipes import ShopSettings, number, table, text
 
 # ---------------------------------------------------------------------------------------------
@@ -350,15 +350,8 @@ class _FileLines:
 
     def __init__(self, path: Path, encoding: str) -> None:
         self.path = path
-        try:
-            with path.open("rb") as file:
-                start = file.read(4)
-        except FileNotFoundError:
-            raise InputError(path, "", "file not found") from None
-        except IsADirectoryError:
-            raise InputError(path, "", "is a folder, not a file") from None
-        except OSError as exc:
-            raise InputError(path, "", f"cannot be read ({exc.strerror})") from None
+        with file_refusals(path), path.open("rb") as file:
+            start = file.read(4)
         if start.startswith(b"PK\x03\x04"):
             raise InputError(path, "", "is a spreadsheet workbook (.xlsx), not CSV text; save or export it as CSV")
         self.encoding = encoding
