@@ -3,12 +3,12 @@
     python bench/compare_methods.py [--heats 1000] [--seed 2026] [--draws 20] [--workers 2]
 
 Every heat of a seeded population (bench/population.py) is planned by meltfix and by the hand
-method of the melt shop (meltfix.handmethod), and the plans are compared: heats inside every
+method of the melt shop (meltfix.plan.handmethod), and the plans are compared: heats inside every
 window, cost per tonne, where the hand method breaks a window meltfix keeps, heats neither can
 bring inside and why. Then each plan meets an uncertain world (Monte Carlo, seeded, the same draws
 for both methods): recoveries, the bath weight and both samples scatter as the shop's [scatter]
-says (normal errors; the samples with the spectrometer's repeatability, meltfix.spectro, sigma =
-r / 2.8, the ISO 5725 relation, from memory); the draws are those of meltfix.uncertainty.
+says (normal errors; the samples with the spectrometer's repeatability, meltfix.readers.spectro, sigma =
+r / 2.8, the ISO 5725 relation, from memory); the draws are those of meltfix.plan.uncertainty.
 A second sample out of a window gets one correction, planned by the same method from what the
 melter then believes; the share of heats truly inside every window afterwards is the figure that
 matters. Last, throughput: meltfix plans per second in one process and on all cores. Figures print
@@ -29,20 +29,20 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from population import population  # bench/ is on sys.path when this file runs as a script
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.handmethod import HandPlan, hand_plan
-from meltfix.heat import Heat, stage_material
-from meltfix.planner import LIMIT_TOL_PCT, PlanOptions
-from meltfix.recipes import RecipeBook, load_recipes
-from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_quantile
-from meltfix.treatment import contents_owed_pct
-from meltfix.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
-from population import population  # bench/ is on sys.path when this file runs as a script
+from meltfix.base.errors import InputError
+from meltfix.plan.handmethod import HandPlan, hand_plan
+from meltfix.plan.result import LIMIT_TOL_PCT, PlanOptions
+from meltfix.plan.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_quantile
+from meltfix.plan.treatment import contents_owed_pct
+from meltfix.plan.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, stage_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 METHODS = ("meltfix", "hand")
 # Draws behind each meltfix plan's odds: fewer than `solve`'s 2,000, for speed; the benchmark's own
@@ -133,7 +133,7 @@ def _meltfix(index: int, heat: Heat) -> Outcome:
 
 def hand_margins_pct(heat: Heat, plan: HandPlan, book: RecipeBook) -> dict[str, float]:
     """The margin the shop keeps inside each limit [wt %], for the melter to keep too: z sigma, sigma
-    of each limit at the melter's plan without margins (meltfix.risk's linearisation), z for each
+    of each limit at the melter's plan without margins (meltfix.plan.risk's linearisation), z for each
     limit at risk reaching the k-th root of the shop's target."""
     target = book.settings.target_odds if isinstance(book.settings.target_odds, float) else 0.95
     used = [(stage_material(heat, book, a.material), a.kg) for a in plan.additions]

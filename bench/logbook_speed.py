@@ -31,10 +31,10 @@ sys.path.insert(0, str(ROOT / "tests"))
 _WRITER = """
 import sys, time
 from dataclasses import replace
-from meltfix.heat import load_heat
-from meltfix.logbook import Logbook
-from meltfix.planner import Planner
-from meltfix.recipes import load_recipes
+from meltfix.shop.heat import load_heat
+from meltfix.records.logbook import Logbook
+from meltfix.plan.planner import Planner
+from meltfix.shop.recipes import load_recipes
 from meltfix.tui.accept import record_accepted
 place, writer, heats, bare = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4] == "bare"
 if bare and "://" in place:
@@ -105,10 +105,10 @@ def _build_heats(path: Path, count: int, heat_file: Path) -> None:
     from dataclasses import replace
     from datetime import datetime, timedelta
 
-    from meltfix.heat import load_heat
-    from meltfix.logbook import Logbook
-    from meltfix.planner import Planner
-    from meltfix.recipes import load_recipes
+    from meltfix.plan.planner import Planner
+    from meltfix.records.logbook import Logbook
+    from meltfix.shop.heat import load_heat
+    from meltfix.shop.recipes import load_recipes
 
     book = load_recipes()
     heat = load_heat(heat_file, book)
@@ -125,8 +125,8 @@ def _build_heats(path: Path, count: int, heat_file: Path) -> None:
 
 
 def _report_seconds(place: str) -> float:
-    from meltfix.logbook import Logbook
-    from meltfix.report import build_report
+    from meltfix.records.logbook import Logbook
+    from meltfix.records.report import build_report
 
     with Logbook(place, create=False) as logbook:
         started = time.perf_counter()
@@ -154,7 +154,7 @@ def _read_floor_seconds(place: str) -> float:
 
 
 def _engine(name: str, accept_place: str, report_place: str, heats: int, heat_file: Path, report_heats: int) -> None:
-    from meltfix.logbook import Logbook
+    from meltfix.records.logbook import Logbook
 
     print(f"\n{name}")
     Logbook(accept_place).close()  # the logbook first: it refuses a database holding others' tables
@@ -175,9 +175,9 @@ def main() -> None:
     parser.add_argument("--heats-per-writer", type=int, default=150)
     parser.add_argument("--report-heats", type=int, default=10_000)
     args = parser.parse_args()
-    from meltfix.logbook import Logbook
-    from meltfix.logbook.copy import copy_logbook
-    from meltfix.paths import demo_dir
+    from meltfix.base.paths import demo_dir
+    from meltfix.records.logbook import Logbook
+    from meltfix.records.logbook.copy import copy_logbook
 
     heat_file = sorted((demo_dir() / "heats").glob("*.toml"))[0]
     with tempfile.TemporaryDirectory() as folder:

@@ -4,7 +4,7 @@
 
 For each demo heat: the median time of the plan on paper (the planner alone), of the same plan
 with its odds judged (`solve --on-paper`: the plan and a Monte Carlo of 2,000 draws), and of the
-risk-aware plan (`solve`, meltfix.risk), and the risk-aware plan's time as a ratio to each. The
+risk-aware plan (`solve`, meltfix.plan.risk), and the risk-aware plan's time as a ratio to each. The
 issue's goal: at most 3x the plan on paper.
 """
 
@@ -15,11 +15,11 @@ import statistics
 import time
 from collections.abc import Callable
 
-from meltfix.heat import load_heat
-from meltfix.paths import demo_dir
-from meltfix.planner import Planner
-from meltfix.recipes import load_recipes
-from meltfix.risk import RiskPlanner
+from meltfix.base.paths import demo_dir
+from meltfix.plan.planner import Planner
+from meltfix.plan.risk import RiskPlanner
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import load_recipes
 
 
 def median_ms(run: Callable[[], object], repeat: int) -> float:

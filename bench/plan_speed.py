@@ -33,12 +33,13 @@ from types import MappingProxyType
 
 import numpy as np
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat, heat_to_toml, load_heat
-from meltfix.paths import demo_dir
-from meltfix.plan_model import HotModel, ModelShape
-from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.base.paths import demo_dir
+from meltfix.plan.plan_model import HotModel, ModelShape
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, heat_to_toml, load_heat
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 
 def demo_heats(book: RecipeBook) -> list[Heat]:

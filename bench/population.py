@@ -15,9 +15,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat, needed_elements
-from meltfix.recipes import RecipeBook
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, needed_elements
+from meltfix.shop.recipes import RecipeBook
 
 
 @dataclass(frozen=True)

@@ -62,9 +62,9 @@ async def _bare_child() -> None:
         @work(thread=True)
         def solve(self) -> None:
             from meltfix.commands.screen import first_demo_heat
-            from meltfix.heat import load_heat
-            from meltfix.plan_model import HotModel, ModelShape
-            from meltfix.recipes import load_recipes
+            from meltfix.plan.plan_model import HotModel, ModelShape
+            from meltfix.shop.heat import load_heat
+            from meltfix.shop.recipes import load_recipes
 
             book = load_recipes()
             heat = load_heat(first_demo_heat(), book)

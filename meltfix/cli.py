@@ -16,14 +16,9 @@ from pathlib import Path
 from typing import NoReturn
 
 from meltfix import __version__
-from meltfix.errors import InputError
+from meltfix.base.errors import InputError
+from meltfix.commands.exits import EXIT_BAD_INPUT
 
-# Exit status (a contract scripts rely on): every window met at the target odds / bad input / only a closest plan
-# exists / every window met on paper but the odds short of the target.
-EXIT_OK = 0
-EXIT_BAD_INPUT = 2
-EXIT_CLOSEST = 3
-EXIT_SHORT = 4
 
 # Commands that print tables take --width; the narrowest width their long layouts are made for.
 TABLE_COMMANDS = ("solve", "import", "report", "replay", "recoveries")

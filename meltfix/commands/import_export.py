@@ -1,6 +1,6 @@
 """`meltfix import FILE`: read a spectrometer export, show or print its samples, optionally write a HEAT.toml.
 
-The reading, checking and averaging live in :mod:`meltfix.spectro`; this module only handles the
+The reading, checking and averaging live in :mod:`meltfix.readers.spectro`; this module only handles the
 command line: the rich table, the JSON object (a contract: keep its names) and the heat file.
 """
 
@@ -15,13 +15,13 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
-from meltfix.elements import normalise_symbol
-from meltfix.errors import InputError, visible
-from meltfix.heat import Heat, heat_to_toml, validate_heat
-from meltfix.numbers import content_text, unit_of
-from meltfix.outputs import markup_safe, write_atomic
-from meltfix.recipes import RecipeBook, ShopSettings, identifier, load_recipes, load_settings
-from meltfix.spectro import Burn, SampleStream, SpectroSample, iter_samples
+from meltfix.base.errors import InputError, visible
+from meltfix.base.outputs import markup_safe, write_atomic
+from meltfix.plan.numbers import content_text, unit_of
+from meltfix.readers.spectro import Burn, SampleStream, SpectroSample, iter_samples
+from meltfix.shop.elements import normalise_symbol
+from meltfix.shop.heat import Heat, heat_to_toml, validate_heat
+from meltfix.shop.recipes import RecipeBook, ShopSettings, identifier, load_recipes, load_settings
 
 if TYPE_CHECKING:  # rich is imported where the tables are printed
     from rich.console import Console
@@ -102,7 +102,7 @@ _SPOOL_BYTES = 4 << 20
 
 def _settings(folder: str | None) -> ShopSettings:
     if folder is None:
-        from meltfix.paths import default_recipes_dir
+        from meltfix.base.paths import default_recipes_dir
 
         try:
             path = default_recipes_dir()

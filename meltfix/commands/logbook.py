@@ -2,7 +2,7 @@
 
 SOURCE and TARGET are each a SQLite file or a postgresql:// URL (SQLite to PostgreSQL and back).
 Every heat, sample, burn, plan and addition is copied in one transaction and checked table by
-table before it is committed (see :mod:`meltfix.logbook.copy`); a target that already holds any of
+table before it is committed (see :mod:`meltfix.records.logbook.copy`); a target that already holds any of
 the same heats is refused unless ``--skip-existing``. Prints each table's rows; exit 0, or 2 with
 one line naming the logbook for bad input (nothing written then).
 """
@@ -11,8 +11,8 @@ from __future__ import annotations
 
 import argparse
 
+from meltfix.base.errors import InputError
 from meltfix.commands.logbook_args import given_logbook
-from meltfix.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -30,8 +30,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     if args.action != "copy":
         raise InputError("command line", "ACTION", "give an action: `meltfix logbook copy SOURCE TARGET`")
-    from meltfix.logbook import Logbook
-    from meltfix.logbook.copy import copy_logbook
+    from meltfix.records.logbook import Logbook
+    from meltfix.records.logbook.copy import copy_logbook
 
     with Logbook(given_logbook(args.source), create=False) as source:
         with Logbook(given_logbook(args.target)) as target:

@@ -3,7 +3,7 @@
 Each material's real recovery of each element, learnt from consecutive samples in the logbook and
 the additions made between them, with a 95 % confidence interval; where the interval excludes the
 recipe book's value (and there are enough cases) an update is proposed as lines to paste into
-materials.toml. The recipes are never edited. The maths is in :mod:`meltfix.recovery_fit`.
+materials.toml. The recipes are never edited. The maths is in :mod:`meltfix.records.recovery_fit`.
 
 ``--json`` prints one object ``{"estimates": [{"material", "element", "catalogue", "estimate",
 "ci_low", "ci_high", "cases", "propose"}], "skipped": N, "notes": [...]}`` (``ci_low`` and
@@ -17,14 +17,14 @@ import json
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from meltfix.base.errors import InputError
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
-from meltfix.errors import InputError
-from meltfix.numbers import recovery_text
+from meltfix.plan.numbers import recovery_text
 
 if TYPE_CHECKING:
     from rich.console import RenderableType
 
-    from meltfix.recovery_fit import RecoveryFit
+    from meltfix.records.recovery_fit import RecoveryFit
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -44,14 +44,14 @@ def _min_cases(value: object) -> int:
 
 
 def run(args: argparse.Namespace) -> int:
-    from meltfix.logbook import Logbook
-    from meltfix.recipes import load_recipes
+    from meltfix.records.logbook import Logbook
+    from meltfix.shop.recipes import load_recipes
 
     date_from, date_to = date_range(args)
     min_cases = _min_cases(args.min_cases)
     book = load_recipes(args.recipes)
     path = logbook_to_read(args, "recoveries")
-    from meltfix.recovery_fit import fit_logbook, toml_snippet
+    from meltfix.records.recovery_fit import fit_logbook, toml_snippet
 
     with Logbook(path, create=False) as logbook:
         fit = fit_logbook(logbook, book, date_from, date_to, min_cases)

@@ -1,7 +1,7 @@
 """`meltfix replay RECORD [--json] [--recipes DIR]`: a recorded heat beside the plans meltfix would make.
 
 `meltfix replay --heat ID [--logbook PATH]` replays a heat from the logbook instead of a file
-(its samples and the additions actually made; see meltfix.replay.record_from_history).
+(its samples and the additions actually made; see meltfix.records.replay.record_from_history).
 
 ``--json`` prints one object ``{"heat": ID, "steps": [{"sample", "planned", "actual", "predicted",
 "measured_next", "planned_cost", "actual_cost", ...}], ...}`` (see ReplayStep.to_json for every field).
@@ -11,7 +11,7 @@ every limit at the shop's target odds (as the risk planner judges it) gets no pl
 ``"planned_total"`` is meltfix along the same path, its plan at ``"first_needed"`` (the plans of
 later samples replace it, so they are not added), against ``"actual_total"``. Exit 0 whether or not
 the heat met its grade (a replay reports history); 2 for a bad record or recipe book.
-The record format is described in meltfix.replay's docstring.
+The record format is described in meltfix.records.replay's docstring.
 """
 
 from __future__ import annotations
@@ -20,12 +20,12 @@ import argparse
 import json
 from typing import TYPE_CHECKING
 
+from meltfix.base.errors import InputError
 from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
-from meltfix.errors import InputError
 
 if TYPE_CHECKING:
-    from meltfix.recipes import RecipeBook
-    from meltfix.replay import HeatRecord
+    from meltfix.records.replay import HeatRecord
+    from meltfix.shop.recipes import RecipeBook
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -38,8 +38,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from meltfix.recipes import load_recipes
-    from meltfix.replay import element_paths, replay, replay_json
+    from meltfix.records.replay import element_paths, replay, replay_json
+    from meltfix.shop.recipes import load_recipes
 
     if args.record and args.heat:
         raise InputError("command line", "RECORD", "give a record file or --heat ID, not both")
@@ -57,7 +57,7 @@ def run(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.rule import Rule
 
-    from meltfix.replay_render import fitted_path_chart, step_renderable, summary_table
+    from meltfix.present.replay_render import fitted_path_chart, step_renderable, summary_table
 
     console = Console()
     grade = book.grade(record.grade)
@@ -78,11 +78,11 @@ def run(args: argparse.Namespace) -> int:
 
 def _record(args: argparse.Namespace, book: RecipeBook) -> HeatRecord:
     """The heat to replay: the record file, or the heat's history in the logbook."""
-    from meltfix.replay import load_record, record_from_history
+    from meltfix.records.replay import load_record, record_from_history
 
     if args.record:
         return load_record(args.record, book)
-    from meltfix.logbook import Logbook
+    from meltfix.records.logbook import Logbook
 
     with Logbook(given_logbook(args.logbook), create=False) as logbook:
         history = logbook.heat_history(args.heat)

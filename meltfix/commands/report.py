@@ -2,7 +2,7 @@
 
 The supervisor's cost report from the logbook: rich tables, with bars for the figures a person
 would rather look at than read (cost per tonne of each heat and grade, each material's share).
-The numbers come from :mod:`meltfix.report`; this module only draws them.
+The numbers come from :mod:`meltfix.records.report`; this module only draws them.
 """
 
 from __future__ import annotations
@@ -12,13 +12,13 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from meltfix.base.errors import visible
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
-from meltfix.errors import visible
 
 if TYPE_CHECKING:
     from rich.console import RenderableType
 
-    from meltfix.report import CostReport
+    from meltfix.records.report import CostReport
 
 _EIGHTHS = " ▏▎▍▌▋▊▉"
 BAR_WIDTH = 24
@@ -32,11 +32,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
-    from meltfix.logbook import Logbook
+    from meltfix.records.logbook import Logbook
 
     date_from, date_to = date_range(args)
     path = logbook_to_read(args, "report")
-    from meltfix.report import build_report, write_heats_csv
+    from meltfix.records.report import build_report, write_heats_csv
 
     with Logbook(path, create=False) as logbook:
         report = build_report(logbook, date_from, date_to)

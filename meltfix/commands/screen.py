@@ -10,11 +10,11 @@ import argparse
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from meltfix.base.errors import InputError
 from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
-from meltfix.errors import InputError
 
 if TYPE_CHECKING:
-    from meltfix.recipes import RecipeBook
+    from meltfix.shop.recipes import RecipeBook
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -29,7 +29,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def first_demo_heat() -> Path:
     """The demo shop's first heat file (sorted by name)."""
-    from meltfix.paths import demo_dir
+    from meltfix.base.paths import demo_dir
 
     try:
         folder = demo_dir() / "heats"
@@ -43,8 +43,8 @@ def first_demo_heat() -> Path:
 
 def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep Textual out of this module
     """Load the recipe book and the heat (raising InputError for bad input) and make the app."""
-    from meltfix.heat import load_heat
-    from meltfix.recipes import load_recipes
+    from meltfix.shop.heat import load_heat
+    from meltfix.shop.recipes import load_recipes
     from meltfix.tui.app import make_app
 
     book = load_recipes(args.recipes)
@@ -59,7 +59,7 @@ def build_app(args: argparse.Namespace):  # -> MeltfixApp, typed loosely to keep
 
 def is_demo_shop(book: RecipeBook) -> bool:
     """Whether ``book`` is the built-in demo shop's recipe book."""
-    from meltfix.paths import default_recipes_dir
+    from meltfix.base.paths import default_recipes_dir
 
     try:
         return book.folder is not None and book.folder.resolve() == default_recipes_dir().resolve()
@@ -71,7 +71,7 @@ def demo_accepted_path() -> Path:
     """Where plans accepted on the built-in demo shop are recorded: a logbook of its own in meltfix's
     cache folder, never the user's ($MELTFIX_LOGBOOK or the default), so demo heats neither mix with
     a real shop's in its reports nor teach `meltfix recoveries` (--logbook still chooses)."""
-    from meltfix.paths import cache_dir
+    from meltfix.base.paths import cache_dir
 
     return cache_dir() / "demo-accepted.sqlite"
 

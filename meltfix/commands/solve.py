@@ -1,7 +1,7 @@
 """`meltfix solve HEAT.toml [HEAT.toml ...] [--recipes DIR] [--json]` (options, JSON and exit codes are a contract).
 
 Every plan is the cheapest whose odds of landing inside every window reach the shop's
-``target_odds`` (meltfix.risk), judged by a seeded Monte Carlo run (meltfix.uncertainty);
+``target_odds`` (meltfix.plan.risk), judged by a seeded Monte Carlo run (meltfix.plan.uncertainty);
 ``--sure P`` sets the target for one run, ``--on-paper`` gives the exact-window plan.
 """
 
@@ -11,13 +11,10 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import TYPE_CHECKING
 
-from meltfix.cli import EXIT_BAD_INPUT, EXIT_CLOSEST, EXIT_OK, EXIT_SHORT
-from meltfix.errors import InputError
-
-if TYPE_CHECKING:  # SciPy and NumPy load when a heat is planned, not to print --help
-    from meltfix.risk import RiskPlan
+from meltfix.base.errors import InputError
+from meltfix.commands.exits import EXIT_BAD_INPUT, EXIT_CLOSEST, EXIT_OK, EXIT_SHORT
+from meltfix.plan.result import RiskPlan
 
 # "Worst" status of a batch: a heat that could not be read at all outranks a closest plan, which
 # outranks a plan whose odds fall short.
@@ -59,10 +56,10 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _run_here(args: argparse.Namespace) -> int:
-    from meltfix.heat import load_heat
-    from meltfix.planner import PlanOptions
-    from meltfix.recipes import load_recipes
-    from meltfix.risk import RiskPlanner
+    from meltfix.plan.result import PlanOptions
+    from meltfix.plan.risk import RiskPlanner
+    from meltfix.shop.heat import load_heat
+    from meltfix.shop.recipes import load_recipes
 
     if args.sure is not None and not 0.0 < args.sure < 1.0:
         raise InputError("command line", "--sure", f"{args.sure:g} is not a probability between 0 and 1 (e.g. 0.95)")
@@ -92,7 +89,7 @@ def _run_here(args: argparse.Namespace) -> int:
             if args.json:
                 print(json.dumps(risk.to_json()))
             else:
-                from meltfix.render import print_plan
+                from meltfix.present.render import print_plan
 
                 print_plan(risk.plan, odds=risk.odds, risk=risk, units=book.settings.units)
         worst = max(worst, status, key=_SEVERITY.__getitem__)

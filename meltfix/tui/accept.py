@@ -1,7 +1,7 @@
 """Accepting a plan: the sample it answers goes into the logbook first, then the plan itself.
 
 Without its samples a heat recorded from the screen could not be replayed
-(``meltfix.replay.record_from_history`` starts from the first sample). Free of Textual, like
+(``meltfix.records.replay.record_from_history`` starts from the first sample). Free of Textual, like
 ``draft.py``, so the rules are plain functions.
 """
 
@@ -12,14 +12,14 @@ from datetime import datetime
 from itertools import count
 from typing import TYPE_CHECKING
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.heat import Heat
+from meltfix.base.errors import InputError
+from meltfix.plan.result import Plan
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
 
-if TYPE_CHECKING:  # types only: the screen opens the logbook, and the planner pulls in SciPy
-    from meltfix.logbook import Logbook, SampleRecord
-    from meltfix.planner import Plan
-    from meltfix.spectro import SpectroSample
+if TYPE_CHECKING:
+    from meltfix.readers.spectro import SpectroSample
+    from meltfix.records.logbook import Logbook, SampleRecord
 
 
 @dataclass(frozen=True)

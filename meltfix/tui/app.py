@@ -14,15 +14,15 @@ from pathlib import Path
 
 from textual.app import App, SystemCommand
 from textual.binding import Binding
-from textual.screen import Screen
 from textual.notifications import SeverityLevel
+from textual.screen import Screen
 
-from meltfix.errors import visible
-from meltfix.heat import Heat
-from meltfix.recipes import RecipeBook
+from meltfix.base.errors import visible
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.keys import key_name
-from meltfix.tui.toast_text import fit_paths
 from meltfix.tui.screens.trim import TrimScreen
+from meltfix.tui.toast_text import fit_paths
 
 EXTRA_SCREENS = {
     "replay": "meltfix.tui.screens.replay",

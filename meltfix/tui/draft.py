@@ -11,11 +11,11 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
-from meltfix.analysis import Analysis, parse_reading
-from meltfix.elements import PPM_ELEMENTS, parse_number
-from meltfix.errors import InputError
-from meltfix.heat import Heat, unmeasured, validate_heat
-from meltfix.recipes import RecipeBook
+from meltfix.base.errors import InputError
+from meltfix.shop.analysis import Analysis, parse_reading
+from meltfix.shop.elements import PPM_ELEMENTS, parse_number
+from meltfix.shop.heat import Heat, unmeasured, validate_heat
+from meltfix.shop.recipes import RecipeBook
 
 SOURCE = "screen"
 # "60,000" or "60.000": a thousands separator or a decimal mark? Guessing would put a 60 kg or a

@@ -3,15 +3,11 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 from textual.message import Message
 
-from meltfix.heat import Heat
-
-if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
-    from meltfix.planner import Plan
-    from meltfix.risk import RiskPlan
+from meltfix.plan.result import Plan, RiskPlan
+from meltfix.shop.heat import Heat
 
 
 @dataclass

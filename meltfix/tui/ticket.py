@@ -14,15 +14,15 @@ from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from meltfix.outputs import write_atomic
-from meltfix.elements import element_sort_key
-from meltfix.recipes import RecipeBook
-from meltfix.numbers import content_text, kg_text, limit_text, money_text, unit_of
-from meltfix.units import Units
+from meltfix.base.outputs import write_atomic
+from meltfix.base.units import Units
+from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, unit_of
+from meltfix.plan.result import Plan
+from meltfix.shop.elements import element_sort_key
+from meltfix.shop.recipes import RecipeBook
 
-if TYPE_CHECKING:  # the planner pulls in SciPy; the ticket needs only its types
-    from meltfix.heat import Heat
-    from meltfix.planner import Plan
+if TYPE_CHECKING:
+    from meltfix.shop.heat import Heat
 
 _WIDTH = 72
 

@@ -16,12 +16,12 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis
+from meltfix.base.paths import default_recipes_dir, demo_dir
 from meltfix.cli import main
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.paths import default_recipes_dir, demo_dir
-from meltfix.recipes import load_recipes
+from meltfix.records.logbook import Logbook
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import load_recipes
 
 HEAT = (demo_dir() / "heats" / "KB-24101.toml").read_text(encoding="utf-8")
 HUGE = "9" * 400
@@ -78,7 +78,7 @@ HEAT_OUT = ("--heat-out", "{folder}/out.toml", "--grade", "SAE 1045", "--bath-kg
 def logbook_case(sql: str, *argv: str) -> Callable[[Path], list[str]]:
     """A small logbook with one planned heat, damaged by ``sql``."""
     def make(folder: Path) -> list[str]:
-        from meltfix.planner import Planner
+        from meltfix.plan.planner import Planner
 
         path = folder / "log.sqlite"
         book = load_recipes()
@@ -290,7 +290,7 @@ def test_an_id_that_looks_like_markup_is_printed_as_it_is(tmp_path: Path, capsys
 def test_report_csv_cells_never_run_as_formulas(tmp_path: Path) -> None:
     # OWASP, "CSV Injection" (owasp.org/www-community/attacks/CSV_Injection): prefix a cell that starts
     # with =, +, -, @, tab or carriage return with a single quote so a spreadsheet shows it as text.
-    from meltfix.outputs import csv_cell
+    from meltfix.base.outputs import csv_cell
 
     assert [csv_cell(v) for v in ("=1+2", "+1+2", "-x", "@SUM(A1)", "\tx", "\rx", "KB-1", "-5.2", 3.5)] == [
         "'=1+2", "'+1+2", "'-x", "'@SUM(A1)", "'\tx", "'\rx", "KB-1", "-5.2", 3.5]

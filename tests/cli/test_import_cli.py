@@ -8,10 +8,10 @@ from pathlib import Path
 
 import pytest
 
+from meltfix.base.paths import demo_dir
 from meltfix.cli import main
-from meltfix.heat import load_heat
-from meltfix.paths import demo_dir
-from meltfix.recipes import load_recipes
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import load_recipes
 
 ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "tests" / "data" / "spectro"
@@ -91,7 +91,7 @@ def test_table_marks_flagged_cells_and_bounds(capsys: pytest.CaptureFixture[str]
     status, out, _ = _run(capsys, str(DATA / "three_burns_outlier.csv"), "--recipes", str(recipes))
     assert status == 0
     assert "Sample KB-24117-1" in out and "mean of 3" in out
-    assert "0.842 !" in out  # Mn to three decimals, one more than its limits (meltfix.numbers)
+    assert "0.842 !" in out  # Mn to three decimals, one more than its limits (meltfix.plan.numbers)
     assert "spark a fresh burn" in out
     status, out, _ = _run(capsys, str(DATA / "below_limit.csv"), "--recipes", str(recipes))
     assert "<0.0010" in out and "B ppm" in out and "<5.0" in out

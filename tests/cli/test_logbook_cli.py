@@ -13,8 +13,8 @@ from pathlib import Path
 import pytest
 
 from meltfix.cli import main
-from meltfix.demo_logbook import demo_logbook_path
-from meltfix.logbook import SCHEMA_VERSION, Logbook
+from meltfix.records.demo_logbook import demo_logbook_path
+from meltfix.records.logbook import SCHEMA_VERSION, Logbook
 
 TABLES = ("heat", "sample", "burn", "plan", "plan_line", "addition_batch", "addition")
 

@@ -57,7 +57,7 @@ def test_wheel_carries_recipes_and_demo(tmp_path: Path) -> None:
     assert any(n.startswith("meltfix/_data/recipes/grades/") for n in names)
     assert any(n.startswith("meltfix/_data/demo/") for n in names)
     # Run from an empty folder with only the unpacked wheel on the path: no source tree to fall back on.
-    code = ("import meltfix.paths as p, meltfix.recipes as r; "
+    code = ("import meltfix.base.paths as p, meltfix.shop.recipes as r; "
             "assert '_data' in str(p.default_recipes_dir()), p.default_recipes_dir(); "
             "book = r.load_recipes(); print(len(book.materials), len(book.grades))")
     out = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, env={"PYTHONPATH": str(site), "PATH": ""},

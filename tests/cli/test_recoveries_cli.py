@@ -14,15 +14,15 @@ from types import MappingProxyType
 import pytest
 
 from meltfix import cli
-from meltfix.analysis import Analysis
+from meltfix.base.errors import InputError
 from meltfix.commands import recoveries
-from meltfix.demo_logbook import build_demo_logbook
-from meltfix.errors import InputError
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.massbalance import bath_after
-from meltfix.planner import Planner
-from meltfix.recipes import load_recipes
+from meltfix.plan.massbalance import bath_after
+from meltfix.plan.planner import Planner
+from meltfix.records.demo_logbook import build_demo_logbook
+from meltfix.records.logbook import Logbook
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import load_recipes
 
 DAY = datetime(2026, 3, 9, 6, 0)
 # What the heats below really take up of the manganese in the built-in HC FeMn (the book says 0.90).
@@ -122,7 +122,7 @@ def test_the_demo_week_runs(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
                             capsys: pytest.CaptureFixture[str]) -> None:
     path = tmp_path / "demo.sqlite"
     build_demo_logbook(path, load_recipes(), days=2)
-    monkeypatch.setattr("meltfix.demo_logbook.demo_logbook_path", lambda book=None: path)
+    monkeypatch.setattr("meltfix.records.demo_logbook.demo_logbook_path", lambda book=None: path)
     assert _run("--demo", "--json") == 0
     out = json.loads(capsys.readouterr().out)
     assert out["estimates"] and out["skipped"] > 0

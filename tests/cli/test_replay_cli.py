@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from meltfix.cli import main
-from meltfix.recipes import load_recipes
+from meltfix.shop.recipes import load_recipes
 
 ROOT = Path(__file__).resolve().parents[2]
 RECORDS = ROOT / "demo" / "records"
@@ -74,7 +74,7 @@ def test_tables_and_chart(capsys: pytest.CaptureFixture[str]) -> None:
     status, out, _ = _run(capsys, str(RECORDS / "KB-24214.toml"))
     assert status == 0
     for text in ("Plan meltfix makes", "Actually added", "Chemistry path", "Heat summary", "A1", "A2", "A3",
-                 "61.7 %"):  # the Mn recovery the next sample implies, as a per cent (meltfix.numbers)
+                 "61.7 %"):  # the Mn recovery the next sample implies, as a per cent (meltfix.plan.numbers)
         assert text in out
 
 

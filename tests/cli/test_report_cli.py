@@ -12,11 +12,11 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis
 from meltfix.cli import main
-from meltfix.demo_logbook import build_demo_logbook
-from meltfix.logbook import Logbook
-from meltfix.recipes import load_recipes
+from meltfix.records.demo_logbook import build_demo_logbook
+from meltfix.records.logbook import Logbook
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.recipes import load_recipes
 
 
 @pytest.fixture(scope="session")

@@ -10,9 +10,9 @@ from pathlib import Path
 import pytest
 
 from meltfix.cli import main
-from meltfix.heat import load_heat
-from meltfix.planner import Planner
-from meltfix.recipes import load_recipes
+from meltfix.plan.planner import Planner
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import load_recipes
 from meltfix.tui.ticket import ticket_text
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -1,12 +1,12 @@
 """Cautions tied to the additions: carbon boil, lifting, fume, magnesium treatment, calcium wire,
-freeboard and the temperature margin. The thresholds are common practice (meltfix.cautions); these
+freeboard and the temperature margin. The thresholds are common practice (meltfix.plan.cautions); these
 tests check that each caution appears exactly when its condition holds, and that every list defers to
 the shop's procedures and local codes."""
 
 from __future__ import annotations
 
-from meltfix.cautions import ALWAYS, BathState, plan_cautions
-from meltfix.recipes import Material, ShopSettings, parse_material
+from meltfix.plan.cautions import ALWAYS, BathState, plan_cautions
+from meltfix.shop.recipes import Material, ShopSettings, parse_material
 
 SHOP = ShopSettings()
 

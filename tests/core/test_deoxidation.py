@@ -6,25 +6,25 @@ Contents in wt %, oxygen in ppm, masses in kg, recoveries as fractions.
 
 from __future__ import annotations
 
+import shutil
+import tomllib
 from dataclasses import replace
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
-import shutil
-import tomllib
-
 import periodictable
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.deoxidation import AL_PER_O, aluminium_for_oxygen_pct, aluminium_owed_pct
-from meltfix.errors import InputError
-from meltfix.heat import Heat, heat_to_toml, parse_heat, validate_heat
-from meltfix.massbalance import bath_after
-from meltfix.planner import PlanOptions, Planner
-from meltfix.paths import default_recipes_dir
-from meltfix.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
+from meltfix.base.errors import InputError
+from meltfix.base.paths import default_recipes_dir
+from meltfix.plan.deoxidation import AL_PER_O, aluminium_for_oxygen_pct, aluminium_owed_pct
+from meltfix.plan.massbalance import bath_after
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, heat_to_toml, parse_heat, validate_heat
+from meltfix.shop.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
 
 NO_AIM = PlanOptions(use_aim=False)
 W = 50_000.0  # 50 t
@@ -101,7 +101,7 @@ def test_400_ppm_oxygen_needs_0_450_kg_per_t_more_recovered_aluminium() -> None:
     assert without.status == with_o.status == "optimal"
     recovered_per_t = (al_kg(with_o) - al_kg(without)) * 0.995 * R_AL / (W / 1000)
     assert recovered_per_t == pytest.approx(0.450, abs=5e-4)
-    # Exactly the one-element closed form (meltfix.massbalance) with the start lowered by the debt:
+    # Exactly the one-element closed form (meltfix.plan.massbalance) with the start lowered by the debt:
     # x = W (c_min - c0 + 0.04497 %) / (r a - g c_min), g = 0.995 r + 0.005 (iron balance at 1).
     g = 0.995 * R_AL + 0.005
     for plan, debt in ((without, 0.0), (with_o, 1.1243 * 0.0400 / 100)):

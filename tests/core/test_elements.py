@@ -5,8 +5,8 @@ from __future__ import annotations
 import periodictable
 import pytest
 
-from meltfix.elements import ATOMIC_WEIGHT, SYMBOLS, element_sort_key, normalise_symbol, parse_number
-from meltfix.errors import InputError
+from meltfix.base.errors import InputError
+from meltfix.shop.elements import ATOMIC_WEIGHT, SYMBOLS, element_sort_key, normalise_symbol, parse_number
 
 
 @pytest.mark.parametrize("symbol", sorted(ATOMIC_WEIGHT))

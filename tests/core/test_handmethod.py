@@ -9,10 +9,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from meltfix.analysis import Analysis
-from meltfix.handmethod import HandRules, hand_plan, sheet_order, usual_materials
-from meltfix.heat import Heat
-from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.plan.handmethod import HandRules, hand_plan, sheet_order, usual_materials
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 EXACT = HandRules(loose_step_kg=0.0, scrap_step_kg=0.0)
 
@@ -66,7 +66,7 @@ def test_one_element_equals_the_closed_form(tmp_path: Path) -> None:
 
 def test_iron_fully_recovered_lies_between_the_reference_forms(tmp_path: Path) -> None:
     # With the alloy's iron all dissolving, the bath grows by g x with g = 0.78 x 0.90 + 0.22 = 0.922,
-    # and x = W (c* - c0) / (r a - g c*) (the general closed form of meltfix.massbalance) = 431.89 kg by hand:
+    # and x = W (c* - c0) / (r a - g c*) (the general closed form of meltfix.plan.massbalance) = 431.89 kg by hand:
     # between §4.4's "brief's form" (g = r, 431.78 kg) and its "alternative" (g = 1, 432.28 kg).
     book = _book(tmp_path, FEMN, MN_GRADE)
     plan = hand_plan(MN_HEAT, book, EXACT)

@@ -42,14 +42,14 @@ def test_planning_never_imports_scipy() -> None:
     """The planner runs on highspy; SciPy's optimiser took most of a one-heat `meltfix solve`."""
     code = (
         "import sys\n"
-        "import meltfix.planner\n"
+        "import meltfix.plan.planner\n"
         "assert 'scipy' not in sys.modules\n"
-        "from meltfix.heat import load_heat\n"
-        "from meltfix.paths import demo_dir\n"
-        "from meltfix.recipes import load_recipes\n"
+        "from meltfix.shop.heat import load_heat\n"
+        "from meltfix.base.paths import demo_dir\n"
+        "from meltfix.shop.recipes import load_recipes\n"
         "book = load_recipes()\n"
         "for path in sorted((demo_dir() / 'heats').glob('*.toml')):\n"
-        "    meltfix.planner.plan_heat(load_heat(path, book), book)\n"
+        "    meltfix.plan.planner.plan_heat(load_heat(path, book), book)\n"
         "assert 'scipy' not in sys.modules, sorted(m for m in sys.modules if m.startswith('scipy'))\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True)
@@ -64,7 +64,8 @@ def test_help_imports_only_the_parser() -> None:
         "except SystemExit:\n"
         "    pass\n"
         "loaded = sorted(m for m in sys.modules if m.startswith('meltfix'))\n"
-        "assert loaded == ['meltfix', 'meltfix.cli', 'meltfix.errors'], loaded\n"
+        "assert loaded == ['meltfix', 'meltfix.base', 'meltfix.base.errors', 'meltfix.cli', 'meltfix.commands',\n"
+        "                  'meltfix.commands.exits'], loaded\n"
         "assert not [m for m in ('numpy', 'rich', 'tomllib') if m in sys.modules]\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True, capture_output=True)

@@ -1,7 +1,7 @@
 """The temperature budget: liquidus formulas against points of the iron-carbon diagram, and plans
 that keep the bath at liquidus + superheat, buying arc heating where the stage can reheat.
 
-Formulas (meltfix.liquidus): steel T_L = 1536 - (78 C + 7.6 Si + 4.9 Mn + 34.4 P + 38 S + 4.7 Cu +
+Formulas (meltfix.shop.liquidus): steel T_L = 1536 - (78 C + 7.6 Si + 4.9 Mn + 34.4 P + 38 S + 4.7 Cu +
 3.1 Ni + 1.3 Cr + 3.6 Al + 2 Mo + 2 V + 18 Ti), a widely quoted linear form (coefficients from
 memory; assessed against measurements by Presoly et al., Metall. Mater. Trans. B 52 (2021)
 2821-2830); cast iron T_L = 1569 - 97.3 (C + Si/4 + P/2) (from memory).
@@ -13,11 +13,11 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.heat import load_heat, stage_material, validate_heat
-from meltfix.liquidus import CAST_IRON, STEEL
-from meltfix.planner import plan_heat
-from meltfix.recipes import load_recipes
+from meltfix.base.errors import InputError
+from meltfix.plan.planner import plan_heat
+from meltfix.shop.heat import load_heat, stage_material, validate_heat
+from meltfix.shop.liquidus import CAST_IRON, STEEL
+from meltfix.shop.recipes import load_recipes
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"
 

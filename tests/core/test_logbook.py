@@ -20,20 +20,14 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.heat import Heat
-from meltfix.logbook import (
-    APPLICATION_ID,
-    SCHEMA_VERSION,
-    Logbook,
-    PlanRecord,
-    SampleRecord,
-    Shift,
-    default_logbook_path,
-)
-from meltfix.planner import Planner, PlanOptions
-from meltfix.recipes import load_recipes
+from meltfix.base.errors import InputError
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.records.logbook import (APPLICATION_ID, SCHEMA_VERSION, Logbook, PlanRecord, SampleRecord, Shift,
+                                     default_logbook_path)
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import load_recipes
 
 T0 = datetime(2026, 3, 2, 7, 30)
 
@@ -195,7 +189,7 @@ def test_a_sample_id_is_recorded_once(place: str) -> None:
 
 
 def test_spectrometer_sample_is_recorded_with_its_burns(place: str) -> None:
-    from meltfix.spectro import read_export
+    from meltfix.readers.spectro import read_export
 
     export = Path(__file__).parents[1] / "data" / "spectro" / "three_burns_outlier.csv"
     sample = read_export(export, drop_flagged=True).samples[0]
@@ -305,7 +299,7 @@ def test_an_empty_file_becomes_a_logbook(tmp_path: Path) -> None:
 _CHILD_PRELUDE = textwrap.dedent("""
     import sys, time
     from datetime import datetime
-    from meltfix.logbook import Logbook
+    from meltfix.records.logbook import Logbook
     logbook = Logbook(sys.argv[1])
     """)
 
@@ -516,7 +510,7 @@ def test_a_kill_during_the_upgrade_backup_leaves_no_backup_the_next_run_trusts(t
     script = tmp_path / "killed_backup.py"
     script.write_text(textwrap.dedent("""
         import os, sys, time
-        from meltfix.logbook import Logbook
+        from meltfix.records.logbook import Logbook
         def stall(*args):
             print("copied", flush=True)
             time.sleep(60)
@@ -595,8 +589,8 @@ def test_a_read_only_folder_is_named_not_the_logbook(tmp_path: Path, existing: b
 def test_a_sqlite_logbook_never_loads_the_postgresql_driver(tmp_path: Path) -> None:
     code = textwrap.dedent(f"""
         import sys
-        from meltfix.analysis import Analysis
-        from meltfix.logbook import Logbook
+        from meltfix.shop.analysis import Analysis
+        from meltfix.records.logbook import Logbook
         with Logbook({str(tmp_path / "log.sqlite")!r}) as logbook:
             logbook.record_sample("H1", "S1", Analysis({{"C": 0.2}}))
             assert len(logbook.list_heats()) == 1
@@ -697,11 +691,11 @@ def test_several_stations_accepting_into_one_heat_never_share_a_sample_number(tm
     script = tmp_path / "station.py"
     script.write_text(textwrap.dedent("""
         import sys
-        from meltfix.analysis import Analysis
-        from meltfix.heat import Heat
-        from meltfix.logbook import Logbook
-        from meltfix.planner import Planner
-        from meltfix.recipes import load_recipes
+        from meltfix.shop.analysis import Analysis
+        from meltfix.shop.heat import Heat
+        from meltfix.records.logbook import Logbook
+        from meltfix.plan.planner import Planner
+        from meltfix.shop.recipes import load_recipes
         from meltfix.tui.accept import record_accepted
         heat = Heat("KB-1", "Plain", 60000.0, Analysis({"C": 0.40, "Mn": 0.52}))
         plan = Planner(load_recipes(sys.argv[2])).plan(heat)

@@ -1,4 +1,4 @@
-"""One rule per quantity for every output (meltfix.numbers), and the tables that use it."""
+"""One rule per quantity for every output (meltfix.plan.numbers), and the tables that use it."""
 
 from __future__ import annotations
 
@@ -6,9 +6,10 @@ import io
 
 from rich.console import Console
 
-from meltfix.numbers import (LIMIT_TOL_PCT, content_text, is_outside, limit_text, margin_text, recovery_text,
-                             unit_of)
-from meltfix.planner import LIMIT_TOL_PCT as PLANNER_TOL
+from meltfix.plan.numbers import content_text, limit_text, margin_text, recovery_text, unit_of
+from meltfix.plan.result import LIMIT_TOL_PCT
+from meltfix.plan.result import LIMIT_TOL_PCT as PLANNER_TOL
+from meltfix.plan.result import is_outside
 
 
 def test_limits_keep_the_decimals_their_standard_writes() -> None:
@@ -50,10 +51,10 @@ def test_plan_table_marks_a_miss_that_rounds_to_zero_in_red() -> None:
     from dataclasses import replace
 
     from meltfix.commands.screen import first_demo_heat
-    from meltfix.heat import load_heat
-    from meltfix.planner import Planner
-    from meltfix.recipes import load_recipes
-    from meltfix.render import plan_renderable
+    from meltfix.plan.planner import Planner
+    from meltfix.present.render import plan_renderable
+    from meltfix.shop.heat import load_heat
+    from meltfix.shop.recipes import load_recipes
 
     book = load_recipes()
     plan = Planner(book).plan(load_heat(first_demo_heat(), book))

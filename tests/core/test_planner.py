@@ -13,10 +13,11 @@ from typing import Any
 import numpy as np
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat
-from meltfix.planner import Plan, PlanOptions, Planner, plan_heat
-from meltfix.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.plan.planner import Planner, plan_heat
+from meltfix.plan.result import Plan, PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
 
 NO_AIM = PlanOptions(use_aim=False)
 
@@ -38,7 +39,7 @@ def kg_of(plan: Plan, name: str) -> float:
 
 
 # --------------------------------------------------------------------------------------------
-# One element, one material: x = W (c_aim - c0) / (r a - g c_aim)   (meltfix.massbalance, worked below)
+# One element, one material: x = W (c_aim - c0) / (r a - g c_aim)   (meltfix.plan.massbalance, worked below)
 
 W = 100_000.0  # 100 t
 MN_WINDOW = {"name": "Mn trim", "window": {"Mn": [0.80, 0.90], "C": [0.0, 1.0]}}
@@ -237,7 +238,7 @@ def test_carbon_too_high_in_a_ladle_points_back_to_the_furnace() -> None:
     assert plan.status == "closest"
     (violation,) = plan.violations
     assert (violation.element, violation.limit) == ("C", "max")
-    # Nothing at a ladle oxidises carbon out; the furnace's oxygen blow does (meltfix.reasons.REMEDIES,
+    # Nothing at a ladle oxidises carbon out; the furnace's oxygen blow does (meltfix.plan.reasons.REMEDIES,
     # checked in tests/core/test_reasons.py).
     assert "take the heat back to the furnace" in violation.reason
     # The free room goes to clean iron (up to the planner's hair), and Mn stays inside its window.
@@ -414,7 +415,7 @@ def test_a_full_vessel_with_copper_over_gets_a_closest_plan_not_a_refusal() -> N
     # Regression: on this heat (a demo record's furnace sample, 247 kg of room, Cu over its maximum)
     # HiGHS's LP presolve called the elastic model infeasible, though adding nothing is always a
     # point of it, and the planner refused the heat as if locks broke the vessel.
-    from meltfix.recipes import load_recipes
+    from meltfix.shop.recipes import load_recipes
 
     shop = load_recipes()
     pct = {"C": 0.453, "Si": 0.13, "Mn": 0.73, "P": 0.015, "S": 0.022, "Cr": 0.11, "Ni": 0.13, "Mo": 0.026,

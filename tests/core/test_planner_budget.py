@@ -11,11 +11,12 @@ from types import MappingProxyType
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.heat import load_heat
-from meltfix.paths import default_recipes_dir, demo_dir
-from meltfix.planner import LIMIT_TOL_PCT, PlanOptions, Planner
-from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.base.errors import InputError
+from meltfix.base.paths import default_recipes_dir, demo_dir
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import LIMIT_TOL_PCT, PlanOptions
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 
 def crowded(book: RecipeBook, count: int) -> RecipeBook:

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from meltfix.planner import PlanOptions, plan_heat
+from meltfix.plan.planner import plan_heat
+from meltfix.plan.result import PlanOptions
 from tests.core.test_planner import book, heat, kg_of
 
 NO_AIM = PlanOptions(use_aim=False)

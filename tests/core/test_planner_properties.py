@@ -17,10 +17,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat
-from meltfix.planner import Plan, PlanOptions, Planner
-from meltfix.recipes import Material, RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import Plan, PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import Material, RecipeBook, ShopSettings, parse_grade, parse_material
 
 ELEMENTS = ("C", "Si", "Mn", "Cr", "Ni", "Cu")
 FAST = settings(derandomize=True, database=None, max_examples=150, deadline=None,

@@ -31,11 +31,12 @@ import numpy as np
 import pulp
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.heat import Heat
-from meltfix.planner import Plan, PlanOptions, Planner
-from meltfix.recipes import Grade, Material, RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.base.errors import InputError
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import Plan, PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import Grade, Material, RecipeBook, ShopSettings, parse_grade, parse_material
 
 # pulp 3 announces that 4.0 will want a separately installed CBC; the bundled one is what we use.
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning:pulp")

@@ -12,11 +12,12 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat, load_heat
-from meltfix.paths import demo_dir
-from meltfix.planner import Plan, PlanOptions, Planner
-from meltfix.recipes import load_recipes
+from meltfix.base.paths import demo_dir
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import Plan, PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import load_recipes
 
 HEATS = 200
 THREADS = 4

@@ -22,11 +22,12 @@ from types import MappingProxyType
 
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat
-from meltfix.planner import PlanOptions, Planner
-from meltfix.reasons import REMEDIES, ROUTES, Remedy, remedy
-from meltfix.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.plan.planner import Planner
+from meltfix.plan.reasons import REMEDIES, ROUTES, Remedy, remedy
+from meltfix.plan.result import PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
 
 STAGES = ("furnace", "ladle", "lf")
 OXIDISABLE = ("C", "Si", "Mn", "Cr", "Al", "Ti", "V", "Nb", "B")

@@ -19,11 +19,11 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis, analysis_from_table
-from meltfix.heat import Heat
-from meltfix.paths import default_recipes_dir, demo_dir
-from meltfix.planner import Planner
-from meltfix.recipes import RecipeBook, load_recipes, read_toml
+from meltfix.base.paths import default_recipes_dir, demo_dir
+from meltfix.plan.planner import Planner
+from meltfix.shop.analysis import Analysis, analysis_from_table
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook, load_recipes, read_toml
 
 Problems = list[str]
 

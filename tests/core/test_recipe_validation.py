@@ -11,9 +11,9 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.paths import default_recipes_dir
-from meltfix.recipes import load_recipes
+from meltfix.base.errors import InputError
+from meltfix.base.paths import default_recipes_dir
+from meltfix.shop.recipes import load_recipes
 
 MATERIALS = """\
 [[material]]

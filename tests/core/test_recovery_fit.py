@@ -13,17 +13,17 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
-from meltfix.analysis import Analysis
-from meltfix.demo_logbook import build_demo_logbook
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.massbalance import bath_after
-from meltfix.planner import Planner
-from meltfix.recipes import Material, RecipeBook, load_recipes
-from meltfix.recovery_fit import (RecoveryEstimate, RecoveryFit, fit_logbook, pair_cases, toml_snippet,
-                                  weighted_ratio)
-from meltfix.spectro import default_curve
-from meltfix.uncertainty import R_TO_SIGMA
+from meltfix.plan.massbalance import bath_after
+from meltfix.plan.planner import Planner
+from meltfix.plan.uncertainty import R_TO_SIGMA
+from meltfix.records.demo_logbook import build_demo_logbook
+from meltfix.records.logbook import Logbook
+from meltfix.records.recovery_fit import (RecoveryEstimate, RecoveryFit, fit_logbook, pair_cases, toml_snippet,
+                                          weighted_ratio)
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import Material, RecipeBook, load_recipes
+from meltfix.shop.repeatability import default_curve
 
 # A manganese alloy (balance iron), a silicon alloy and a silicomanganese, so cases can be worked by hand.
 MATERIALS = """
@@ -124,7 +124,7 @@ def _one(fit: RecoveryFit, material: str, element: str):
 
 
 def test_one_case_inverts_the_mass_balance_exactly(hand_book: RecipeBook) -> None:
-    # By hand (the mass balance of meltfix.massbalance, worked here), 40 kg of an alloy of 80 % Mn (balance iron) into 10 000 kg at 0.50 % Mn with a
+    # By hand (the mass balance of meltfix.plan.massbalance, worked here), 40 kg of an alloy of 80 % Mn (balance iron) into 10 000 kg at 0.50 % Mn with a
     # true recovery 0.80: Mn 50 + 40 x 0.80 x 0.80 = 75.6 kg; bath 10 000 + 40 x (0.64 + 0.20) = 10 033.6 kg;
     # c2 = 75.6 / 10 033.6. The estimator does not know r: with the book's 0.90 the bath would be
     # 10 000 + 40 x (0.72 + 0.20) = 10 036.8 kg, of which 28.8 kg is this alloy's Mn, so
@@ -313,7 +313,7 @@ def test_on_the_demo_week_the_estimates_land_near_the_simulated_recoveries(tmp_p
     build_demo_logbook(path, book)
     with Logbook(path, create=False) as logbook:
         fit = fit_logbook(logbook, book)
-    # meltfix.demo_logbook scales each heat's recoveries by a factor drawn from N(0.98, 0.03) (clipped
+    # meltfix.records.demo_logbook scales each heat's recoveries by a factor drawn from N(0.98, 0.03) (clipped
     # to 0.85..1.05, a recovery never above 1) and weighs the bath with a 2 % scatter: on average the
     # bath takes up 0.98 of the book's recovery.
     solid = [e for e in fit.estimates if e.cases >= 8]

@@ -8,20 +8,12 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.paths import demo_dir
-from meltfix.recipes import RecipeBook, load_recipes
-from meltfix.risk import RiskPlanner
-from meltfix.replay import (
-    element_paths,
-    load_record,
-    parse_entry,
-    parse_record,
-    replay,
-    replay_json,
-    score_entry,
-    summarise,
-)
+from meltfix.base.errors import InputError
+from meltfix.base.paths import demo_dir
+from meltfix.plan.risk import RiskPlanner
+from meltfix.records.replay import (element_paths, load_record, parse_entry, parse_record, replay, replay_json,
+                                    score_entry, summarise)
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 RECORDS = sorted((demo_dir() / "records").glob("*.toml"))
 

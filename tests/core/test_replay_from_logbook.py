@@ -7,13 +7,13 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.planner import Planner
-from meltfix.recipes import RecipeBook, load_recipes
-from meltfix.replay import record_from_history, replay
+from meltfix.base.errors import InputError
+from meltfix.plan.planner import Planner
+from meltfix.records.logbook import Logbook
+from meltfix.records.replay import record_from_history, replay
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 # Two alloys and one grade, so every figure can be worked by hand.
 MATERIALS = """

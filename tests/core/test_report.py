@@ -15,11 +15,11 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.planner import Addition, Plan
-from meltfix.report import build_report, write_heats_csv
+from meltfix.plan.result import Addition, Plan
+from meltfix.records.logbook import Logbook
+from meltfix.records.report import build_report, write_heats_csv
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat
 
 
 def _heat(heat_id: str, grade: str, bath_kg: float) -> Heat:

@@ -1,9 +1,9 @@
-"""Plans to a target probability of landing inside the grade (meltfix.risk).
+"""Plans to a target probability of landing inside the grade (meltfix.plan.risk).
 
 Outside checks, named beside each: the normal distribution against scipy.stats.norm (a reference
 library); a one-element, one-material heat whose odds follow in closed form from the mass balance
 (the content is monotone in the one recovery, so P = 1 - Phi(e*/sd) exactly); the stated odds of
-200 seeded heats against a simulation written here, sharing no code with meltfix.uncertainty.
+200 seeded heats against a simulation written here, sharing no code with meltfix.plan.uncertainty.
 """
 
 from __future__ import annotations
@@ -21,15 +21,18 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.stats import norm
 
-from meltfix.analysis import Analysis
-from meltfix.cli import EXIT_SHORT, main
-from meltfix.errors import InputError
-from meltfix.heat import Heat, load_heat, stage_material
-from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, load_settings, parse_grade, parse_material
-from meltfix.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
-from meltfix.treatment import contents_owed_pct
-from meltfix.uncertainty import analysis_sigma_pct, plan_odds
+from meltfix.base.errors import InputError
+from meltfix.cli import main
+from meltfix.commands.exits import EXIT_SHORT
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.plan.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
+from meltfix.plan.treatment import contents_owed_pct
+from meltfix.plan.uncertainty import analysis_sigma_pct, plan_odds
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, load_heat, stage_material
+from meltfix.shop.recipes import (RecipeBook, Scatter, ShopSettings, load_recipes, load_settings, parse_grade,
+                                  parse_material)
 
 DEMO_HEATS = sorted((Path(__file__).resolve().parents[2] / "demo" / "heats").glob("*.toml"))
 NO_AIM_LOOSE = PlanOptions(use_aim=False, continuous=True)
@@ -151,7 +154,7 @@ def test_the_economic_target_has_the_least_expected_total_cost() -> None:
 
 def independent_odds(heat: Heat, book: RecipeBook, plan_kg: dict[str, float], draws: int, seed: int) -> float:
     """Share of ``draws`` simulated heats inside every window, written from the scatter's definition
-    (shop.toml [scatter]) with plain NumPy: no code shared with meltfix.uncertainty but the
+    (shop.toml [scatter]) with plain NumPy: no code shared with meltfix.plan.uncertainty but the
     spectrometer's sigma curve, which is input, not simulation."""
     rng = np.random.default_rng(seed)
     grade = book.grade(heat.grade)

@@ -10,10 +10,10 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.heat import load_heat
-from meltfix.planner import plan_heat
-from meltfix.recipes import ADDITION_CLASSES, Material, ShopSettings, load_recipes, parse_material
-from meltfix.sequence import portions_kg, sequence_additions
+from meltfix.plan.planner import plan_heat
+from meltfix.plan.sequence import portions_kg, sequence_additions
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import ADDITION_CLASSES, Material, ShopSettings, load_recipes, parse_material
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"
 

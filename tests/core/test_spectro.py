@@ -11,9 +11,10 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.recipes import ShopSettings
-from meltfix.spectro import ExportLayout, RepeatabilityCurve, default_curve, parse_export, read_export
+from meltfix.base.errors import InputError
+from meltfix.readers.spectro import ExportLayout, parse_export, read_export
+from meltfix.shop.recipes import ShopSettings
+from meltfix.shop.repeatability import RepeatabilityCurve, default_curve
 
 DATA = Path(__file__).resolve().parents[1] / "data" / "spectro"
 
@@ -200,7 +201,7 @@ def test_single_burn_is_kept_with_a_flag() -> None:
 
 
 def test_repeatability_curve_values() -> None:
-    # r = max(floor, 0.018*sqrt(c), 0.01*c), common practice (see meltfix.spectro).
+    # r = max(floor, 0.018*sqrt(c), 0.01*c), common practice (see meltfix.readers.spectro).
     assert default_curve("C").limit_pct(0.2) == pytest.approx(0.018 * math.sqrt(0.2))
     assert default_curve("Cr").limit_pct(18.0) == pytest.approx(0.18)
     assert default_curve("S").limit_pct(0.0001) == pytest.approx(0.001)

@@ -10,8 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.errors import InputError
-from meltfix.spectro import iter_samples, parse_export, read_export
+from meltfix.base.errors import InputError
+from meltfix.readers.spectro import iter_samples, parse_export, read_export
 
 ELEMENTS = "C Si Mn P S Cr Ni Mo Cu Al V Nb Ti B N Sn".split()
 

@@ -17,13 +17,14 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from meltfix.analysis import Analysis
-from meltfix.errors import InputError
-from meltfix.heat import Heat, load_heat, stage_material, usable_materials, validate_heat
-from meltfix.massbalance import bath_after
-from meltfix.planner import PlanOptions, Planner, plan_heat
-from meltfix.recipes import (DEFAULT_STAGES, RecipeBook, ShopSettings, Stage, load_recipes, parse_grade,
-                             parse_material)
+from meltfix.base.errors import InputError
+from meltfix.plan.massbalance import bath_after
+from meltfix.plan.planner import Planner, plan_heat
+from meltfix.plan.result import PlanOptions
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, load_heat, stage_material, usable_materials, validate_heat
+from meltfix.shop.recipes import (DEFAULT_STAGES, RecipeBook, ShopSettings, Stage, load_recipes, parse_grade,
+                                  parse_material)
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "demo" / "heats"

@@ -13,13 +13,14 @@ from types import MappingProxyType
 import periodictable
 import pytest
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat, load_heat
-from meltfix.massbalance import bath_after
-from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
-from meltfix.treatment import (MG_PER_S, contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct,
-                               magnesium_owed_pct, nodulariser_kg)
+from meltfix.plan.massbalance import bath_after
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.plan.treatment import (MG_PER_S, contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct,
+                                    magnesium_owed_pct, nodulariser_kg)
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"
 NO_AIM = PlanOptions(use_aim=False)

@@ -17,11 +17,12 @@ from typing import Any
 import pytest
 from scipy.stats import norm
 
-from meltfix.analysis import Analysis
-from meltfix.heat import Heat, load_heat
-from meltfix.planner import PlanOptions, Planner
-from meltfix.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, parse_grade, parse_material
-from meltfix.uncertainty import NO_SCATTER, plan_odds
+from meltfix.plan.planner import Planner
+from meltfix.plan.result import PlanOptions
+from meltfix.plan.uncertainty import NO_SCATTER, plan_odds
+from meltfix.shop.analysis import Analysis
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, parse_grade, parse_material
 
 DEMO_HEATS = sorted((Path(__file__).resolve().parents[2] / "demo" / "heats").glob("*.toml"))
 NO_AIM_LOOSE = PlanOptions(use_aim=False, continuous=True)

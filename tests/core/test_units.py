@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import pytest
 
-from meltfix.units import F_AT_0_C, F_PER_C, KG_PER_LB, KG_PER_SHORT_TON, Units
+from meltfix.base.units import F_AT_0_C, F_PER_C, KG_PER_LB, KG_PER_SHORT_TON, Units
 
 US = Units("us")
 METRIC = Units()

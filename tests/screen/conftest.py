@@ -11,9 +11,9 @@ from textual.app import App
 from textual.pilot import Pilot
 
 from meltfix.commands.screen import first_demo_heat
-from meltfix.demo_logbook import build_demo_logbook
-from meltfix.heat import Heat, load_heat
-from meltfix.recipes import RecipeBook, load_recipes
+from meltfix.records.demo_logbook import build_demo_logbook
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 
 @pytest.fixture(scope="session")

@@ -7,11 +7,11 @@ from pathlib import Path
 
 from textual.widgets import Input
 
-from meltfix.logbook import Logbook
-from meltfix.paths import demo_dir
-from meltfix.planner import Planner
-from meltfix.replay import record_from_history, replay
-from meltfix.spectro import read_export
+from meltfix.base.paths import demo_dir
+from meltfix.plan.planner import Planner
+from meltfix.readers.spectro import read_export
+from meltfix.records.logbook import Logbook
+from meltfix.records.replay import record_from_history, replay
 from meltfix.tui.accept import record_accepted
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.trim import TrimScreen

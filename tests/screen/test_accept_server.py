@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from meltfix.logbook import Logbook, logbook_location
+from meltfix.records.logbook import Logbook, logbook_location
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.trim import TrimScreen
 

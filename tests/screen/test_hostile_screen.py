@@ -11,6 +11,7 @@ from meltfix.tui.draft import NOT_MEASURED
 from meltfix.tui.screens.trim import TrimScreen
 from meltfix.tui.widgets.plan_view import PlanView
 
+
 def _app(book, heat, folder):
     return make_app(book, heat, tickets_dir=folder, logbook_path=folder / "log.sqlite")
 
@@ -74,8 +75,8 @@ def test_demo_heats_go_to_a_demo_logbook_never_the_users(tmp_path, monkeypatch) 
     import argparse
     import shutil
 
+    from meltfix.base.paths import default_recipes_dir
     from meltfix.commands import screen
-    from meltfix.paths import default_recipes_dir
 
     monkeypatch.setenv("MELTFIX_LOGBOOK", str(tmp_path / "real.sqlite"))
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))

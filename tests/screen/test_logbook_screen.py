@@ -11,9 +11,9 @@ from rich.console import Console
 from textual.pilot import Pilot
 from textual.widgets import DataTable, OptionList, Static
 
-from meltfix.heat import Heat
-from meltfix.logbook import Logbook
-from meltfix.recipes import RecipeBook
+from meltfix.records.logbook import Logbook
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.logbook import LogbookScreen
 from meltfix.tui.screens.replay import ReplayScreen
@@ -68,7 +68,7 @@ async def test_no_logbook_yet_says_so_and_offers_the_demo_week(
         demo_book: RecipeBook, demo_heat: Heat, one_day_logbook: Path, tmp_path: Path,
         monkeypatch: pytest.MonkeyPatch, settle: Settle) -> None:
     # The demo key opens the one-day copy rather than building the whole week here.
-    monkeypatch.setattr("meltfix.demo_logbook.demo_logbook_path", lambda book=None: one_day_logbook)
+    monkeypatch.setattr("meltfix.records.demo_logbook.demo_logbook_path", lambda book=None: one_day_logbook)
     screen = LogbookScreen(demo_book, tmp_path / "none-yet.sqlite")
     app = make_app(demo_book, demo_heat)
     async with app.run_test(size=(80, 24)) as pilot:

@@ -10,9 +10,9 @@ from textual.geometry import Region
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from meltfix.paths import demo_dir
-from meltfix.recipes import load_recipes
-from meltfix.replay import load_record
+from meltfix.base.paths import demo_dir
+from meltfix.records.replay import load_record
+from meltfix.shop.recipes import load_recipes
 from meltfix.tui.screens.replay import ReplayScreen
 
 

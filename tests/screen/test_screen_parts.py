@@ -7,8 +7,8 @@ import sys
 import textwrap
 from datetime import datetime
 
-from meltfix.planner import Planner
-from meltfix.numbers import kg_text
+from meltfix.plan.numbers import kg_text
+from meltfix.plan.planner import Planner
 from meltfix.tui.draft import ANALYSIS, BATH, CAPACITY, NOT_MEASURED, HeatInputs, build_heat, cell_key
 from meltfix.tui.ticket import ticket_text, write_ticket
 
@@ -102,11 +102,12 @@ def test_solver_writes_nothing_to_the_terminal() -> None:
     """HiGHS writes below Python's sys.stdout; a single line would corrupt the running screen
     (seen with HiGHS 1.12). Optimal, whole-pack and closest plans, at the file-descriptor level."""
     code = textwrap.dedent("""
-        from meltfix.analysis import Analysis
+        from meltfix.shop.analysis import Analysis
         from meltfix.commands.screen import first_demo_heat
-        from meltfix.heat import load_heat
-        from meltfix.planner import Planner, PlanOptions
-        from meltfix.recipes import load_recipes
+        from meltfix.shop.heat import load_heat
+        from meltfix.plan.planner import Planner
+        from meltfix.plan.result import PlanOptions
+        from meltfix.shop.recipes import load_recipes
         book = load_recipes()
         heat = load_heat(first_demo_heat(), book)
         planner = Planner(book)

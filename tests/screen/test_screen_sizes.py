@@ -14,9 +14,9 @@ from textual.app import App
 from textual.pilot import Pilot
 from textual.widgets import Input
 
-from meltfix.heat import Heat, load_heat
-from meltfix.paths import demo_dir
-from meltfix.recipes import RecipeBook
+from meltfix.base.paths import demo_dir
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.logbook import LogbookScreen
 from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
@@ -97,7 +97,7 @@ def _logbook_steps(book: RecipeBook, path: Path) -> Callable[[Pilot, Settle], Aw
 def test_screen_snapshot(screen: str, size: tuple[int, int], demo_book: RecipeBook, demo_heat: Heat,
                          demo_heat_path: Path, one_day_logbook: Path, tmp_path: Path,
                          monkeypatch: pytest.MonkeyPatch, snap_compare, settle: Settle) -> None:
-    monkeypatch.setattr("meltfix.demo_logbook.demo_logbook_path", lambda book=None: one_day_logbook)
+    monkeypatch.setattr("meltfix.records.demo_logbook.demo_logbook_path", lambda book=None: one_day_logbook)
     app = make_app(demo_book, demo_heat, heat_path=demo_heat_path, tickets_dir=Path("."))
     steps = {"trim": _trim, "materials": _materials, "help": _help, "replay": _replay,
              "logbook": _logbook_steps(demo_book, tmp_path / "none-yet.sqlite")}[screen]

@@ -8,9 +8,9 @@ import sys
 from datetime import datetime
 from pathlib import Path
 
-from meltfix.heat import load_heat
-from meltfix.planner import plan_heat
-from meltfix.recipes import load_recipes
+from meltfix.plan.planner import plan_heat
+from meltfix.shop.heat import load_heat
+from meltfix.shop.recipes import load_recipes
 from meltfix.tui.ticket import print_ticket, ticket_text, write_ticket
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"

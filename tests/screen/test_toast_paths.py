@@ -9,8 +9,8 @@ from textual.geometry import Region
 from textual.pilot import Pilot
 from textual.widgets._toast import Toast
 
-from meltfix.heat import Heat
-from meltfix.recipes import RecipeBook
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.app import make_app
 from meltfix.tui.toast_text import fit_paths, shorten_path
 

@@ -1,6 +1,6 @@
 """The trim screen driven from the keyboard with Textual's pilot.
 
-The plan on screen is checked against meltfix.planner run directly on the same typed inputs:
+The plan on screen is checked against meltfix.plan.planner run directly on the same typed inputs:
 the screen must show exactly the core's answer, never an older one.
 """
 
@@ -12,12 +12,12 @@ from textual.geometry import Region
 from textual.widget import Widget
 from textual.widgets import Input, Static
 
-from meltfix.analysis import parse_reading
-from meltfix.heat import Heat
-from meltfix.planner import Planner
-from meltfix.risk import RiskPlanner
+from meltfix.plan.numbers import kg_text
+from meltfix.plan.planner import Planner
+from meltfix.plan.risk import RiskPlanner
+from meltfix.shop.analysis import parse_reading
+from meltfix.shop.heat import Heat
 from meltfix.tui.app import make_app
-from meltfix.numbers import kg_text
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.trim import TrimScreen
 from meltfix.tui.widgets.plan_view import PlanView
@@ -157,8 +157,8 @@ def test_main_screen_snapshot(demo_book, demo_heat, demo_heat_path, snap_compare
 
 def test_screen_inputs_build_the_same_heat_as_the_file(demo_book, demo_heat: Heat) -> None:
     """The grid's texts for a heat read back as the same analysis (ppm cells included)."""
+    from meltfix.plan.numbers import cell_text
     from meltfix.tui.draft import HeatInputs, build_heat
-    from meltfix.numbers import cell_text
 
     cells = {s: cell_text(s, pct, s in demo_heat.analysis.below_limit) for s, pct in demo_heat.analysis.pct.items()}
     draft = build_heat(demo_heat, HeatInputs(demo_heat.grade, f"{demo_heat.bath_kg:g}", f"{demo_heat.capacity_kg:g}",

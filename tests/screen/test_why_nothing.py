@@ -9,10 +9,10 @@ from textual.pilot import Pilot
 from textual.screen import Screen
 from textual.widgets import Input, Label, Static
 
-from meltfix.heat import Heat
-from meltfix.paths import demo_dir
-from meltfix.recipes import RecipeBook
-from meltfix.replay import load_record
+from meltfix.base.paths import demo_dir
+from meltfix.records.replay import load_record
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.choice import ChoiceDialog
 from meltfix.tui.screens.logbook import LogbookScreen

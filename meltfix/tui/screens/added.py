@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -11,12 +9,10 @@ from textual.containers import Horizontal, Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label
 
-from meltfix.elements import parse_number
-from meltfix.errors import InputError
+from meltfix.base.errors import InputError
+from meltfix.plan.result import Plan
+from meltfix.shop.elements import parse_number
 from meltfix.tui.widgets.reason import ReasonLine
-
-if TYPE_CHECKING:  # the planner pulls in SciPy, which the screen loads only when it first plans
-    from meltfix.planner import Plan
 
 
 class AddedDialog(ModalScreen[list[tuple[str, float]] | None]):

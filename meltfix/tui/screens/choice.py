@@ -13,7 +13,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, Label, OptionList
 from textual.widgets.option_list import Option
 
-from meltfix.errors import visible
+from meltfix.base.errors import visible
 
 
 class ChoiceDialog(ModalScreen[str | None]):

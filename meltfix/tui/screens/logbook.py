@@ -28,24 +28,12 @@ from textual.widgets import DataTable, Footer, OptionList, Static
 from textual.widgets.option_list import Option
 from textual.worker import Worker, WorkerState, get_current_worker
 
-from meltfix.errors import InputError
-from meltfix.logbook import (
-    AdditionsRecord,
-    HeatEvent,
-    HeatHistory,
-    HeatSummary,
-    LineRecord,
-    Logbook,
-    PlanRecord,
-    SampleRecord,
-    ServerURL,
-    Shift,
-    default_logbook_path,
-    event_time,
-)
-from meltfix.recipes import RecipeBook
-from meltfix.replay import record_from_history
-from meltfix.numbers import content_text, kg_text, money_text, unit_of
+from meltfix.base.errors import InputError
+from meltfix.plan.numbers import content_text, kg_text, money_text, unit_of
+from meltfix.records.logbook import (AdditionsRecord, HeatEvent, HeatHistory, HeatSummary, LineRecord, Logbook,
+                                     PlanRecord, SampleRecord, ServerURL, Shift, default_logbook_path, event_time)
+from meltfix.records.replay import record_from_history
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.replay import ReplayScreen
 from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
@@ -167,7 +155,7 @@ class LogbookScreen(Screen[None]):
     def _open(self, path: Path, demo: bool) -> None:
         try:
             if demo:
-                from meltfix.demo_logbook import demo_logbook_path
+                from meltfix.records.demo_logbook import demo_logbook_path
 
                 path = demo_logbook_path(self.book)
             elif isinstance(path, ServerURL):

@@ -16,11 +16,11 @@ from textual.content import Content
 from textual.screen import ModalScreen
 from textual.widgets import DataTable, Label
 
-from meltfix.elements import parse_number
-from meltfix.errors import InputError
-from meltfix.heat import Heat, validate_heat
-from meltfix.recipes import Material, RecipeBook
-from meltfix.numbers import kg_text, money_text
+from meltfix.base.errors import InputError
+from meltfix.plan.numbers import kg_text, money_text
+from meltfix.shop.elements import parse_number
+from meltfix.shop.heat import Heat, validate_heat
+from meltfix.shop.recipes import Material, RecipeBook
 from meltfix.tui.keys import hint
 from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
 from meltfix.tui.widgets.reason import ReasonLine

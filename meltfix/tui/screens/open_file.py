@@ -15,7 +15,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, Label, OptionList
 from textual.widgets.option_list import Option
 
-from meltfix.errors import InputError, visible
+from meltfix.base.errors import InputError, visible
 from meltfix.tui.widgets.reason import ReasonLine
 
 _LISTED = 200  # a folder with thousands of files lists its first ones; typing narrows it

@@ -12,7 +12,7 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label
 
-from meltfix.errors import InputError
+from meltfix.base.errors import InputError
 from meltfix.tui.widgets.reason import ReasonLine
 
 BACKED_OUT = object()

@@ -30,30 +30,16 @@ from textual.screen import Screen
 from textual.widgets import Footer, Input, Label, OptionList, Static
 from textual.widgets.option_list import Option
 
-from meltfix.errors import InputError, visible
-from meltfix.paths import demo_dir
-from meltfix.recipes import RecipeBook
-from meltfix.replay import (
-    HeatRecord,
-    ReplayStep,
-    TrainingScore,
-    element_paths,
-    load_record,
-    parse_entry,
-    replay,
-    score_entry,
-)
-from meltfix.replay_render import (
-    additions_table,
-    chemistry_table,
-    cost_line,
-    fitted_path_chart,
-    hints_table,
-    plan_renderable,
-    score_renderable,
-)
+from meltfix.base.errors import InputError, visible
+from meltfix.base.paths import demo_dir
+from meltfix.present.replay_render import (additions_table, chemistry_table, cost_line, fitted_path_chart, hints_table,
+                                           plan_renderable, score_renderable)
+from meltfix.records.replay import (HeatRecord, ReplayStep, TrainingScore, element_paths, load_record, parse_entry,
+                                    replay, score_entry)
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
+
 
 @dataclass
 class ReplayReady(Message):

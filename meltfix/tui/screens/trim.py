@@ -22,14 +22,15 @@ from textual.widget import Widget
 from textual.widgets import Footer, Input, Static
 from textual.worker import Worker, WorkerState, get_current_worker
 
-from meltfix.elements import element_sort_key, normalise_symbol
-from meltfix.errors import InputError
-from meltfix.heat import Heat, load_heat
-from meltfix.paths import demo_dir
-from meltfix.recipes import RecipeBook
+from meltfix.base.errors import InputError
+from meltfix.base.paths import demo_dir
+from meltfix.plan.numbers import cell_text, kg_text
+from meltfix.plan.result import Plan, RiskPlan
+from meltfix.shop.elements import element_sort_key, normalise_symbol
+from meltfix.shop.heat import Heat, load_heat
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.accept import record_accepted
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat
-from meltfix.numbers import cell_text, kg_text
 from meltfix.tui.messages import PlanFailed, PlanReady
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.added import AddedDialog
@@ -45,9 +46,8 @@ from meltfix.tui.widgets.plan_view import PlanView
 from meltfix.tui.widgets.why_not import key_for, say_why_declined
 
 if TYPE_CHECKING:
-    from meltfix.planner import Plan
-    from meltfix.risk import RiskPlan, RiskPlanner
-    from meltfix.spectro import ImportResult, SpectroSample
+    from meltfix.plan.risk import RiskPlanner
+    from meltfix.readers.spectro import ImportResult, SpectroSample
 
 _FIELD_NAMES = {BATH: "bath kg", CAPACITY: "vessel kg", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
 MOVING_KEYS = (
@@ -196,7 +196,7 @@ class TrimScreen(Screen[None]):
     @work(thread=True, exclusive=True, exit_on_error=False, group="planner")
     def plan_in_background(self, heat: Heat, revision: int) -> None:
         if self._planner is None:
-            from meltfix.risk import RiskPlanner  # the solver loads here, after the first frame
+            from meltfix.plan.risk import RiskPlanner  # the solver loads here, after the first frame
 
             self._planner = RiskPlanner(self.book)
         try:
@@ -324,7 +324,7 @@ class TrimScreen(Screen[None]):
         self.app.push_screen(OpenFileDialog("Open a heat file", folder, [".toml"], read), opened)
 
     def action_read_export(self) -> None:
-        from meltfix.spectro import read_export
+        from meltfix.readers.spectro import read_export
 
         folder = _demo_folder("spectro")
 
@@ -400,7 +400,7 @@ class TrimScreen(Screen[None]):
         self.app.push_screen(MaterialsDialog(self.book, self.base, self.query_one(HeatForm).grade), closed)
 
     def action_accept(self) -> None:
-        from meltfix.logbook import Logbook
+        from meltfix.records.logbook import Logbook
 
         if self.current is None:
             self.notify("The plan is being brought up to date; try again in a moment.", title="Accept")
@@ -434,7 +434,7 @@ class TrimScreen(Screen[None]):
         def recorded(made: list[tuple[str, float]] | None) -> None:
             if made is None:
                 return
-            from meltfix.logbook import Logbook
+            from meltfix.records.logbook import Logbook
 
             try:
                 with Logbook(self.logbook_path, book=self.book) as records:

@@ -10,9 +10,9 @@ from textual.containers import Horizontal, Vertical
 from textual.content import Content
 from textual.widgets import Input, Label, Static
 
-from meltfix.recipes import Grade
+from meltfix.plan.numbers import limit_text, unit_of
+from meltfix.shop.recipes import Grade
 from meltfix.tui.draft import cell_key
-from meltfix.numbers import limit_text, unit_of
 from meltfix.tui.widgets.reason import ReasonLine
 
 

@@ -7,8 +7,6 @@ difference impossible to miss.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 from rich.table import Table
 from rich.text import Text
 from textual.app import ComposeResult
@@ -16,15 +14,12 @@ from textual.containers import Vertical, VerticalScroll
 from textual.content import Content
 from textual.widgets import Static
 
-from meltfix.heat import Heat
-from meltfix.recipes import Grade
-from meltfix.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
+from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
+from meltfix.plan.result import Plan, RiskPlan
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import Grade
 from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
 from meltfix.tui.widgets.why_not import WhyNot
-
-if TYPE_CHECKING:  # the planner pulls in SciPy, loaded only by the planning worker
-    from meltfix.planner import Plan
-    from meltfix.risk import RiskPlan
 
 
 class PlanView(Vertical):

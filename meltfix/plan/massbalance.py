@@ -1,0 +1,54 @@
+"""The mass balance of additions to a bath, written plainly.
+
+Kept apart from the optimiser so that plans, replays and tests can re-check any set of additions
+with arithmetic that shares nothing with the LP's matrices.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Mapping
+
+from meltfix.shop.elements import element_sort_key
+from meltfix.shop.recipes import Material
+
+
+def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],
+               additions: Iterable[tuple[Material, float]],
+               owed_pct: Mapping[str, float] | None = None) -> tuple[float, dict[str, float]]:
+    """Bath mass [kg] and analysis [wt %] after dissolving ``additions`` (material, kg).
+
+    Element mass after: W*c + sum(a*r*x); bath mass after: W + sum(x * sum_i a_i*r_i), iron
+    balance included, so the bath grows only by what actually dissolves. ``owed_pct`` [wt % of the
+    bath now] is taken off the start before the additions count: the aluminium dissolved oxygen
+    binds (meltfix.plan.deoxidation), so a content can come out below 0 % when the debt is not paid.
+    The bath mass is left as it is: the alumina leaving takes under 0.1 % of it at 400 ppm O.
+    """
+    element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in analysis_pct.items()}
+    for symbol, pct in (owed_pct or {}).items():
+        element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
+    final_kg = bath_kg
+    for material, kg in additions:
+        for symbol, pct in material.composition_pct.items():
+            dissolved = kg * pct / 100.0 * material.recovery.get(symbol, 1.0)
+            final_kg += dissolved
+            if symbol != "Fe":
+                element_kg[symbol] = element_kg.get(symbol, 0.0) + dissolved
+    predicted = {s: 100.0 * m / final_kg for s, m in sorted(element_kg.items(), key=lambda i: element_sort_key(i[0]))}
+    return final_kg, predicted
+
+
+def temperature_drop_c(bath_kg: float, additions: Iterable[tuple[Material, float]]) -> float:
+    """Temperature drop of the bath [°C] from the materials' chill factors [°C per kg/t]."""
+    return math.fsum(material.chill_per_kg_t * kg for material, kg in additions) / (bath_kg / 1000.0)
+
+
+def single_addition_kg(bath_kg: float, now_pct: float, aim_pct: float, content_pct: float,
+                       recovery: float, mass_yield: float) -> float:
+    """Closed form for one element and one material [kg]: the mass balance above solved for x.
+
+    x = W (c_aim - c0) / (r a - g c_aim), all as fractions; ``mass_yield`` is g, the fraction of
+    the material that dissolves (1 when the whole addition joins the bath).
+    """
+    denominator = recovery * content_pct / 100.0 - mass_yield * aim_pct / 100.0
+    return bath_kg * (aim_pct - now_pct) / 100.0 / denominator

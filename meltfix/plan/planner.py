@@ -1,0 +1,365 @@
+"""The addition planner: the cheapest additions that bring a heat into its grade (meltfix.plan.massbalance).
+
+The model (``meltfix.plan.plan_model``) is linear and exact once each window is multiplied out by the
+final bath mass; it is built once per recipe book, grade and mode and kept hot in HiGHS, and each
+heat only writes its own bounds and costs into it. A plan is the LP when its optimum already has
+whole packs and every addition at zero or above its minimum, else branch and bound, within a time
+budget per plan. When no plan meets every window, an elastic version finds the plan with the least
+violation (weighted relative to each limit), then the cheapest such plan. Whatever the solver says,
+the plan's status comes from its own re-check by the plain mass balance.
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+import time
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from meltfix.base.errors import InputError
+from meltfix.plan.cautions import BathState, plan_cautions
+from meltfix.plan.massbalance import bath_after, temperature_drop_c
+from meltfix.plan.plan_model import HeatLoad, HotModel, ModelShape, Solution
+from meltfix.plan.reasons import explain_violation
+from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition,
+                                 limit_checks)
+from meltfix.plan.sequence import sequence_additions
+from meltfix.plan.treatment import contents_owed_pct
+from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
+from meltfix.shop.recipes import Grade, Material, RecipeBook, ShopSettings
+
+# A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
+# as HiGHS's own MIP feasibility tolerance does.
+_INTEGRALITY_TOL = 1e-6
+# An addition this close under its minimum [relative] is the minimum, read back through the
+# solver's tolerances; further under, it is an artefact of them (a binary at 1e-6 lets a few
+# grams in) and is dropped. Either way the plan's own re-check then judges it.
+_MINIMUM_SNAP = 1e-6
+# Branch and bound may use this share of a plan's time budget; the rest is kept for the LPs that
+# polish the plan and give its duals, the closest-plan phases and the re-check (at 400 materials on
+# a busy 2-core machine these took up to 0.3 s after a search that used the whole budget).
+_SEARCH_SHARE = 0.8
+
+
+class Planner:
+    """Plans heats against one recipe book. Build once, plan many heats, from any number of threads.
+
+    Each (grade, stage, continuous, use_aim) has one model shape; each thread planning at a time takes a
+    hot HiGHS model of that shape from a pool (building one when all are busy) and gives it back.
+    """
+
+    def __init__(self, book: RecipeBook) -> None:
+        self.book = book
+        self._lock = threading.Lock()
+        # Keyed by grade, stage, mode and the elements declared not measured (their limits are no rows).
+        self._shapes: dict[tuple[str, str, bool, bool, frozenset[str]], ModelShape] = {}
+        self._idle: dict[tuple[str, str, bool, bool, frozenset[str]], list[HotModel]] = {}
+
+    @contextmanager
+    def _model(self, heat: Heat, options: PlanOptions) -> Iterator[HotModel]:
+        key = (heat.grade, heat.stage, options.continuous, options.use_aim, heat.not_measured)
+        with self._lock:
+            shape = self._shapes.get(key)
+            if shape is None:
+                shape = self._shapes[key] = ModelShape(self.book, checked_grade(heat, self.book.grade(heat.grade)),
+                                                       heat.stage, options.continuous, options.use_aim)
+            idle = self._idle.setdefault(key, [])
+            model = idle.pop() if idle else None
+        if model is None:
+            model = HotModel(shape)
+        try:
+            yield model
+        finally:  # every heat rewrites all bounds, costs and moving coefficients: no state carries over
+            with self._lock:
+                self._idle[key].append(model)
+
+    def plan(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan:
+        """Plan one heat. Raises InputError when the heat does not fit the recipe book."""
+        validate_heat(heat, self.book)
+        settings = self.book.settings
+        penalty = options.aim_penalty if options.aim_penalty is not None else settings.aim_penalty
+        budget_s = options.time_limit_s if options.time_limit_s is not None else settings.plan_time_limit_s
+        deadline = time.monotonic() + _SEARCH_SHARE * budget_s
+        with self._model(heat, options) as model:
+            load = model.shape.load(heat, penalty)
+            model.load(load)
+            solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options)
+            least = None
+            if solution is None:
+                solution, least = _closest(model, load, heat.bath_kg, deadline, options)
+            return self._result(heat, model, load, solution, least, budget_s)
+
+    def _result(self, heat: Heat, model: HotModel, load: HeatLoad, solution: Solution,
+                least: Solution | None, budget_s: float) -> Plan:
+        book, shape = self.book, model.shape
+        grade = shape.grade
+        additions, used = _additions(shape, load, solution.x)
+        steps = sequence_additions(used, book.settings)
+        by_name = {a.material: a for a in additions}
+        additions = [by_name[step.material] for step in steps]
+        final_kg, predicted, checks = recheck(heat, grade, used, book.settings)
+        drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
+        # The status is the re-check's, on every path: a solver's "optimal" at a bath so small that
+        # its tolerances matter, or after the minimums are cleaned, is judged like any other plan.
+        missed = [check for check in checks if check.margin_pct < -LIMIT_TOL_PCT]
+        violations: list[Violation] = []
+        if missed:
+            # The reasons are read from the least-violation plan: it shows which limit stops the
+            # heat getting closer.
+            least_used = _additions(shape, load, least.x)[1] if least is not None else used
+            least_final_kg = recheck(heat, grade, least_used, book.settings)[0]
+            least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
+            for check in missed:
+                reason = explain_violation(check.element, check.limit, heat, book, load.usable, least_used,
+                                           least_final_kg, bool(load.packed.any()), least_drop,
+                                           heat.drop_limit_c(book.settings))
+                violations.append(Violation(check.element, check.limit, check.limit_pct,
+                                            check.predicted_pct, -check.margin_pct, reason))
+        binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
+        notes = load.notes
+        temperature = _temperature(heat, book, shape, solution.x, drop, predicted)
+        if temperature.reheat_c > 0:
+            notes = (f"arc heating about {temperature.reheat_c:.0f} °C ({temperature.reheat_min:.0f} min) at the "
+                     f"{heat.stage}, {temperature.reheat_cost:,.2f} {book.settings.currency}",) + notes
+        if temperature.short_c > 0.5:
+            notes += (f"temperature after about {temperature.after_c:.0f} °C is {temperature.short_c:.0f} °C short of "
+                      f"liquidus {temperature.liquidus_c:.0f} °C + superheat {book.settings.superheat_c:g} °C",)
+        if not solution.proven:
+            notes += ((f"best plan found within the {budget_s:g} s planning budget: the cheapest possible plan "
+                       f"may cost up to {100 * solution.gap:.2g} % less",) if math.isfinite(solution.gap) else
+                      (f"no plan in whole packs was found within the {budget_s:g} s planning budget: these are the "
+                       "loose amounts rounded to whole packs and minimums, checked as shown",))
+        return Plan(
+            heat_id=heat.heat_id,
+            grade=heat.grade,
+            status="closest" if missed else "optimal",
+            additions=tuple(additions),
+            total_cost=float(math.fsum([a.cost for a in additions] + [temperature.reheat_cost])),
+            bath_kg=heat.bath_kg,
+            final_kg=final_kg,
+            predicted_pct=predicted,
+            checks=checks,
+            violations=tuple(violations),
+            binding=binding,
+            cautions=unchecked_caution(heat) + plan_cautions(
+                used, heat.bath_kg, drop, heat.temperature_c, book.settings,
+                BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c)),
+            temperature_drop_c=drop,
+            notes=notes,
+            currency=book.settings.currency,
+            proven=solution.proven,
+            gap=solution.gap,
+            steps=steps,
+            liquidus_c=temperature.liquidus_c,
+            temperature_after_c=temperature.after_c,
+            superheat_c=book.settings.superheat_c,
+            reheat_c=temperature.reheat_c,
+            reheat_min=temperature.reheat_min,
+            reheat_cost=temperature.reheat_cost,
+        )
+
+
+@dataclass(frozen=True)
+class _Temperature:
+    liquidus_c: float
+    after_c: float | None
+    short_c: float
+    reheat_c: float
+    reheat_min: float
+    reheat_cost: float
+
+
+def _temperature(heat: Heat, book: RecipeBook, shape: ModelShape, x: np.ndarray, drop_c: float,
+                 predicted: Mapping[str, float]) -> _Temperature:
+    """The plan's temperature budget, by plain arithmetic on its point: liquidus of the predicted
+    analysis, arc heating bought, temperature after, and how far short of liquidus + superheat."""
+    reheat_c = float(x[shape.col_reheat]) if float(x[shape.col_reheat]) > 0.05 else 0.0
+    stage = book.settings.stages.get(heat.stage)
+    rate = stage.reheat_c_per_min if stage is not None else 1.0
+    cost = reheat_c * (stage.reheat_cost_per_c if stage is not None else 0.0) * heat.bath_kg / 1000.0
+    liquidus = shape.liquidus.liquidus_c(predicted)
+    after = None if heat.temperature_c is None else heat.temperature_c - drop_c + reheat_c
+    short = 0.0 if after is None else liquidus + book.settings.superheat_c - after
+    return _Temperature(liquidus, after, short, reheat_c, reheat_c / rate, cost)
+
+
+def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray, deadline: float,
+           options: PlanOptions) -> Solution | None:
+    """Solve the loaded problem (or its elastic version) within the column bounds ``lower`` and
+    ``upper``: None = infeasible.
+
+    The LP relaxation comes first (measured in bench/plan_speed.py): it is a fraction of the integer solve's time, proves
+    infeasibility on its own, and when its optimum already has whole packs and no addition under its
+    minimum it is the integer optimum, duals included. Otherwise branch and bound picks the packs and
+    the on/off choices, and the LP with those fixed gives the masses: exact whole packs, minimums held
+    exactly (not within the integrality tolerance), and the duals of the plan.
+
+    (Branch and bound on the choices of only the materials the relaxation uses, widened whenever its
+    answer used others, was tried and measured slower at 100 and 400 materials: with many near-alike
+    materials it took more rounds than the smaller searches saved.)
+    """
+    shape = model.shape
+    model.set_bounds(lower, upper)
+    relaxed = model.solve_lp()
+    if relaxed is None:
+        return None
+    point = _integer_point(shape, load, relaxed.x)
+    if point is not None:
+        return replace(relaxed, x=point)
+    fixed = load.integrality > 0
+    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed)
+    if found is None:
+        if not timed_out:
+            return None
+        # No integer point in the budget: the relaxation's amounts, rounded to whole packs and
+        # minimums by _additions and judged by the re-check like any plan.
+        return Solution(relaxed.x, proven=False, gap=math.inf)
+    point = _integer_point(shape, load, found.x)
+    if point is None:  # off whole packs beyond the tolerance: _additions rounds it, the re-check judges
+        return found
+    lower, upper = lower.copy(), upper.copy()
+    lower[fixed] = upper[fixed] = np.round(point[fixed])
+    model.set_bounds(lower, upper)
+    polished = model.solve_lp()
+    return replace(found, x=point) if polished is None else replace(polished, proven=found.proven, gap=found.gap)
+
+
+def _integer_point(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> np.ndarray | None:
+    """``x`` as an integer point when it already has whole packs and every addition at zero or at
+    least its minimum (the on/off binaries then follow the masses); None otherwise."""
+    packs = x[shape.col_mat][load.packed]
+    if np.any(np.abs(packs - np.round(packs)) > _INTEGRALITY_TOL):
+        return None
+    switchable = shape.switchable
+    kg = x[shape.col_mat][switchable] * shape.scale[switchable]
+    on = (kg > _INTEGRALITY_TOL) & load.switched[switchable]
+    if np.any(on & (kg < shape.min_kg[switchable] - _INTEGRALITY_TOL)):
+        return None
+    point = x.copy()
+    point[shape.col_switch] = on
+    return point
+
+
+def _closest(model: HotModel, load: HeatLoad, bath_kg: float, deadline: float,
+             options: PlanOptions) -> tuple[Solution, Solution]:
+    """Elastic windows on the same hot model: least total violation first (relative to each
+    limit), then cost. Returns the closest plan and the least-violation plan it started from."""
+    shape = model.shape
+    upper = load.col_upper.copy()
+    upper[shape.col_slack] = np.where(load.active, math.inf, 0.0)
+    # Violation weight: kilograms outside a limit relative to the limit's own mass in the bath.
+    # The solver minimises it multiplied by the bath: the weights per kg of a 50 t bath are so
+    # small (1e-5) that reduced costs would fall under HiGHS's dual tolerance and stop it early.
+    weights = 1.0 / (shape.limit_fraction() * bath_kg)
+    first = np.zeros(shape.n_cols)
+    first[shape.col_slack] = weights * bath_kg
+    model.set_cost(first)
+    phase1 = _solve(model, load, load.col_lower, upper, deadline, options)
+    if phase1 is None:
+        raise InputError("heat", "lock_kg",
+                         "no plan is possible at all: the locked amounts alone break the vessel "
+                         "capacity or the temperature limit")
+    violation = weights * phase1.x[shape.col_slack]
+    least = float(violation.sum())
+    # Slack on the least violation keeps phase 2 from buying alloys and scrap by the tonne only
+    # to shave a hopeless excess (S at 0.56 % against 0.050 %) by a hundredth of a per cent:
+    # the closest plan may miss by options.closest_tolerance more than the least possible
+    # (plus 1e-4 = 0.01 % of a limit's mass, so a near-zero least is not chased either).
+    # The cap row is the weighted sum multiplied by the bath, so its coefficients stay fixed.
+    model.set_row_upper(shape.violation_cap.first, bath_kg * (least * (1 + options.closest_tolerance) + 1e-4))
+    # The hair is for the limits that cannot be met: one that phase 1 met stays met, or the
+    # cheaper plan would miss it by a hair and blame it on a reason that is not true.
+    upper[shape.col_slack] = np.where(violation <= 1e-9, 0.0, upper[shape.col_slack])
+    model.set_cost(load.cost)
+    phase2 = _solve(model, load, load.col_lower, upper, deadline, options)
+    # The duals of an elastic model are not the plan's: a closest plan that meets every window
+    # after all has its duals from the plain model (see _sensitivity).
+    return replace(phase2 if phase2 is not None else phase1, row_dual=None, col_dual=None), phase1
+
+
+def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: float,
+                 bath_kg: float) -> tuple[Binding, ...]:
+    """Duals of the LP with the integer choices fixed: what one more unit of each limit is worth.
+
+    A plan carries the duals of its own LP (the relaxation, or the LP with its integers fixed);
+    a closest plan that met every window after all gets them here, from the plain model with the
+    packs and the on/off choices fixed at the plan's values.
+    """
+    shape = model.shape
+    fixed = load.integrality > 0
+    duals: Solution | None = solution
+    if solution.row_dual is None:
+        model.load(load)  # undo anything the closest-plan phases changed
+        lower, upper = load.col_lower.copy(), load.col_upper.copy()
+        lower[fixed] = upper[fixed] = np.round(solution.x[fixed])
+        model.set_bounds(lower, upper)
+        duals = model.solve_lp()
+    if duals is None or duals.row_dual is None or duals.col_dual is None:
+        return ()
+    # HiGHS's duals are d(cost) / d(row bound); loosening a "<=" row raises its bound.
+    saving = -duals.row_dual
+    bindings: list[Binding] = []
+    for k, row in enumerate(shape.window_rows):
+        # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
+        worth = saving[shape.windows.first + k] * final_kg * 1e-4
+        if worth > 1e-6:
+            bindings.append(Binding(f"{row.element} {row.limit} {row.limit_pct:g} %", worth,
+                                    f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
+    capacity = saving[shape.capacity.first] * 1000.0
+    if capacity > 1e-6:
+        bindings.append(Binding("vessel capacity", capacity, "1 t more free capacity"))
+    temperature = saving[shape.temperature.first] * bath_kg  # the row is multiplied by the bath
+    if temperature > 1e-6:
+        bindings.append(Binding("temperature drop limit", temperature, "1 °C more allowed drop"))
+    upper_saving = -duals.col_dual[shape.col_mat] / shape.scale
+    for j in np.flatnonzero(upper_saving > 1e-6):
+        # A lock is a choice, not a shortage; a pack count fixed for this LP is not the stock.
+        if load.col_lower[j] != load.col_upper[j] and not fixed[j]:
+            bindings.append(Binding(f"stock of {shape.materials[j].name}", float(upper_saving[j]), "1 kg more in stock"))
+    for t, symbol in enumerate(shape.aim_elements):
+        worth = saving[shape.aims.first + t] * final_kg * 1e-4  # saving from raising the aim by 0.01 %
+        if abs(worth) > 1e-6:
+            bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {'higher' if worth > 0 else 'lower'} aim"))
+    return tuple(sorted(bindings, key=lambda b: -b.saving))
+
+
+def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[Addition], list[tuple[Material, float]]]:
+    """The plan's lines from a solver point: masses [kg] (whole packs rounded exactly, locked amounts
+    as locked, every minimum held exactly), costs."""
+    v = x[shape.col_mat]
+    kg = np.where(v * shape.scale > 1e-6, v * shape.scale, 0.0)
+    kg = np.where(load.packed, np.round(v) * shape.scale, kg)
+    short = load.switched & (kg > 0) & (kg < shape.min_kg)
+    kg = np.where(short, np.where(kg >= shape.min_kg * (1 - _MINIMUM_SNAP), shape.min_kg, 0.0), kg)
+    kg = np.where(np.isnan(load.locked_kg), kg, load.locked_kg)
+    additions = []
+    used: list[tuple[Material, float]] = []
+    for j in np.flatnonzero(kg > 0):
+        material = shape.materials[j]
+        additions.append(addition(material, float(kg[j]), float(load.prices[j]), bool(load.packed[j])))
+        used.append((material, float(kg[j])))
+    return additions, used
+
+
+def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings
+            ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
+    """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
+    by the plain mass balance: the plan's own re-check, also against a grade other than the one
+    planned for (meltfix.plan.risk plans to tightened windows and reports against the real ones)."""
+    owed = contents_owed_pct(heat, grade, settings)
+    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
+    # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
+    # closest plan reports the shortfall it was planned against.
+    lowest = predicted
+    if heat.analysis.below_limit:
+        lowest = bath_after(heat.bath_kg, heat.analysis.lowest_pct, used, owed)[1]
+    return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))
+
+
+def plan_heat(heat: Heat, book: RecipeBook, options: PlanOptions = PlanOptions()) -> Plan:
+    """Plan one heat against a recipe book (see :class:`Planner` to plan many)."""
+    return Planner(book).plan(heat, options)

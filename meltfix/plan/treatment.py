@@ -1,0 +1,55 @@
+"""Magnesium a ductile-iron treatment must add before any of it stays as the grade's residual.
+
+Magnesium added to base iron first combines with the bath's sulphur, Mg + S -> MgS, which floats
+out to the slag; then it fades (boils off and oxidises) for as long as the treated iron waits to be
+poured. Only what is left counts towards the grade's Mg window. As with aluminium and dissolved
+oxygen (meltfix.plan.deoxidation), the planner starts the Mg content lower by both (a debt the
+nodulariser pays first, possibly below 0 %), which keeps the window linear and the plan exact; the
+nodulariser's Mg content and recovery then set how much of it that takes.
+
+The heat's analysis is taken as the base iron before treatment: its sulphur is what the magnesium
+meets.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+from meltfix.plan.deoxidation import aluminium_owed_pct
+from meltfix.shop.elements import ATOMIC_WEIGHT
+from meltfix.shop.heat import Heat
+from meltfix.shop.recipes import Grade, Material, ShopSettings
+
+MG_PER_S = ATOMIC_WEIGHT["Mg"] / ATOMIC_WEIGHT["S"]
+"""Mass of magnesium that binds one mass unit of sulphur as MgS [kg Mg / kg S]."""
+
+
+def magnesium_for_sulphur_pct(s_pct: float) -> float:
+    """Magnesium [wt % of the bath] that binds ``s_pct`` [wt %] of sulphur as MgS."""
+    return MG_PER_S * s_pct
+
+
+def magnesium_fade_pct(settings: ShopSettings) -> float:
+    """Magnesium [wt %] lost between treatment and pouring at the shop's fade rate."""
+    return settings.mg_fade_pct_per_min * settings.treatment_to_pour_min
+
+
+def magnesium_owed_pct(heat: Heat, grade: Grade, settings: ShopSettings) -> Mapping[str, float]:
+    """``{"Mg": x}``: the magnesium [wt % of the bath now] sulphur and fade take before the residual
+    counts, for a cast-iron grade with an Mg window; else empty (no treatment to plan)."""
+    if grade.family != "cast iron" or "Mg" not in grade.window_pct:
+        return {}
+    # A sulphur reading "<L" is taken at L: the safe end, more magnesium rather than too little.
+    return {"Mg": magnesium_for_sulphur_pct(heat.analysis.get("S")) + magnesium_fade_pct(settings)}
+
+
+def contents_owed_pct(heat: Heat, grade: Grade, settings: ShopSettings) -> Mapping[str, float]:
+    """Every debt the bath holds against the additions [wt % of the bath now]: aluminium to the
+    dissolved oxygen, magnesium to sulphur and fade."""
+    return {**aluminium_owed_pct(heat, grade), **magnesium_owed_pct(heat, grade, settings)}
+
+
+def nodulariser_kg(mg_kg: float, nodulariser: Material) -> float:
+    """Nodulariser [kg] that brings ``mg_kg`` of magnesium into the bath: divided by its Mg content
+    and its Mg recovery (the rest goes up as flare and smoke)."""
+    return mg_kg / (nodulariser.composition_pct["Mg"] / 100.0 * nodulariser.recovery.get("Mg", 1.0))

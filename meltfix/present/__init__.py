@@ -1,0 +1,4 @@
+"""Layer 5, text for people on the plain command line: Rich tables of plans, odds and replays.
+
+Imports the layers below it; the Textual screen (meltfix.tui) and the commands sit above.
+"""
