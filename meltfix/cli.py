@@ -19,7 +19,6 @@ from meltfix import __version__
 from meltfix.base.errors import InputError
 from meltfix.commands.exits import EXIT_BAD_INPUT
 
-
 # Commands that print tables take --width; the narrowest width their long layouts are made for.
 TABLE_COMMANDS = ("solve", "import", "report", "replay", "recoveries")
 MIN_WIDTH = 40

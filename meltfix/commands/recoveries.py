@@ -22,8 +22,9 @@ from meltfix.commands.logbook_args import add_logbook_arguments, date_range, log
 from meltfix.plan.numbers import recovery_text
 
 if TYPE_CHECKING:
-    from rich.console import RenderableType
+    from rich.console import JustifyMethod, RenderableType
 
+    from meltfix.records.logbook.location import LogbookLocation
     from meltfix.records.recovery_fit import RecoveryFit
 
 
@@ -73,7 +74,7 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
+def fit_renderable(fit: RecoveryFit, logbook_path: LogbookLocation) -> RenderableType:
     """The estimates as a rich table, with the notes under it."""
     from rich import box
     from rich.console import Group
@@ -89,8 +90,9 @@ def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
     table = Table(box=box.SIMPLE_HEAD, collapse_padding=True, pad_edge=False)
     # Figures never wrap; a long material name does, so the table fits 80 columns.
     table.add_column("Material", max_width=22)
-    for name, justify in (("El", "left"), ("Catalogue", "right"), ("Estimate", "right"),
-                          (level, "right"), ("Cases", "right"), ("Proposal", "left")):
+    columns: tuple[tuple[str, JustifyMethod], ...] = (("El", "left"), ("Catalogue", "right"), ("Estimate", "right"),
+                          (level, "right"), ("Cases", "right"), ("Proposal", "left"))
+    for name, justify in columns:
         table.add_column(name, justify=justify, no_wrap=True, min_width=len(name))
     for found in fit.estimates:
         interval = "–" if found.ci_low is None else f"{recovery_text(found.ci_low)}–{recovery_text(found.ci_high)}"
@@ -99,7 +101,7 @@ def fit_renderable(fit: RecoveryFit, logbook_path: Path) -> RenderableType:
             proposal = Text(f"→ {found.proposed:g}", style="bold green")
         elif found.cases < fit.min_cases:
             proposal = Text("too few cases", style="dim")
-        elif found.ci_low is not None and found.ci_low <= found.catalogue <= found.ci_high:
+        elif found.ci_low is not None and found.ci_high is not None and found.ci_low <= found.catalogue <= found.ci_high:
             proposal = Text("keep", style="dim")
         else:
             proposal = Text("data contradict the balance", style="yellow")

@@ -16,8 +16,9 @@ from meltfix.base.errors import visible
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
 
 if TYPE_CHECKING:
-    from rich.console import RenderableType
+    from rich.console import JustifyMethod, RenderableType
 
+    from meltfix.records.logbook.location import LogbookLocation
     from meltfix.records.report import CostReport
 
 _EIGHTHS = " ▏▎▍▌▋▊▉"
@@ -74,7 +75,7 @@ def _per_t(value: float) -> str:
     return "–" if math.isnan(value) else f"{value:,.2f}"
 
 
-def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -> RenderableType:
+def report_renderable(report: CostReport, logbook_path: LogbookLocation, width: int = 80) -> RenderableType:
     """The whole report as one rich renderable, laid out for a terminal ``width`` columns wide (80 or more)."""
     from rich import box
     from rich.console import Group
@@ -99,7 +100,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
         f"Additions actually made [b]{_money(totals['cost'])}{in_cur}[/], [b]{_per_t(totals['cost_per_t'])} {unit}[/]\n"
         f"Planned {_money(totals['planned_cost'])}{in_cur}; actual − planned {_signed(totals['difference'])}{in_cur}")
 
-    def table(title: str, columns: list[tuple[str, str]]) -> Table:
+    def table(title: str, columns: list[tuple[str, JustifyMethod]]) -> Table:
         made = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, collapse_padding=True, pad_edge=False,
                      title_style="bold")
         for name, justify in columns:
@@ -147,7 +148,7 @@ def report_renderable(report: CostReport, logbook_path: Path, width: int = 80) -
         materials.add_row(_data(row.material), f"{row.planned_kg:,.0f}", f"{row.actual_kg:,.0f}", _money(row.planned_cost),
                           _money(row.cost), f"{row.share:.0%}")
 
-    parts: list[object] = [head, summary, Text(""), heats]
+    parts: list[RenderableType] = [head, summary, Text(""), heats]
     if report.heats["cost_per_t"].notna().any():  # nothing to draw when no bath weight is known
         parts += [Text(f"Cost per tonne by heat ({unit})", style="bold"), chart, legend, Text("")]
     parts += [grades, materials]

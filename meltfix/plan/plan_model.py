@@ -300,9 +300,9 @@ class ModelShape:
         """The heat's arc heating (most [°C], cost [currency per °C]) and the superheat row: its lower
         bound goes in ``row_lower``; returns also the row's coefficient of M (T0 - S - base)."""
         stage = self.book.settings.stages.get(heat.stage)
-        can_reheat = stage is not None and stage.can_reheat
-        reheat_max_c = stage.reheat_max_c if can_reheat else 0.0
-        reheat_cost = stage.reheat_cost_per_c * heat.bath_kg / 1000.0 if can_reheat else 0.0
+        reheat_max_c, reheat_cost = 0.0, 0.0
+        if stage is not None and stage.can_reheat:
+            reheat_max_c, reheat_cost = stage.reheat_max_c, stage.reheat_cost_per_c * heat.bath_kg / 1000.0
         if heat.temperature_c is None:
             return reheat_max_c, reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
         superheat = self.book.settings.superheat_c

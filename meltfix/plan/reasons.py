@@ -11,6 +11,7 @@ lowers them; nitrogen and hydrogen leave with a carbon boil or under vacuum.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from types import MappingProxyType
@@ -150,8 +151,8 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
         if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
             return (f"{element} is short because more additions would chill the bath beyond the "
                     f"{drop_limit_c:g} °C the heat may lose.")
-        exhausted = [m.name for m, kg in used if m in stocked and heat.material_stock_kg(m) is not None
-                     and kg >= heat.material_stock_kg(m) - 1e-6]
+        exhausted = [m.name for m, kg in used if m in stocked
+                     and (on_hand := heat.material_stock_kg(m)) is not None and kg >= on_hand - 1e-6]
         if exhausted and len(exhausted) >= len([m for m in stocked if heat.material_stock_kg(m) is not None]):
             return f"{element} is short because the stock of {', '.join(exhausted)} is used up."
         if packs:
@@ -175,9 +176,10 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
         return f"{figures}, but no clean dilution material is usable; {advice}."
     if free_kg is not None and needed_kg > free_kg:
         return f"{figures} but only {free_kg:,.0f} kg of capacity is free; {advice}."
-    stock = [heat.material_stock_kg(m) for m in clean]
-    if all(s is not None for s in stock) and needed_kg > sum(stock):  # type: ignore[arg-type]
-        return f"{figures} but only {sum(stock):,.0f} kg of clean material is in stock; {advice}."  # type: ignore[arg-type]
+    stocks = [heat.material_stock_kg(m) for m in clean]
+    in_stock = math.fsum(s for s in stocks if s is not None)
+    if None not in stocks and needed_kg > in_stock:
+        return f"{figures} but only {in_stock:,.0f} kg of clean material is in stock; {advice}."
     return f"{figures} ({added_kg:,.0f} kg is all the plan can add within its limits); {advice}."
 
 

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from rich.console import Console, Group
+from rich.console import Console, Group, RenderableType
 from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
@@ -82,7 +82,7 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
                      content_text(element, row["predicted"]), "" if high is None else limit_text(element, high),
                      margin_text(element, row["margin"]), style="red" if is_outside(row["margin"]) else "")
 
-    parts: list[object] = [Text.from_markup(title), adds, chem]
+    parts: list[RenderableType] = [Text.from_markup(title), adds, chem]
     if odds is not None:
         parts.append(odds_text(odds, risk))
     if plan.violations:

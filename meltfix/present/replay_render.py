@@ -5,15 +5,16 @@ Kept out of the domain objects (meltfix.records.replay) as meltfix.present.rende
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
-from rich.console import Console, Group
+from rich.console import Console, Group, RenderableType
 from rich.measure import Measurement
 from rich.table import Table
 from rich.text import Text
 
 from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text, money_text, recovery_text
-from meltfix.plan.result import Addition
+from meltfix.plan.result import LIMIT_TOL_PCT, Addition
 from meltfix.records.replay import ActualAddition, ElementPath, ReplayStep, TrainingScore, summarise
 from meltfix.shop.elements import element_sort_key
 
@@ -35,8 +36,9 @@ def _window(symbol: str, low: float, high: float) -> str:
     return f"≤ {limit_text(symbol, high)}" if low <= 0 else f"{limit_text(symbol, low)}–{limit_text(symbol, high)}"
 
 
-def _outside(value: float, low: float, high: float) -> bool:
-    return not low - 1e-9 <= value <= high + 1e-9
+def _outside(value: float, low: float, high: float | None) -> bool:
+    top = math.inf if high is None else high
+    return not low - LIMIT_TOL_PCT <= value <= top + LIMIT_TOL_PCT
 
 
 def sample_mark(index: int) -> str:
@@ -99,7 +101,7 @@ def step_renderable(step: ReplayStep, window: dict[str, tuple[float, float]], cu
         f" · bath {step.bath_kg:,.0f} kg")
     side = Table.grid(padding=(0, 3))
     side.add_row(plan_renderable(step, currency), additions_table("Actually added", step.actual, currency))
-    parts: list[object] = [head, side, chemistry_table(step, window)]
+    parts: list[RenderableType] = [head, side, chemistry_table(step, window)]
     if step.recovery_hints:
         parts.append(hints_table(step))
     if step.predicted_misses:
@@ -235,7 +237,7 @@ def score_renderable(score: TrainingScore, window: dict[str, tuple[float, float]
         value = score.predicted_pct[symbol]
         red = _outside(value, *window[symbol])
         gives.append(("  " if n else "") + f"{symbol} {content_text(symbol, value)}", "red" if red else "")
-    lines: list[object] = [verdict, gives]
+    lines: list[RenderableType] = [verdict, gives]
     lines += [Text(f"misses {miss}", style="red") for miss in score.misses]
     lines += [Text(broken, style="red") for broken in score.breaks]
     extra = f"{'+' if score.extra_cost >= 0 else '-'}{money_text(abs(score.extra_cost))}"

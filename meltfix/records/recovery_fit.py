@@ -333,7 +333,8 @@ def estimate(cases: Sequence[RecoveryCase], book: RecipeBook, min_cases: int = D
                      float(np.clip(slope[k] + half[k], 0.0, 1.0))) if known else (None, None)
         # A slope at or below 0 contradicts the mass balance; one that rounds to the catalogue's
         # value to three decimals gives nothing to write: no proposal from either.
-        propose = (known and slope[k] > 0 and counts[k] >= min_cases and not low <= catalogue <= high
+        propose = (low is not None and high is not None and slope[k] > 0 and counts[k] >= min_cases
+                   and not low <= catalogue <= high
                    and round(float(slope[k]), 3) != catalogue)
         estimates.append(RecoveryEstimate(
             material=name, element=symbol, catalogue=catalogue, estimate=float(np.clip(slope[k], 1e-3, 1.0)),

@@ -581,13 +581,13 @@ def parse_grade(data: Mapping[str, Any], source: object) -> Grade:
         known_keys(spec, {"terms", "min", "max"}, source, f"{where}.")
         terms = {normalise_symbol(k, source, f"{where}.terms.{k}"): number(v, source, f"{where}.terms.{k}", minimum=None)
                  for k, v in table(require(spec, "terms", source, f"{where}."), source, f"{where}.terms").items()}
-        low = None if "min" not in spec else number(spec["min"], source, f"{where}.min")
-        high = None if "max" not in spec else number(spec["max"], source, f"{where}.max")
-        if low is None and high is None:
+        least = None if "min" not in spec else number(spec["min"], source, f"{where}.min")
+        most = None if "max" not in spec else number(spec["max"], source, f"{where}.max")
+        if least is None and most is None:
             raise InputError(source, where, "needs a min, a max or both")
-        if low is not None and high is not None and low > high:
-            raise InputError(source, where, f"min {low:g} is above max {high:g}")
-        indices.append(LinearIndex(index_name, MappingProxyType(terms), low, high))
+        if least is not None and most is not None and least > most:
+            raise InputError(source, where, f"min {least:g} is above max {most:g}")
+        indices.append(LinearIndex(index_name, MappingProxyType(terms), least, most))
     forbid = data.get("forbid", [])
     if not isinstance(forbid, list) or not all(isinstance(f, str) for f in forbid):
         raise InputError(source, "forbid", "expected a list of material names")

@@ -18,6 +18,7 @@ from textual.notifications import SeverityLevel
 from textual.screen import Screen
 
 from meltfix.base.errors import visible
+from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.keys import key_name
@@ -40,7 +41,7 @@ class MeltfixApp(App[None]):
     ]
 
     def __init__(self, book: RecipeBook, heat: Heat, *, heat_path: Path | None = None,
-                 logbook_path: Path | None = None, tickets_dir: Path | None = None, light: bool = False) -> None:
+                 logbook_path: LogbookLocation | None = None, tickets_dir: Path | None = None, light: bool = False) -> None:
         super().__init__()
         self.book = book
         self.heat = heat
@@ -97,7 +98,7 @@ class MeltfixApp(App[None]):
         self.push_screen(screen)
 
 
-def make_app(book: RecipeBook, heat: Heat, *, heat_path: Path | None = None, logbook_path: Path | None = None,
+def make_app(book: RecipeBook, heat: Heat, *, heat_path: Path | None = None, logbook_path: LogbookLocation | None = None,
              tickets_dir: Path | None = None, light: bool = False) -> MeltfixApp:
     """The one way the command line, the tests and the benchmark build the app."""
     return MeltfixApp(book, heat, heat_path=heat_path, logbook_path=logbook_path, tickets_dir=tickets_dir,

@@ -32,6 +32,7 @@ from meltfix.base.errors import InputError
 from meltfix.plan.numbers import content_text, kg_text, money_text, unit_of
 from meltfix.records.logbook import (AdditionsRecord, HeatEvent, HeatHistory, HeatSummary, LineRecord, Logbook,
                                      PlanRecord, SampleRecord, ServerURL, Shift, default_logbook_path, event_time)
+from meltfix.records.logbook.location import LogbookLocation
 from meltfix.records.replay import record_from_history
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
@@ -105,7 +106,7 @@ class LogbookScreen(Screen[None]):
                 id="logbook.demo"),
     ]
 
-    def __init__(self, book: RecipeBook, logbook_path: Path | None = None) -> None:
+    def __init__(self, book: RecipeBook, logbook_path: LogbookLocation | None = None) -> None:
         super().__init__()
         self.book = book
         self.path = logbook_path if logbook_path is not None else default_logbook_path()
@@ -239,7 +240,7 @@ class LogbookScreen(Screen[None]):
         self.query_one("#logbook-message", Static).update(
             Text.assemble(message.reason, "\n\nPress d to open the demo shop's week instead, Esc to go back."))
 
-    def _absent(self, path: Path, reason: str) -> None:
+    def _absent(self, path: LogbookLocation, reason: str) -> None:
         self._show_mode("absent")
         self._title(f"Logbook · {path}")
         self.query_one("#logbook-message", Static).update(Text.assemble(

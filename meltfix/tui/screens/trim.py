@@ -26,6 +26,7 @@ from meltfix.base.errors import InputError
 from meltfix.base.paths import demo_dir
 from meltfix.plan.numbers import cell_text, kg_text
 from meltfix.plan.result import Plan, RiskPlan
+from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.elements import element_sort_key, normalise_symbol
 from meltfix.shop.heat import Heat, load_heat
 from meltfix.shop.recipes import RecipeBook
@@ -93,7 +94,7 @@ class TrimScreen(Screen[None]):
     ]
 
     def __init__(self, book: RecipeBook, heat: Heat, *, heat_path: Path | None = None,
-                 logbook_path: Path | None = None, tickets_dir: Path) -> None:
+                 logbook_path: LogbookLocation | None = None, tickets_dir: Path) -> None:
         super().__init__()
         self.book = book
         self.logbook_path = logbook_path
