@@ -24,10 +24,10 @@ import math
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
+from statistics import NormalDist
 from types import MappingProxyType
 
 import numpy as np
-from scipy.special import ndtr, ndtri
 
 from meltfix.plan.massbalance import bath_after
 from meltfix.plan.planner import Planner, recheck
@@ -50,14 +50,22 @@ _SIGMA_ROUNDS = 2
 _MAX_CONFIRMED = 4
 
 
+# The normal distribution from the standard library, element by element (a plan has a few dozen
+# limits at most): SciPy's special functions cost a fifth of a second to import, more than a plan.
+# Phi(x) = erfc(-x / sqrt 2) / 2: erfc keeps its relative accuracy far into the lower tail.
+_CDF = np.frompyfunc(lambda x: 0.5 * math.erfc(-x / math.sqrt(2.0)), 1, 1)
+# inv_cdf is Wichura's algorithm AS 241 (Applied Statistics 37(3), 1988), about 1e-16 relative.
+_QUANTILE = np.frompyfunc(NormalDist().inv_cdf, 1, 1)
+
+
 def normal_cdf(x: np.ndarray | float) -> np.ndarray:
     """Standard normal distribution function."""
-    return np.asarray(ndtr(x), dtype=float)
+    return np.asarray(_CDF(np.asarray(x, dtype=float)), dtype=float)
 
 
 def normal_quantile(p: np.ndarray | float) -> np.ndarray:
     """Standard normal quantile (inverse of :func:`normal_cdf`), p in (0, 1)."""
-    return np.asarray(ndtri(p), dtype=float)
+    return np.asarray(_QUANTILE(np.asarray(p, dtype=float)), dtype=float)
 
 
 # ---------------------------------------------------------------------------------------------

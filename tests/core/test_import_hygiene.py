@@ -39,10 +39,11 @@ def test_plain_command_line_loads_neither_textual_nor_pandas() -> None:
 
 
 def test_planning_never_imports_scipy() -> None:
-    """The planner runs on highspy; SciPy's optimiser took most of a one-heat `meltfix solve`."""
+    """The planner runs on highspy, the odds on NumPy and the standard library; SciPy's optimiser
+    and then its special functions took most of a one-heat `meltfix solve`."""
     code = (
         "import sys\n"
-        "import meltfix.plan.planner\n"
+        "import meltfix.plan.planner, meltfix.plan.risk\n"
         "assert 'scipy' not in sys.modules\n"
         "from meltfix.shop.heat import load_heat\n"
         "from meltfix.base.paths import demo_dir\n"
@@ -50,6 +51,7 @@ def test_planning_never_imports_scipy() -> None:
         "book = load_recipes()\n"
         "for path in sorted((demo_dir() / 'heats').glob('*.toml')):\n"
         "    meltfix.plan.planner.plan_heat(load_heat(path, book), book)\n"
+        "    meltfix.plan.risk.plan_to_target(load_heat(path, book), book, draws=200)\n"
         "assert 'scipy' not in sys.modules, sorted(m for m in sys.modules if m.startswith('scipy'))\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True)
