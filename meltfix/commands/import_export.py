@@ -18,7 +18,8 @@ from typing import IO, TYPE_CHECKING, Any
 from meltfix.base.errors import InputError, visible
 from meltfix.base.outputs import markup_safe, write_atomic
 from meltfix.plan.numbers import content_text, unit_of
-from meltfix.readers.spectro import Burn, SampleStream, SpectroSample, iter_samples
+from meltfix.readers.samples import Burn, SpectroSample
+from meltfix.readers.spectro import SampleStream, iter_samples
 from meltfix.shop.elements import normalise_symbol
 from meltfix.shop.heat import Heat, heat_to_toml, validate_heat
 from meltfix.shop.recipes import RecipeBook, ShopSettings, identifier, load_recipes, load_settings

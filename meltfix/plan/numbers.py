@@ -61,6 +61,11 @@ def content_text(symbol: str, pct: float) -> str:
     return f"{pct:.{limit_places(symbol) + 1}f}"
 
 
+def content_unit_text(symbol: str, pct: float) -> str:
+    """A content in a sentence: "0.842" (wt %, as a sheet of contents reads) or "13 ppm"."""
+    return content_text(symbol, pct) + (" ppm" if symbol in PPM_ELEMENTS else "")
+
+
 def margin_text(symbol: str, margin_pct: float) -> str:
     """A signed distance to a limit [wt %] (negative = outside), as a content is written.
 

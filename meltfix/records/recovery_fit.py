@@ -18,7 +18,7 @@ error over ``A``: far less than the analysis error.
 
 Over the cases of one (material, element), ``r`` is the weighted least-squares line through the
 origin, ``r = sum(w A D) / sum(w A^2)``. Two errors move ``D``: the analysis, whose variance ``v``
-comes from the spectrometer's repeatability curve (sigma = r(c) / 2.8, :mod:`meltfix.readers.spectro` and
+comes from the spectrometer's repeatability curve (sigma = r(c) / 2.8, :mod:`meltfix.shop.repeatability` and
 ``[spectrometer.repeatability]`` in shop.toml), and the recovery itself, which scatters from heat to
 heat (slag, oxygen, stirring) by a standard deviation ``s`` that moves ``D`` by ``s A``: a 300 kg
 addition carries sixty times the scatter of a 5 kg one. So the weights are
@@ -52,7 +52,7 @@ from scipy import stats
 from meltfix.base.errors import InputError
 from meltfix.plan.massbalance import bath_after
 from meltfix.plan.uncertainty import R_TO_SIGMA
-from meltfix.readers.spectro import ExportLayout
+from meltfix.readers.export_layout import ExportLayout
 from meltfix.records.logbook import Logbook
 from meltfix.records.replay import HeatRecord, record_from_history
 from meltfix.shop.analysis import Analysis

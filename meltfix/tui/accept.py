@@ -18,7 +18,7 @@ from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
 
 if TYPE_CHECKING:
-    from meltfix.readers.spectro import SpectroSample
+    from meltfix.readers.samples import SpectroSample
     from meltfix.records.logbook import Logbook, SampleRecord
 
 

@@ -2,7 +2,7 @@
 
 Other screens plug in by name: ``EXTRA_SCREENS`` maps a key to a module that defines
 ``make_screen(app: MeltfixApp) -> Screen``. The app offers them ``app.book``,
-``app.logbook_path``, ``app.tickets_dir`` and ``app.heat_on_screen``. They are imported when
+``app.logbook_path`` and ``app.tickets_dir``. They are imported when
 first opened, which keeps them off the trim screen's start-up.
 """
 
@@ -80,12 +80,6 @@ class MeltfixApp(App[None]):
 
     def action_toggle_dark(self) -> None:
         self.theme = "textual-light" if self.current_theme.dark else "textual-dark"
-
-    @property
-    def heat_on_screen(self) -> Heat:
-        """The heat as typed on the trim screen (the last one that held together)."""
-        trim = next((s for s in self.screen_stack if isinstance(s, TrimScreen)), None)
-        return self.heat if trim is None else trim.heat_on_screen
 
     def action_open_extra(self, name: str) -> None:
         """Open one of the ``EXTRA_SCREENS``."""

@@ -113,10 +113,6 @@ class AdditionsRecord:
     lines: tuple[LineRecord, ...]
 
     @property
-    def total_kg(self) -> float:
-        return math.fsum(line.kg for line in self.lines)
-
-    @property
     def total_cost(self) -> float:
         """Cost of the priced lines [currency]."""
         return math.fsum(line.cost for line in self.lines if line.cost is not None)

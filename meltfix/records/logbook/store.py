@@ -39,7 +39,7 @@ from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat, heat_to_toml, parse_heat
 
 if TYPE_CHECKING:
-    from meltfix.readers.spectro import SpectroSample
+    from meltfix.readers.samples import SpectroSample
     from meltfix.shop.recipes import RecipeBook
 
 def _stamp(when: datetime | None) -> datetime:

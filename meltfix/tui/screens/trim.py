@@ -48,7 +48,7 @@ from meltfix.tui.widgets.why_not import key_for, say_why_declined
 
 if TYPE_CHECKING:
     from meltfix.plan.risk import RiskPlanner
-    from meltfix.readers.spectro import ImportResult, SpectroSample
+    from meltfix.readers.samples import ImportResult, SpectroSample
 
 _FIELD_NAMES = {BATH: "bath kg", CAPACITY: "vessel kg", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
 MOVING_KEYS = (
@@ -491,12 +491,6 @@ class TrimScreen(Screen[None]):
     async def action_revert(self) -> None:
         await self._show_heat(self.opened)
         self.notify(f"Back to heat {self.opened.heat_id} as opened", title="Revert")
-
-    # -- for other screens ----------------------------------------------------------------
-    @property
-    def heat_on_screen(self) -> Heat:
-        """The heat as currently typed when it holds together, else the last good one."""
-        return self.current[0] if self.current else self.base
 
 
 def _cell_texts(source: Heat | SpectroSample) -> dict[str, str]:
