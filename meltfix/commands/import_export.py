@@ -22,7 +22,9 @@ from meltfix.readers.samples import Burn, SpectroSample
 from meltfix.readers.spectro import SampleStream, iter_samples
 from meltfix.shop.elements import normalise_symbol
 from meltfix.shop.heat import Heat, heat_to_toml, validate_heat
-from meltfix.shop.recipes import RecipeBook, ShopSettings, identifier, load_recipes, load_settings
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import ShopSettings, load_settings
+from meltfix.shop.toml_values import identifier
 
 if TYPE_CHECKING:  # rich is imported where the tables are printed
     from rich.console import Console

@@ -9,7 +9,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from meltfix.shop.recipes import Material, ShopSettings
+from meltfix.shop.materials import Material
+from meltfix.shop.settings import ShopSettings
 
 ALWAYS = ("Additions follow the shop's written procedures, its protective-equipment rules and licensed "
           "practice under local codes; meltfix advises, a qualified person decides.")

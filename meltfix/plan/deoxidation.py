@@ -21,8 +21,8 @@ from __future__ import annotations
 from collections.abc import Mapping
 
 from meltfix.shop.elements import ATOMIC_WEIGHT, PPM_PER_PCT
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Grade
 
 AL_PER_O = 2.0 * ATOMIC_WEIGHT["Al"] / (3.0 * ATOMIC_WEIGHT["O"])
 """Mass of aluminium that binds one mass unit of oxygen as Al2O3 [kg Al / kg O]."""

@@ -26,8 +26,10 @@ from meltfix.plan.massbalance import bath_after, single_addition_kg, temperature
 from meltfix.plan.planner import recheck
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition, LimitCheck, addition
 from meltfix.shop.elements import element_sort_key
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, usable_materials, validate_heat
-from meltfix.shop.recipes import Grade, Material, RecipeBook
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 
 # The sheet order: the big carbon-free alloys first, then those that carry carbon; magnesium (the
 # nodulariser brings much silicon) before silicon, which the alloys before it also bring; carbon

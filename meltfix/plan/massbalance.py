@@ -10,7 +10,7 @@ import math
 from collections.abc import Iterable, Mapping
 
 from meltfix.shop.elements import element_sort_key
-from meltfix.shop.recipes import Material
+from meltfix.shop.materials import Material
 
 
 def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],

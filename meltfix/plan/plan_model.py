@@ -31,9 +31,11 @@ from highspy._core import _Highs
 from meltfix.plan.deoxidation import oxygen_notes
 from meltfix.plan.treatment import contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg
 from meltfix.shop.elements import element_sort_key
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, usable_materials
 from meltfix.shop.liquidus import formula_for
-from meltfix.shop.recipes import Grade, Material, RecipeBook
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 
 # Kilograms of element off aim -> penalty: 0.01 wt % of a bath of M kg is M/10000 kg, per tonne
 # of bath that is M/1000 t, so w currency per (0.01 % x t) is exactly 10 w per kg off aim.

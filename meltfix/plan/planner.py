@@ -29,8 +29,11 @@ from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, LimitCheck, P
                                  limit_checks)
 from meltfix.plan.sequence import sequence_additions
 from meltfix.plan.treatment import contents_owed_pct
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
-from meltfix.shop.recipes import Grade, Material, RecipeBook, ShopSettings
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 # A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
 # as HiGHS's own MIP feasibility tolerance does.

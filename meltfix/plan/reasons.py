@@ -17,7 +17,8 @@ from dataclasses import dataclass
 from types import MappingProxyType
 
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Material, RecipeBook
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 
 
 @dataclass(frozen=True)

@@ -13,7 +13,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 
 from meltfix.plan.sequence import AdditionStep
-from meltfix.shop.recipes import ECONOMIC, Grade, Material
+from meltfix.shop.grades import Grade
+from meltfix.shop.materials import Material
+from meltfix.shop.settings import ECONOMIC
 
 LIMIT_TOL_PCT = 1e-9
 """A limit is missed only beyond float noise [wt %]: a content equal to its limit is inside. Every

@@ -34,8 +34,11 @@ from meltfix.plan.planner import Planner, recheck
 from meltfix.plan.result import LIMIT_TOL_PCT, LimitCheck, Odds, Plan, PlanOptions, RiskPlan, limit_checks
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import NO_SCATTER, LimitSet, Trial, analysis_sigma_pct, draw_trial, judge, world_symbols
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, stage_material
-from meltfix.shop.recipes import ECONOMIC, Grade, Material, RecipeBook, Scatter, ShopSettings
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ECONOMIC, Scatter, ShopSettings
 
 ECONOMIC_LEVELS = (0.5, 0.8, 0.9, 0.95, 0.98, 0.99)
 """Targets tried by ``target_odds = "economic"`` (besides the on-paper plan)."""

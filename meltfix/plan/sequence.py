@@ -12,7 +12,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from meltfix.base.units import Units
-from meltfix.shop.recipes import Material, ShopSettings
+from meltfix.shop.materials import Material
+from meltfix.shop.settings import ShopSettings
 
 
 @dataclass(frozen=True)

@@ -17,8 +17,10 @@ from collections.abc import Mapping
 
 from meltfix.plan.deoxidation import aluminium_owed_pct
 from meltfix.shop.elements import ATOMIC_WEIGHT
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Grade, Material, ShopSettings
+from meltfix.shop.materials import Material
+from meltfix.shop.settings import ShopSettings
 
 MG_PER_S = ATOMIC_WEIGHT["Mg"] / ATOMIC_WEIGHT["S"]
 """Mass of magnesium that binds one mass unit of sulphur as MgS [kg Mg / kg S]."""

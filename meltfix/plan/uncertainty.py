@@ -1,7 +1,7 @@
 """The odds that a plan lands the heat inside its grade when the world is not as measured.
 
 A plan is exact for the bath it was given. The real bath differs, as the shop's ``[scatter]`` says
-(meltfix.shop.recipes.Scatter): each (material, element) recovery is off by a normal relative error of
+(meltfix.shop.settings.Scatter): each (material, element) recovery is off by a normal relative error of
 its own (the material's ``recovery_scatter`` or the shop's ``recovery``; a drawn recovery above 1
 counts as 1; the iron balance does not scatter), the bath weight by a normal relative error, and
 the analysis by the spectrometer's repeatability (normal, sigma = r / 2.8 with r from
@@ -23,9 +23,12 @@ import numpy as np
 
 from meltfix.plan.result import LIMIT_TOL_PCT, LimitCheck, Odds, Plan, limit_checks
 from meltfix.plan.treatment import contents_owed_pct
+from meltfix.shop.grades import Grade, LinearIndex
 from meltfix.shop.heat import Heat, checked_grade
-from meltfix.shop.recipes import Grade, LinearIndex, Material, RecipeBook, Scatter
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 from meltfix.shop.repeatability import default_curve
+from meltfix.shop.settings import Scatter
 
 R_TO_SIGMA = 2.8
 """Repeatability limit r = 2.8 sigma for two results (ISO 5725-6, from memory)."""

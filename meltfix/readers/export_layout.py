@@ -10,8 +10,8 @@ from typing import Any
 
 from meltfix.base.errors import InputError
 from meltfix.shop.elements import normalise_symbol
-from meltfix.shop.recipes import number, table, text
 from meltfix.shop.repeatability import RepeatabilityCurve, default_curve
+from meltfix.shop.toml_values import number, table, text
 
 
 def header_key(name: str) -> str:

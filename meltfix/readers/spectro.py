@@ -33,7 +33,7 @@ from meltfix.readers.export_table import (BURN_NAMES, GRADE_NAMES, HEAT_NAMES, J
 from meltfix.readers.samples import NO_ELEMENTS, Burn, ImportResult, RawBurn, RawSample, Readings, SpectroSample
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key
-from meltfix.shop.recipes import ShopSettings
+from meltfix.shop.settings import ShopSettings
 
 # ---------------------------------------------------------------------------------------------
 # Reading the file

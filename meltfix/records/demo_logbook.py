@@ -34,8 +34,10 @@ from meltfix.plan.massbalance import bath_after
 from meltfix.plan.result import Plan
 from meltfix.records.logbook import SCHEMA_VERSION, Logbook
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Grade, Material, RecipeBook, load_recipes
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 SEED = 20260302
 DEMO_VERSION = 1  # bump when the generator changes, so cached logbooks are rebuilt

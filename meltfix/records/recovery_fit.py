@@ -57,7 +57,8 @@ from meltfix.records.logbook import Logbook
 from meltfix.records.replay import HeatRecord, record_from_history
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.elements import element_sort_key
-from meltfix.shop.recipes import Material, RecipeBook
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 
 MIN_SHARE = 0.80
 """Share of the element put in [0..1] one material must bring for the case to be its own."""

@@ -60,9 +60,11 @@ from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Plan, PlanOptions, limi
 from meltfix.plan.risk import RiskPlanner
 from meltfix.shop.analysis import Analysis, analysis_from_table
 from meltfix.shop.elements import parse_number
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, stage_material
-from meltfix.shop.recipes import (Grade, Material, RecipeBook, identifier, known_keys, number, read_toml, require,
-                                  stage_name, table, text)
+from meltfix.shop.materials import Material, stage_name
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.toml_values import identifier, known_keys, number, read_toml, require, table, text
 
 if TYPE_CHECKING:  # a replay from a file never opens the logbook
     from meltfix.records.logbook import HeatHistory

@@ -13,9 +13,12 @@ from typing import Any
 from meltfix.base.errors import InputError
 from meltfix.shop.analysis import Analysis, analysis_from_table
 from meltfix.shop.elements import PPM_ELEMENTS, PPM_PER_PCT, element_sort_key, normalise_symbol
+from meltfix.shop.grades import Grade
 from meltfix.shop.liquidus import formula_for
-from meltfix.shop.recipes import (Grade, Material, RecipeBook, ShopSettings, identifier, known_keys, number, read_toml,
-                                  require, table, text)
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
+from meltfix.shop.toml_values import identifier, known_keys, number, read_toml, require, table, text
 
 _HEAT_KEYS = {"heat", "grade", "bath_kg", "capacity_kg", "analysis", "temperature_c", "max_temp_drop_c",
               "stage", "switch_off", "lock_kg", "price_per_kg", "stock_kg", "dissolved_o_ppm", "not_measured"}

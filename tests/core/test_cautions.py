@@ -6,7 +6,8 @@ the shop's procedures and local codes."""
 from __future__ import annotations
 
 from meltfix.plan.cautions import ALWAYS, BathState, plan_cautions
-from meltfix.shop.recipes import Material, ShopSettings, parse_material
+from meltfix.shop.materials import Material, parse_material
+from meltfix.shop.settings import ShopSettings
 
 SHOP = ShopSettings()
 

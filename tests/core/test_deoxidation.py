@@ -23,8 +23,11 @@ from meltfix.plan.massbalance import bath_after
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat, heat_to_toml, parse_heat, validate_heat
-from meltfix.shop.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import ShopSettings
 
 NO_AIM = PlanOptions(use_aim=False)
 W = 50_000.0  # 50 t

@@ -16,8 +16,11 @@ import pytest
 from meltfix.plan.planner import Planner, plan_heat
 from meltfix.plan.result import Plan, PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 NO_AIM = PlanOptions(use_aim=False)
 

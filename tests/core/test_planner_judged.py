@@ -20,7 +20,8 @@ from meltfix.base.paths import default_recipes_dir, demo_dir
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import LIMIT_TOL_PCT, PlanOptions
 from meltfix.shop.heat import load_heat
-from meltfix.shop.recipes import DEFAULT_MAX_BATH_KG, load_recipes
+from meltfix.shop.recipes import load_recipes
+from meltfix.shop.settings import DEFAULT_MAX_BATH_KG
 
 # The demo shop's bath_kg_range (5-150 t) would stop these baths as slips: open it for the test.
 ANY_BATH = f"bath_kg_range = [0, {DEFAULT_MAX_BATH_KG:.0f}]"

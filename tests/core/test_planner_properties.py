@@ -20,8 +20,11 @@ from hypothesis import strategies as st
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import Plan, PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Material, RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.shop.materials import Material, parse_material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 ELEMENTS = ("C", "Si", "Mn", "Cr", "Ni", "Cu")
 FAST = settings(derandomize=True, database=None, max_examples=150, deadline=None,

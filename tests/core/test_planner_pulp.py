@@ -35,8 +35,11 @@ from meltfix.base.errors import InputError
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import Plan, PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import Grade, parse_grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Grade, Material, RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.shop.materials import Material, parse_material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 # pulp 3 announces that 4.0 will want a separately installed CBC; the bundled one is what we use.
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning:pulp")

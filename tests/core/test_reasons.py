@@ -26,8 +26,11 @@ from meltfix.plan.planner import Planner
 from meltfix.plan.reasons import REMEDIES, ROUTES, Remedy, remedy
 from meltfix.plan.result import PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import RecipeBook, ShopSettings, parse_grade, parse_material
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 STAGES = ("furnace", "ladle", "lf")
 OXIDISABLE = ("C", "Si", "Mn", "Cr", "Al", "Ti", "V", "Nb", "B")

@@ -23,7 +23,8 @@ from meltfix.base.paths import default_recipes_dir, demo_dir
 from meltfix.plan.planner import Planner
 from meltfix.shop.analysis import Analysis, analysis_from_table
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import RecipeBook, load_recipes, read_toml
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.toml_values import read_toml
 
 Problems = list[str]
 

@@ -22,7 +22,8 @@ from meltfix.records.recovery_fit import (RecoveryEstimate, RecoveryFit, fit_log
                                           weighted_ratio)
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Material, RecipeBook, load_recipes
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook, load_recipes
 from meltfix.shop.repeatability import default_curve
 
 # A manganese alloy (balance iron), a silicon alloy and a silicomanganese, so cases can be worked by hand.

@@ -30,9 +30,11 @@ from meltfix.plan.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, no
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import analysis_sigma_pct, plan_odds
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat, load_heat, stage_material
-from meltfix.shop.recipes import (RecipeBook, Scatter, ShopSettings, load_recipes, load_settings, parse_grade,
-                                  parse_material)
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import Scatter, ShopSettings, load_settings
 
 DEMO_HEATS = sorted((Path(__file__).resolve().parents[2] / "demo" / "heats").glob("*.toml"))
 NO_AIM_LOOSE = PlanOptions(use_aim=False, continuous=True)

@@ -13,7 +13,9 @@ import pytest
 from meltfix.plan.planner import plan_heat
 from meltfix.plan.sequence import portions_kg, sequence_additions
 from meltfix.shop.heat import load_heat
-from meltfix.shop.recipes import ADDITION_CLASSES, Material, ShopSettings, load_recipes, parse_material
+from meltfix.shop.materials import Material, parse_material
+from meltfix.shop.recipes import load_recipes
+from meltfix.shop.settings import ADDITION_CLASSES, ShopSettings
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"
 

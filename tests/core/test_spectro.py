@@ -14,8 +14,8 @@ import pytest
 from meltfix.base.errors import InputError
 from meltfix.readers.export_layout import ExportLayout
 from meltfix.readers.spectro import parse_export, read_export
-from meltfix.shop.recipes import ShopSettings
 from meltfix.shop.repeatability import RepeatabilityCurve, default_curve
+from meltfix.shop.settings import ShopSettings
 
 DATA = Path(__file__).resolve().parents[1] / "data" / "spectro"
 

@@ -22,9 +22,11 @@ from meltfix.plan.massbalance import bath_after
 from meltfix.plan.planner import Planner, plan_heat
 from meltfix.plan.result import PlanOptions
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat, load_heat, stage_material, usable_materials, validate_heat
-from meltfix.shop.recipes import (DEFAULT_STAGES, RecipeBook, ShopSettings, Stage, load_recipes, parse_grade,
-                                  parse_material)
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import DEFAULT_STAGES, ShopSettings, Stage
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "demo" / "heats"

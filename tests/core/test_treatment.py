@@ -19,8 +19,11 @@ from meltfix.plan.result import PlanOptions
 from meltfix.plan.treatment import (MG_PER_S, contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct,
                                     magnesium_owed_pct, nodulariser_kg)
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat, load_heat
-from meltfix.shop.recipes import RecipeBook, ShopSettings, load_recipes, parse_grade, parse_material
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import ShopSettings
 
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "heats"
 NO_AIM = PlanOptions(use_aim=False)

@@ -21,8 +21,11 @@ from meltfix.plan.planner import Planner
 from meltfix.plan.result import PlanOptions
 from meltfix.plan.uncertainty import NO_SCATTER, plan_odds
 from meltfix.shop.analysis import Analysis
+from meltfix.shop.grades import parse_grade
 from meltfix.shop.heat import Heat, load_heat
-from meltfix.shop.recipes import RecipeBook, Scatter, ShopSettings, load_recipes, parse_grade, parse_material
+from meltfix.shop.materials import parse_material
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import Scatter, ShopSettings
 
 DEMO_HEATS = sorted((Path(__file__).resolve().parents[2] / "demo" / "heats").glob("*.toml"))
 NO_AIM_LOOSE = PlanOptions(use_aim=False, continuous=True)

@@ -20,7 +20,8 @@ from meltfix.base.errors import InputError
 from meltfix.plan.numbers import kg_text, money_text
 from meltfix.shop.elements import parse_number
 from meltfix.shop.heat import Heat, validate_heat
-from meltfix.shop.recipes import Material, RecipeBook
+from meltfix.shop.materials import Material
+from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.keys import hint
 from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
 from meltfix.tui.widgets.reason import ReasonLine

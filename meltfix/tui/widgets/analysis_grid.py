@@ -11,7 +11,7 @@ from textual.content import Content
 from textual.widgets import Input, Label, Static
 
 from meltfix.plan.numbers import limit_text, unit_of
-from meltfix.shop.recipes import Grade
+from meltfix.shop.grades import Grade
 from meltfix.tui.draft import cell_key
 from meltfix.tui.widgets.reason import ReasonLine
 

@@ -17,7 +17,7 @@ from textual.geometry import Size
 from textual.widget import Widget
 
 from meltfix.plan.numbers import content_text, limit_text, unit_of
-from meltfix.shop.recipes import Grade
+from meltfix.shop.grades import Grade
 
 _LABEL = 5  # width of the min and max labels either side of the rail
 _FIXED = 6 + 3 + 6 + 1  # now, arrow, after, space (the name column is as wide as the longest name)

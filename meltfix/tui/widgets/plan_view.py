@@ -16,8 +16,8 @@ from textual.widgets import Static
 
 from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
 from meltfix.plan.result import Plan, RiskPlan
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import Grade
 from meltfix.tui.widgets.gauge import ChemistryGauges, gauge_rows
 from meltfix.tui.widgets.why_not import WhyNot
 
