@@ -9,8 +9,8 @@ A database that is not a logbook (damaged, another program's, or from a newer me
 with one clear message naming it and never written to; an older one is migrated (see
 :mod:`meltfix.records.logbook.schema`).
 
-Times are the shop's wall-clock time, stored naive to the second; an aware datetime is first
-converted to this computer's local time.
+How a value is written into a cell and read back is in :mod:`meltfix.records.logbook.cells`; the
+read queries are in :mod:`meltfix.records.logbook.queries`.
 """
 
 from __future__ import annotations
@@ -22,104 +22,25 @@ import threading
 import tomllib
 from collections.abc import Callable, Collection, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
-from dataclasses import asdict, fields
-from datetime import date, datetime, time, timedelta
+from dataclasses import asdict
+from datetime import date, datetime
 from itertools import islice
-from types import MappingProxyType
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from meltfix.base.errors import InputError
 from meltfix.plan.result import Plan, PlanOptions
+from meltfix.records.logbook import queries
 from meltfix.records.logbook.backend import Backend
+from meltfix.records.logbook.cells import analysis_json, heat_extra, iso, stamp, unit_price
 from meltfix.records.logbook.location import LogbookLocation, ServerURL, default_logbook_path, logbook_location
-from meltfix.records.logbook.records import (AdditionsRecord, CostLine, HeatHistory, HeatSummary, LineRecord,
-                                             PlanRecord, SampleRecord, Shift)
+from meltfix.records.logbook.records import CostLine, HeatHistory, HeatSummary, Shift
 from meltfix.records.logbook.schema import prepare
 from meltfix.shop.analysis import Analysis
-from meltfix.shop.heat import Heat, heat_to_toml, parse_heat
+from meltfix.shop.heat import Heat, heat_to_toml
 
 if TYPE_CHECKING:
     from meltfix.readers.samples import SpectroSample
     from meltfix.shop.recipes import RecipeBook
-
-def _stamp(when: datetime | None) -> datetime:
-    if when is None:
-        when = datetime.now()
-    elif when.tzinfo is not None:
-        when = when.astimezone().replace(tzinfo=None)
-    return when.replace(microsecond=0)
-
-
-def _iso(when: datetime) -> str:
-    return when.isoformat(timespec="seconds")
-
-
-def _unit_price(cost: float, kg: float) -> float:
-    # A plan line carries kg and cost = kg x price: rounding to 1e-9 undoes the division's last-bit noise.
-    return round(cost / kg, 9)
-
-
-def _analysis_json(analysis: Analysis) -> tuple[str, str]:
-    return json.dumps(dict(analysis.pct)), json.dumps(sorted(analysis.below_limit))
-
-
-def _analysis_from(pct_json: str, below_json: str) -> Analysis:
-    return Analysis(pct=json.loads(pct_json), below_limit=frozenset(json.loads(below_json)))
-
-
-# Heat fields HEAT.toml text (heat_to_toml) does not carry, kept beside it so a plan can be made again.
-def _heat_extra(heat: Heat) -> str:
-    return json.dumps({
-        "stage": heat.stage,
-        "max_temp_drop_c": heat.max_temp_drop_c,
-        "switched_off": sorted(heat.switched_off),
-        "locked_kg": dict(heat.locked_kg),
-        "price_per_kg": dict(heat.price_per_kg),
-        "stock_kg": dict(heat.stock_kg),
-    })
-
-
-def _cell(path: object, heat_id: str, column: str, parse: Callable[[Any], Any], raw: Any) -> Any:
-    """A cell read back through ``parse``; a damaged one (hand-edited, written by another program) is
-    bad input naming the heat and the column, never a traceback in a report or a replay."""
-    try:
-        return parse(raw)
-    except (ValueError, TypeError, KeyError, AttributeError) as exc:  # json.JSONDecodeError is a ValueError
-        shown = repr(raw) if len(repr(raw)) <= 40 else repr(raw)[:37] + "..."
-        raise InputError(path, f"heat {heat_id}: {column}", f"damaged logbook cell {shown} ({exc})") from None
-
-
-def _kg(value: Any) -> float | None:
-    """A weight column: a number or empty."""
-    if value is None or (isinstance(value, (int, float)) and not isinstance(value, bool)):
-        return value
-    raise ValueError("not a number")
-
-
-def _heat_from(toml_text: str, extra_json: str, source: str, heat_id: str) -> Heat:
-    try:
-        data = tomllib.loads(toml_text)
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(source, "heat_toml", f"the recorded heat is not valid TOML ({exc})") from None
-    heat = parse_heat(data, source, default_id=heat_id)
-    extra = _cell(source, heat_id, "heat_extra", json.loads, extra_json)
-    return _cell(source, heat_id, "heat_extra", lambda e: heat.with_changes(
-        stage=e["stage"],
-        max_temp_drop_c=e["max_temp_drop_c"],
-        switched_off=frozenset(e["switched_off"]),
-        locked_kg=MappingProxyType(e["locked_kg"]),
-        price_per_kg=MappingProxyType(e["price_per_kg"]),
-        stock_kg=MappingProxyType(e["stock_kg"]),
-    ), extra)
-
-
-def _options_from(options_json: str) -> PlanOptions:
-    from meltfix.plan.result import PlanOptions
-
-    # Options added or dropped in later versions of meltfix keep their defaults.
-    known = {f.name for f in fields(PlanOptions)}
-    return PlanOptions(**{k: v for k, v in json.loads(options_json).items() if k in known})
-
 
 
 # A sample's other ids to try, at most (a heat has a handful of samples), and whole tries when a
@@ -247,7 +168,7 @@ class Logbook:
             "INSERT INTO heat (heat_id, started_at, shift_date, shift) VALUES (?, ?, ?, ?) "
             "ON CONFLICT (heat_id) DO UPDATE SET started_at = excluded.started_at, "
             "shift_date = excluded.shift_date, shift = excluded.shift WHERE excluded.started_at < heat.started_at",
-            (heat_id, _iso(when), shift.shift_date.isoformat(), shift.name))
+            (heat_id, iso(when), shift.shift_date.isoformat(), shift.name))
 
     # -- meta ----------------------------------------------------------------------------------
     @property
@@ -265,8 +186,6 @@ class Logbook:
     def record_plan(self, heat: Heat, plan: Plan, when: datetime | None = None, *,
                     options: PlanOptions | None = None) -> int:
         """Record a plan with the heat and options it was made from; returns the plan's id."""
-        from meltfix.plan.result import PlanOptions
-
         if plan.heat_id != heat.heat_id:
             raise ValueError(f"plan is for heat {plan.heat_id!r}, not {heat.heat_id!r}")
         heat_toml = heat_to_toml(heat)
@@ -274,12 +193,12 @@ class Logbook:
             tomllib.loads(heat_toml)
         except tomllib.TOMLDecodeError as exc:  # e.g. a NumPy number written as "np.float64(...)"
             raise ValueError(f"heat {heat.heat_id} does not write as valid HEAT.toml text ({exc})") from None
-        when = _stamp(when)
+        when = stamp(when)
         prices: dict[str, float] = {}
         if self.book is not None:
             prices.update((m.name, m.price_per_kg) for m in self.book.materials)
         prices.update(heat.price_per_kg)
-        prices.update((a.material, _unit_price(a.cost, a.kg)) for a in plan.additions if a.kg > 0)
+        prices.update((a.material, unit_price(a.cost, a.kg)) for a in plan.additions if a.kg > 0)
         with self._write() as db:
             self._touch_heat(db, heat.heat_id, when)
             # The heat's grade follows its latest plan; its size is the bath when first planned.
@@ -290,13 +209,13 @@ class Logbook:
                 "INSERT INTO plan (heat_id, made_at, grade, status, bath_kg, final_kg, total_cost, currency, "
                 "heat_toml, heat_extra, options, prices, result) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) "
                 "RETURNING id",
-                (heat.heat_id, _iso(when), plan.grade, plan.status, plan.bath_kg, plan.final_kg, plan.total_cost,
-                 plan.currency, heat_toml, _heat_extra(heat), json.dumps(asdict(options or PlanOptions())),
+                (heat.heat_id, iso(when), plan.grade, plan.status, plan.bath_kg, plan.final_kg, plan.total_cost,
+                 plan.currency, heat_toml, heat_extra(heat), json.dumps(asdict(options or PlanOptions())),
                  json.dumps(prices), json.dumps(plan.to_json())))
             plan_id = int(cursor.fetchone()[0])
             db.executemany(
                 "INSERT INTO plan_line (plan_id, line_no, material, kg, price_per_kg, cost) VALUES (?, ?, ?, ?, ?, ?)",
-                [(plan_id, k, a.material, a.kg, _unit_price(a.cost, a.kg) if a.kg > 0 else 0.0, a.cost)
+                [(plan_id, k, a.material, a.kg, unit_price(a.cost, a.kg) if a.kg > 0 else 0.0, a.cost)
                  for k, a in enumerate(plan.additions, start=1)])
         return plan_id
 
@@ -308,7 +227,7 @@ class Logbook:
         heat's latest plan, else from the recipe book; a line with no known price is still recorded.
         """
         lines = self._checked_lines(additions)
-        when = _stamp(when)
+        when = stamp(when)
         with self._write() as db:
             if plan_id is not None:
                 found = db.execute("SELECT heat_id FROM plan WHERE id = ?", (plan_id,)).fetchone()
@@ -318,7 +237,7 @@ class Logbook:
             known.update(prices or {})
             self._touch_heat(db, heat_id, when)
             batch = db.execute("INSERT INTO addition_batch (heat_id, added_at, plan_id) VALUES (?, ?, ?) RETURNING id",
-                               (heat_id, _iso(when), plan_id)).fetchone()[0]
+                               (heat_id, iso(when), plan_id)).fetchone()[0]
             rows = []
             for k, (material, kg) in enumerate(lines, start=1):
                 price = known.get(material)
@@ -369,7 +288,7 @@ class Logbook:
             if not 1 <= number <= len(burns):
                 raise InputError("sample", f"{sample_id}.rejected_burns",
                                  f"burn {number} does not exist (the sample has {len(burns)} burns)")
-        when = _stamp(when)
+        when = stamp(when)
         candidates = list(islice(if_taken, _MAX_SAMPLE_IDS)) if if_taken else []
         for attempt in range(_SAMPLE_ATTEMPTS):
             try:
@@ -385,7 +304,7 @@ class Logbook:
     def _insert_sample(self, heat_id: str, ids: Sequence[str], analysis: Analysis, burns: Sequence[Analysis],
                        when: datetime, rejected_burns: Collection[int], temperature_c: float | None,
                        flags: Sequence[str]) -> str:
-        pct_json, below_json = _analysis_json(analysis)
+        pct_json, below_json = analysis_json(analysis)
         with self._write() as db:
             # The heat's row first: on PostgreSQL it stays locked until this transaction ends, so
             # the ids read next cannot change under it (SQLite's write lock covers the whole file).
@@ -399,7 +318,7 @@ class Logbook:
                 row = db.execute(
                     "INSERT INTO sample (heat_id, sample_id, taken_at, analysis, below_limit, temperature_c, flags) "
                     "VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id",
-                    (heat_id, sample_id, _iso(when), pct_json, below_json, temperature_c, json.dumps(list(flags))),
+                    (heat_id, sample_id, iso(when), pct_json, below_json, temperature_c, json.dumps(list(flags))),
                 ).fetchone()[0]
             except db.errors as exc:
                 if db.is_unique_violation(exc):
@@ -407,7 +326,7 @@ class Logbook:
                 raise
             db.executemany(
                 "INSERT INTO burn (sample_row, burn_no, analysis, below_limit, accepted) VALUES (?, ?, ?, ?, ?)",
-                [(row, k, *_analysis_json(burn), int(k not in rejected_burns)) for k, burn in enumerate(burns, 1)])
+                [(row, k, *analysis_json(burn), int(k not in rejected_burns)) for k, burn in enumerate(burns, 1)])
         return sample_id
 
     def record_spectro_sample(self, heat_id: str, sample: SpectroSample, when: datetime | None = None, *,
@@ -420,50 +339,12 @@ class Logbook:
         return self.record_sample(heat_id, sample.sample_id, sample.analysis, burns, when, rejected_burns=rejected,
                                   temperature_c=temperature_c, flags=sample.flags, if_taken=if_taken)
 
-    # -- reading -------------------------------------------------------------------------------
+    # -- reading (the queries are in meltfix.records.logbook.queries) ----------------------------
     def list_heats(self, date_from: date | None = None, date_to: date | None = None, *,
                    shift: Shift | None = None) -> list[HeatSummary]:
         """Heats that started between two dates (inclusive, either may be open), or in one shift,
         oldest first, with what their additions cost."""
-        where, params = self._heat_filter(date_from, date_to, shift)
-        rows = self._read(f"""
-            SELECT h.heat_id, h.grade, h.started_at, h.shift_date, h.shift, h.bath_kg,
-              (SELECT count(*) FROM sample s WHERE s.heat_id = h.heat_id),
-              (SELECT count(*) FROM plan p WHERE p.heat_id = h.heat_id),
-              (SELECT count(*) FROM addition_batch b WHERE b.heat_id = h.heat_id),
-              (SELECT coalesce(sum(a.kg), 0) FROM addition a JOIN addition_batch b ON a.batch_id = b.id
-                 WHERE b.heat_id = h.heat_id),
-              (SELECT coalesce(sum(p.total_cost), 0) FROM plan p
-                 WHERE p.id IN (SELECT b.plan_id FROM addition_batch b WHERE b.heat_id = h.heat_id)),
-              (SELECT coalesce(sum(a.cost), 0) FROM addition a JOIN addition_batch b ON a.batch_id = b.id
-                 WHERE b.heat_id = h.heat_id),
-              (SELECT count(*) FROM addition a JOIN addition_batch b ON a.batch_id = b.id
-                 WHERE b.heat_id = h.heat_id AND a.cost IS NULL),
-              (SELECT p.currency FROM plan p WHERE p.heat_id = h.heat_id ORDER BY p.made_at DESC, p.id DESC LIMIT 1)
-            FROM heat h {where} ORDER BY h.started_at, h.heat_id""", params)
-        path = self.path
-        return [HeatSummary(heat_id=r[0], grade=r[1], started_at=_cell(path, r[0], "started_at", datetime.fromisoformat, r[2]),
-                            shift=Shift(_cell(path, r[0], "shift_date", date.fromisoformat, r[3]), r[4]),
-                            bath_kg=_cell(path, r[0], "bath_kg", _kg, r[5]), samples=r[6], plans=r[7],
-                            corrections=r[8], added_kg=r[9], planned_cost=r[10], actual_cost=r[11],
-                            unpriced_lines=r[12], currency=r[13] or "")
-                for r in rows]
-
-    @staticmethod
-    def _heat_filter(date_from: date | None, date_to: date | None,
-                     shift: Shift | None) -> tuple[str, list[object]]:
-        clauses: list[str] = []
-        params: list[object] = []
-        if date_from is not None:
-            clauses.append("h.started_at >= ?")
-            params.append(_iso(datetime.combine(date_from, time())))
-        if date_to is not None:
-            clauses.append("h.started_at < ?")
-            params.append(_iso(datetime.combine(date_to + timedelta(days=1), time())))
-        if shift is not None:
-            clauses.append("h.shift_date = ? AND h.shift = ?")
-            params += [shift.shift_date.isoformat(), shift.name]
-        return ("WHERE " + " AND ".join(clauses)) if clauses else "", params
+        return queries.list_heats(self._read, self.path, date_from, date_to, shift)
 
     def shifts(self) -> list[Shift]:
         """Every shift with at least one heat, oldest first."""
@@ -472,83 +353,9 @@ class Logbook:
 
     def cost_lines(self, date_from: date | None = None, date_to: date | None = None) -> list[CostLine]:
         """Planned lines (of the plans additions were made from) and actual lines of the heats in range."""
-        where, params = self._heat_filter(date_from, date_to, None)
-        rows = self._read(f"""
-            SELECT h.heat_id, 'planned', l.material, l.kg, l.price_per_kg, l.cost
-              FROM heat h JOIN plan p ON p.heat_id = h.heat_id JOIN plan_line l ON l.plan_id = p.id
-              {where} {'AND' if where else 'WHERE'}
-              p.id IN (SELECT b.plan_id FROM addition_batch b WHERE b.heat_id = h.heat_id)
-            UNION ALL
-            SELECT h.heat_id, 'actual', a.material, a.kg, a.price_per_kg, a.cost
-              FROM heat h JOIN addition_batch b ON b.heat_id = h.heat_id JOIN addition a ON a.batch_id = b.id
-              {where}""", params + params)
-        return [CostLine(*row) for row in rows]
+        return queries.cost_lines(self._read, date_from, date_to)
 
     def heat_history(self, heat_id: str) -> HeatHistory:
         """Everything recorded for one heat, in time order."""
         with self.reading():
-            return self._history(heat_id)
-
-    def _history(self, heat_id: str) -> HeatHistory:
-        heat = self._read("SELECT grade, started_at, shift_date, shift, bath_kg FROM heat WHERE heat_id = ?",
-                          (heat_id,))
-        if not heat:
-            raise InputError(self.path, f"heat {heat_id}", "is not in the logbook")
-        grade, started_at, shift_date, shift_name, bath_kg = heat[0]
-        path = self.path
-
-        burns: dict[int, list[tuple[Analysis, bool]]] = {}
-        for sample_row, pct, below, accepted in self._read(
-                "SELECT b.sample_row, b.analysis, b.below_limit, b.accepted FROM burn b JOIN sample s "
-                "ON b.sample_row = s.id WHERE s.heat_id = ? ORDER BY b.sample_row, b.burn_no", (heat_id,)):
-            burns.setdefault(sample_row, []).append(
-                (_cell(path, heat_id, "burn.analysis", lambda a: _analysis_from(*a), (pct, below)), bool(accepted)))
-        samples = []
-        for row, sample_id, taken_at, pct, below, temperature, flags in self._read(
-                "SELECT id, sample_id, taken_at, analysis, below_limit, temperature_c, flags FROM sample "
-                "WHERE heat_id = ? ORDER BY taken_at, id", (heat_id,)):
-            sparks = burns.get(row, [])
-            samples.append(SampleRecord(
-                heat_id, sample_id, _cell(path, heat_id, "sample.taken_at", datetime.fromisoformat, taken_at),
-                _cell(path, heat_id, "sample.analysis", lambda a: _analysis_from(*a), (pct, below)),
-                tuple(b for b, _ in sparks), frozenset(k for k, (_, ok) in enumerate(sparks, 1) if not ok),
-                temperature, tuple(_cell(path, heat_id, "sample.flags", json.loads, flags))))
-
-        plan_lines = self._lines("SELECT l.plan_id, l.material, l.kg, l.price_per_kg, l.cost FROM plan_line l "
-                                 "JOIN plan p ON l.plan_id = p.id WHERE p.heat_id = ? ORDER BY l.plan_id, l.line_no",
-                                 heat_id)
-        plans = []
-        for (plan_id, made_at, status, total_cost, plan_bath, final_kg, currency, toml_text, extra, options,
-             prices, result) in self._read(
-                "SELECT id, made_at, status, total_cost, bath_kg, final_kg, currency, heat_toml, heat_extra, "
-                "options, prices, result FROM plan WHERE heat_id = ? ORDER BY made_at, id", (heat_id,)):
-            result_obj = _cell(path, heat_id, f"plan {plan_id} result", lambda r: dict(json.loads(r)), result)
-            plans.append(PlanRecord(
-                plan_id=plan_id, heat_id=heat_id,
-                made_at=_cell(path, heat_id, f"plan {plan_id} made_at", datetime.fromisoformat, made_at),
-                heat=_heat_from(toml_text, extra, f"{path} heat {heat_id} plan {plan_id}", heat_id), heat_toml=toml_text,
-                options=_cell(path, heat_id, f"plan {plan_id} options", _options_from, options), status=status,
-                lines=plan_lines.get(plan_id, ()), total_cost=total_cost, bath_kg=plan_bath, final_kg=final_kg,
-                predicted_pct=MappingProxyType(result_obj.get("predicted", {})),
-                prices=MappingProxyType(_cell(path, heat_id, f"plan {plan_id} prices", json.loads, prices)),
-                currency=currency,
-                result=MappingProxyType(result_obj)))
-
-        batch_lines = self._lines("SELECT a.batch_id, a.material, a.kg, a.price_per_kg, a.cost FROM addition a "
-                                  "JOIN addition_batch b ON a.batch_id = b.id WHERE b.heat_id = ? "
-                                  "ORDER BY a.batch_id, a.line_no", heat_id)
-        additions = tuple(
-            AdditionsRecord(batch_id, heat_id, _cell(path, heat_id, "addition_batch.added_at", datetime.fromisoformat,
-                                                     added_at), plan_id, batch_lines.get(batch_id, ()))
-            for batch_id, added_at, plan_id in self._read(
-                "SELECT id, added_at, plan_id FROM addition_batch WHERE heat_id = ? ORDER BY added_at, id", (heat_id,)))
-        return HeatHistory(heat_id, grade, _cell(path, heat_id, "started_at", datetime.fromisoformat, started_at),
-                           Shift(_cell(path, heat_id, "shift_date", date.fromisoformat, shift_date), shift_name),
-                           _cell(path, heat_id, "bath_kg", _kg, bath_kg),
-                           tuple(samples), tuple(plans), additions)
-
-    def _lines(self, sql: str, heat_id: str) -> dict[int, tuple[LineRecord, ...]]:
-        grouped: dict[int, list[LineRecord]] = {}
-        for owner, material, kg, price, cost in self._read(sql, (heat_id,)):
-            grouped.setdefault(owner, []).append(LineRecord(material, kg, price, cost))
-        return {owner: tuple(lines) for owner, lines in grouped.items()}
+            return queries.heat_history(self._read, self.path, heat_id)
