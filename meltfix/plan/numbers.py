@@ -61,9 +61,9 @@ def content_text(symbol: str, pct: float) -> str:
     return f"{pct:.{limit_places(symbol) + 1}f}"
 
 
-def content_unit_text(symbol: str, pct: float) -> str:
-    """A content in a sentence: "0.842" (wt %, as a sheet of contents reads) or "13 ppm"."""
-    return content_text(symbol, pct) + (" ppm" if symbol in PPM_ELEMENTS else "")
+def with_unit(symbol: str, text: str) -> str:
+    """A limit's or content's text followed by the element's unit, for a sentence: "0.50 %", "80 ppm"."""
+    return f"{text} {unit_of(symbol)}"
 
 
 def margin_text(symbol: str, margin_pct: float) -> str:
@@ -78,6 +78,16 @@ def margin_text(symbol: str, margin_pct: float) -> str:
     else:
         text = f"{value:+.{limit_places(symbol) + 1}f}"
     return text.replace("+", "-", 1) if value < 0 and not text.startswith("-") else text
+
+
+def miss_text(symbol: str, by_pct: float) -> str:
+    """How far a limit is missed [wt %, above 0], in the element's unit without it; a miss smaller than
+    the last decimal a content shows reads "<0.001", never as an inside-looking "0.000"."""
+    text = content_text(symbol, by_pct)
+    if by_pct > LIMIT_TOL_PCT and float(text) == 0.0:
+        step = text[:-1] + "1"  # "0.000" -> "0.001", "0.0" (ppm) -> "0.1"
+        return "<" + step
+    return text
 
 
 def cell_text(symbol: str, pct: float, below_limit: bool = False) -> str:

@@ -16,6 +16,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from types import MappingProxyType
 
+from meltfix.plan.numbers import content_text, kg_text, limit_text, with_unit
 from meltfix.shop.heat import Heat
 from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
@@ -124,51 +125,69 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
     grade = book.grade(heat.grade)
     if element not in grade.window_pct:
         return f"{element} cannot be brought inside its limit together with the other limits."
-    low, high = grade.window_pct[element]
+    if limit == "min":
+        return _short_of_min(element, heat, book, usable, used, final_kg, packs, temperature_drop_c, drop_limit_c)
+    return _over_max(element, heat, book, usable, used)
+
+
+def _pct(symbol: str, pct: float) -> str:
+    """A limit or content in a sentence, as every output writes it."""
+    return with_unit(symbol, limit_text(symbol, pct))
+
+
+def _short_of_min(element: str, heat: Heat, book: RecipeBook, usable: Sequence[Material],
+                  used: Sequence[tuple[Material, float]], final_kg: float, packs: bool,
+                  temperature_drop_c: float, drop_limit_c: float | None) -> str:
+    low, high = book.grade(heat.grade).window_pct[element]
+    free_kg = None if heat.capacity_kg is None else heat.capacity_kg - heat.bath_kg
+    # A carrier must bring more of the element than the bath needs: scrap with 0.005 % Mo
+    # does not raise Mo to 0.15 %.
+    carriers = [m for m in usable if m.yield_pct(element) > low]
+    if not carriers:
+        anywhere = [m.name for m in book.materials if m.yield_pct(element) > low]
+        if not anywhere:
+            return f"No material in the recipe book carries {element}."
+        elsewhere = _other_stages(heat, book, [m for m in book.materials if m.yield_pct(element) > low])
+        if elsewhere:
+            return (f"No material that carries {element} may go in at the {heat.stage}: raising it needs "
+                    f"the {elsewhere}.")
+        return (f"No usable material carries {element} (those that do are switched off or forbidden "
+                f"for this grade: {', '.join(anywhere)}).")
+    stocked = [m for m in carriers if heat.material_stock_kg(m) != 0]
+    if not stocked:
+        verb = "is" if len(carriers) == 1 else "are"
+        return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} {verb} out of stock."
+    if free_kg is not None and final_kg - heat.bath_kg >= free_kg - 1.0:
+        return (f"{element} is short because the vessel is full: all {kg_text(free_kg)} kg of free capacity "
+                "is used.")
+    if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
+        return (f"{element} is short because more additions would chill the bath beyond the "
+                f"{drop_limit_c:g} °C the heat may lose.")
+    exhausted = [m.name for m, kg in used if m in stocked
+                 and (on_hand := heat.material_stock_kg(m)) is not None and kg >= on_hand - 1e-6]
+    if exhausted and len(exhausted) >= len([m for m in stocked if heat.material_stock_kg(m) is not None]):
+        return f"{element} is short because the stock of {', '.join(exhausted)} is used up."
+    if packs:
+        return (f"{element} cannot land inside {limit_text(element, low)}–{_pct(element, high)} with whole "
+                "packs, or raising it would push another element out; try the plan with loose amounts.")
+    return (f"Raising {element} to {_pct(element, low)} with the stocked materials would push another element "
+            "over its limit.")
+
+
+def _over_max(element: str, heat: Heat, book: RecipeBook, usable: Sequence[Material],
+              used: Sequence[tuple[Material, float]]) -> str:
+    """Above a maximum additions can only dilute; the remedy says what else would work here."""
+    high = book.grade(heat.grade).window_pct[element][1]
     now = heat.analysis.get(element)
     free_kg = None if heat.capacity_kg is None else heat.capacity_kg - heat.bath_kg
-    added_kg = sum(kg for _, kg in used)
-    if limit == "min":
-        # A carrier must bring more of the element than the bath needs: scrap with 0.005 % Mo
-        # does not raise Mo to 0.15 %.
-        carriers = [m for m in usable if m.yield_pct(element) > low]
-        if not carriers:
-            anywhere = [m.name for m in book.materials if m.yield_pct(element) > low]
-            if not anywhere:
-                return f"No material in the recipe book carries {element}."
-            elsewhere = _other_stages(heat, book, [m for m in book.materials if m.yield_pct(element) > low])
-            if elsewhere:
-                return (f"No material that carries {element} may go in at the {heat.stage}: raising it needs "
-                        f"the {elsewhere}.")
-            return (f"No usable material carries {element} (those that do are switched off or forbidden "
-                    f"for this grade: {', '.join(anywhere)}).")
-        stocked = [m for m in carriers if heat.material_stock_kg(m) != 0]
-        if not stocked:
-            verb = "is" if len(carriers) == 1 else "are"
-            return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} {verb} out of stock."
-        if free_kg is not None and final_kg - heat.bath_kg >= free_kg - 1.0:
-            return (f"{element} is short because the vessel is full: all {free_kg:,.0f} kg of free capacity "
-                    "is used.")
-        if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
-            return (f"{element} is short because more additions would chill the bath beyond the "
-                    f"{drop_limit_c:g} °C the heat may lose.")
-        exhausted = [m.name for m, kg in used if m in stocked
-                     and (on_hand := heat.material_stock_kg(m)) is not None and kg >= on_hand - 1e-6]
-        if exhausted and len(exhausted) >= len([m for m in stocked if heat.material_stock_kg(m) is not None]):
-            return f"{element} is short because the stock of {', '.join(exhausted)} is used up."
-        if packs:
-            return (f"{element} cannot land inside {low:g}–{high:g} % with whole packs, or raising it would push "
-                    "another element out; try the plan with loose amounts.")
-        return (f"Raising {element} to {low:g} % with the stocked materials would push another element over "
-                "its limit.")
-    # Above a maximum: additions can only dilute; the remedy says what else would work here.
     advice = remedy(element, heat.stage).text
     if now <= high:
-        return (f"{element} rises above {high:g} % because the additions the other elements need carry "
-                f"{element} in; {advice}.")
+        return (f"{element} rises above {_pct(element, high)} because the additions the other elements need "
+                f"carry {element} in; {advice}.")
     needed_kg = heat.bath_kg * (now / high - 1.0)
     clean = [m for m in usable if m.kind == "dilution" and m.composition_pct.get(element, 0.0) < high]
-    figures = f"{element} is {now:g} % against a maximum of {high:g} %: it needs about {needed_kg:,.0f} kg of clean material"
+    figures = (f"{element} is {with_unit(element, content_text(element, now))} against a maximum of "
+               f"{_pct(element, high)}: it needs about {kg_text(needed_kg)} kg of clean material")
     if not clean:
         elsewhere = _other_stages(heat, book, [m for m in book.materials if m.kind == "dilution"
                                          and m.composition_pct.get(element, 0.0) < high])
@@ -176,12 +195,13 @@ def explain_violation(element: str, limit: str, heat: Heat, book: RecipeBook, us
             return f"{figures}, but none may go in at the {heat.stage}: dilution needs the {elsewhere}; {advice}."
         return f"{figures}, but no clean dilution material is usable; {advice}."
     if free_kg is not None and needed_kg > free_kg:
-        return f"{figures} but only {free_kg:,.0f} kg of capacity is free; {advice}."
+        return f"{figures} but only {kg_text(free_kg)} kg of capacity is free; {advice}."
     stocks = [heat.material_stock_kg(m) for m in clean]
     in_stock = math.fsum(s for s in stocks if s is not None)
     if None not in stocks and needed_kg > in_stock:
-        return f"{figures} but only {in_stock:,.0f} kg of clean material is in stock; {advice}."
-    return f"{figures} ({added_kg:,.0f} kg is all the plan can add within its limits); {advice}."
+        return f"{figures} but only {kg_text(in_stock)} kg of clean material is in stock; {advice}."
+    added_kg = sum(kg for _, kg in used)
+    return f"{figures} ({kg_text(added_kg)} kg is all the plan can add within its limits); {advice}."
 
 
 def _other_stages(heat: Heat, book: RecipeBook, materials: Sequence[Material]) -> str:

@@ -9,7 +9,7 @@ from rich.text import Text
 
 from meltfix.base.outputs import markup_safe, visible
 from meltfix.base.units import Units
-from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text, money_text, unit_of
+from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text, miss_text, money_text, unit_of
 from meltfix.plan.result import Odds, Plan, RiskPlan, is_outside
 
 
@@ -24,8 +24,8 @@ def odds_text(odds: Odds, risk: RiskPlan | None = None) -> Text:
         line += " · weakest: " + ", ".join(f"{label} {100 * p:.1f} %" for p, label in weakest)
     if risk is not None and risk.correction_cost:
         cur = risk.plan.currency
-        line += (f"\nExpected total cost {risk.expected_total_cost:,.2f} {cur} (additions + "
-                 f"{100 * (1 - odds.heat):.1f} % × {risk.correction_cost:,.0f} {cur} a correction)")
+        line += (f"\nExpected total cost {money_text(risk.expected_total_cost)} {cur} (additions + "
+                 f"{100 * (1 - odds.heat):.1f} % × {money_text(risk.correction_cost)} {cur} a correction)")
     short = odds.heat < (0.9 if risk is None else risk.target)
     return Text(line, style="bold yellow" if short else "bold")
 
@@ -88,7 +88,7 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     if plan.violations:
         parts.append(Panel(Text("\n".join(visible(
             f"• {v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit_of(v.element)}: off by "
-            f"{content_text(v.element, v.by_pct)} {unit_of(v.element)}. {v.reason}") for v in plan.violations)),
+            f"{miss_text(v.element, v.by_pct)} {unit_of(v.element)}. {v.reason}") for v in plan.violations)),
             title="Why the grade cannot be met", border_style="red"))
     if plan.binding:
         bind = Table(title="What holds the cost up", title_justify="left")

@@ -98,7 +98,7 @@ def step_renderable(step: ReplayStep, window: dict[str, tuple[float, float]], cu
     head = Text.assemble(
         (f"Sample {sample.sample_id}", "bold"), f" · {sample.clock}",
         "" if sample.temperature_c is None else f" · {sample.temperature_c:.0f} °C",
-        f" · bath {step.bath_kg:,.0f} kg")
+        f" · bath {kg_text(step.bath_kg)} kg")
     side = Table.grid(padding=(0, 3))
     side.add_row(plan_renderable(step, currency), additions_table("Actually added", step.actual, currency))
     parts: list[RenderableType] = [head, side, chemistry_table(step, window)]

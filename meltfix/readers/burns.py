@@ -18,7 +18,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from meltfix.base.errors import InputError
-from meltfix.plan.numbers import content_unit_text
+from meltfix.plan.numbers import content_text, with_unit
 from meltfix.readers.samples import NO_ELEMENTS, Burn, RawSample, Readings, SpectroSample
 from meltfix.shop.analysis import Analysis, Reading
 from meltfix.shop.elements import element_sort_key
@@ -33,6 +33,10 @@ class Disagreement:
     singled_out: bool
     """True when ``burns`` holds the one burn that disagrees (it may be left out of the mean)."""
     message: str
+
+
+def _fmt(symbol: str, pct: float) -> str:
+    return with_unit(symbol, content_text(symbol, pct))
 
 
 def _burn_names(burns: Sequence[Burn], positions: Sequence[int]) -> str:
@@ -68,15 +72,13 @@ def _pair_disagreement(symbol: str, burns: Sequence[Burn], quantified: Sequence[
     limit = curve.limit_pct((a + b) / 2)
     if abs(a - b) <= limit:
         return None
-    fmt = content_unit_text
     return Disagreement(symbol, (i, j), False, f"{symbol}: {_burn_names(burns, (i, j))} differ by "
-                        f"{fmt(symbol, abs(a - b))} (repeatability limit {fmt(symbol, limit)}); spark a third "
+                        f"{_fmt(symbol, abs(a - b))} (repeatability limit {_fmt(symbol, limit)}); spark a third "
                         "burn to tell which is wrong")
 
 
 def _farthest_disagreement(symbol: str, burns: Sequence[Burn], quantified: Sequence[tuple[int, float]],
                            curve: RepeatabilityCurve) -> Disagreement | None:
-    fmt = content_unit_text
     spread = []
     for k, (i, value) in enumerate(quantified):
         reference = statistics.median(v for m, (_, v) in enumerate(quantified) if m != k)
@@ -88,15 +90,15 @@ def _farthest_disagreement(symbol: str, burns: Sequence[Burn], quantified: Seque
         limit = curve.limit_pct(reference)
         if distance <= limit:
             return None
-        return Disagreement(symbol, (i,), True, f"{symbol}: {_burn_names(burns, (i,))} reads {fmt(symbol, value)}, "
-                            f"{fmt(symbol, distance)} from the others' median {fmt(symbol, reference)} "
-                            f"(repeatability limit {fmt(symbol, limit)}); spark a fresh burn")
+        return Disagreement(symbol, (i,), True, f"{symbol}: {_burn_names(burns, (i,))} reads {_fmt(symbol, value)}, "
+                            f"{_fmt(symbol, distance)} from the others' median {_fmt(symbol, reference)} "
+                            f"(repeatability limit {_fmt(symbol, limit)}); spark a fresh burn")
     limit = curve.limit_pct(statistics.median(v for _, v in quantified))
     if farthest <= limit:
         return None
     tied = tuple(sorted(s[1] for s in worst))
     return Disagreement(symbol, tied, False, f"{symbol}: {_burn_names(burns, tied)} are equally far "
-                        f"({fmt(symbol, farthest)}) from the others (repeatability limit {fmt(symbol, limit)}); "
+                        f"({_fmt(symbol, farthest)}) from the others (repeatability limit {_fmt(symbol, limit)}); "
                         "spark again")
 
 
@@ -108,8 +110,8 @@ def _bound_disagreement(symbol: str, burns: Sequence[Burn], quantified: Sequence
         return None
     positions = tuple(i for i, _ in bounded)
     return Disagreement(symbol, positions, False, f"{symbol}: {_burn_names(burns, positions)} "
-                        f"{'reads' if len(positions) == 1 else 'read'} below {content_unit_text(symbol, bound)} "
-                        f"but the other burns average {content_unit_text(symbol, mean)}; spark again")
+                        f"{'reads' if len(positions) == 1 else 'read'} below {_fmt(symbol, bound)} "
+                        f"but the other burns average {_fmt(symbol, mean)}; spark again")
 
 
 def mean_reading(quantified: Sequence[float], bounds: Sequence[float]) -> Reading:

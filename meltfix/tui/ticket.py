@@ -44,7 +44,7 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
         f"ADDITION TICKET — {book.settings.shop_name}",
         f"Heat {plan.heat_id}   sample {sample or '—'}   plan {'#' + str(plan_number) if plan_number else 'not accepted yet'}",
         f"Grade {plan.grade}   stage {heat.stage}   written {written:%Y-%m-%d %H:%M}",
-        f"Bath {units.mass(plan.bath_kg):,.0f} {mass} -> {units.mass(plan.final_kg):,.0f} {mass} after the additions "
+        f"Bath {kg_text(units.mass(plan.bath_kg))} {mass} -> {kg_text(units.mass(plan.final_kg))} {mass} after the additions "
         "dissolve",
         "",
     ]

@@ -6,7 +6,7 @@ import io
 
 from rich.console import Console
 
-from meltfix.plan.numbers import content_text, limit_text, margin_text, recovery_text, unit_of
+from meltfix.plan.numbers import content_text, limit_text, margin_text, miss_text, recovery_text, unit_of, with_unit
 from meltfix.plan.result import LIMIT_TOL_PCT
 from meltfix.plan.result import LIMIT_TOL_PCT as PLANNER_TOL
 from meltfix.plan.result import is_outside
@@ -41,6 +41,12 @@ def test_a_miss_keeps_its_minus_and_float_noise_does_not() -> None:
     assert margin_text("C", -LIMIT_TOL_PCT / 2) == "+0.000" and not is_outside(-LIMIT_TOL_PCT / 2)
     assert margin_text("N", -0.00001) == "-0.1"
     assert margin_text("P", 0.0123) == "+0.0123"
+
+
+def test_a_miss_too_small_for_the_decimals_shown_still_reads_as_a_miss() -> None:
+    assert miss_text("C", 0.00004) == "<0.001" and miss_text("S", 0.00004) == "<0.0001"
+    assert miss_text("N", 0.000001) == "<0.1"  # 0.01 ppm
+    assert miss_text("Mn", 0.0123) == "0.012" and with_unit("N", miss_text("N", 0.0015)) == "15 ppm"
 
 
 def test_recoveries_read_one_way() -> None:

@@ -112,7 +112,7 @@ def test_a_burn_below_the_limit_while_the_others_read_well_above_it_is_flagged()
     # The measured burns average 0.0115; the bound 0.001 is 0.0105 below, far beyond r = 0.002.
     assert sample.analysis.pct["S"] == pytest.approx(0.0115)
     assert sample.analysis.below_limit == {"S"}
-    assert any("S: burn 3 reads below 0.0010" in flag for flag in sample.flags)
+    assert any("S: burn 3 reads below 0.0010 %" in flag for flag in sample.flags)
     assert sample.burns[2].disputed_in == {"S"}
 
 
@@ -142,8 +142,8 @@ def test_three_burns_one_outlier_worked_by_hand() -> None:
     assert all(b.accepted for b in kept.burns)
     assert dict(kept.analysis.pct) == pytest.approx({"C": 0.550 / 3, "Si": 0.689 / 3, "Mn": 0.823})
     # Written as every output writes a Mn content (three decimals): 0.0285 (0.02849... in binary) -> 0.028.
-    assert kept.flags == ("Mn: burn 3 reads 0.842, 0.028 from the others' median 0.814 "
-                          "(repeatability limit 0.016); spark a fresh burn",)
+    assert kept.flags == ("Mn: burn 3 reads 0.842 %, 0.028 % from the others' median 0.814 % "
+                          "(repeatability limit 0.016 %); spark a fresh burn",)
 
     dropped = read_export(DATA / "three_burns_outlier.csv", drop_flagged=True).samples[0]
     assert [b.accepted for b in dropped.burns] == [True, True, False]
@@ -160,7 +160,7 @@ def test_two_burns_that_disagree_are_both_flagged_and_neither_can_be_dropped() -
         assert [b.disputed_in for b in sample.burns] == [frozenset({"C"}), frozenset({"C"})]
         assert all(b.accepted for b in sample.burns)
         assert sample.analysis.pct["C"] == pytest.approx(0.220)
-        assert sample.flags == ("C: burns 1 and 2 differ by 0.020 (repeatability limit 0.008); "
+        assert sample.flags == ("C: burns 1 and 2 differ by 0.020 % (repeatability limit 0.008 %); "
                                 "spark a third burn to tell which is wrong",)
 
 

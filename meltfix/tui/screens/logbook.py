@@ -390,7 +390,7 @@ def _heat_cells(heat: HeatSummary) -> tuple[Text | str, ...]:
     return (heat.heat_id, heat.grade or "–",
             _number("–" if heat.bath_kg is None else f"{heat.bath_kg / 1000:,.1f}"),
             _number(str(heat.corrections)), _number(money_text(heat.planned_cost)), _number(actual),
-            _number("–" if per_t is None else f"{per_t:,.2f}"))
+            _number("–" if per_t is None else money_text(per_t)))
 
 
 def _totals(heats: tuple[HeatSummary, ...], currency: str) -> Text:
@@ -400,7 +400,7 @@ def _totals(heats: tuple[HeatSummary, ...], currency: str) -> Text:
     actual = math.fsum(h.actual_cost for h in heats)
     weighed_t = math.fsum(h.bath_kg for h in heats if h.bath_kg) / 1000.0
     weighed_cost = math.fsum(h.actual_cost for h in heats if h.bath_kg)
-    per_t = f" · {weighed_cost / weighed_t:,.2f} {currency}/t" if weighed_t > 0 else ""
+    per_t = f" · {money_text(weighed_cost / weighed_t)} {currency}/t" if weighed_t > 0 else ""
     repeated = sum(1 for h in heats if h.corrections > 1)
     text = Text.assemble(
         f"{_count(len(heats), 'heat')} · {_count(sum(h.corrections for h in heats), 'correction')} · "

@@ -32,6 +32,7 @@ from textual.widgets.option_list import Option
 
 from meltfix.base.errors import InputError, visible
 from meltfix.base.paths import demo_dir
+from meltfix.plan.numbers import kg_text
 from meltfix.present.replay_render import (additions_table, chemistry_table, cost_line, fitted_path_chart, hints_table,
                                            plan_renderable, score_renderable)
 from meltfix.records.replay import (HeatRecord, ReplayStep, TrainingScore, element_paths, load_record, parse_entry,
@@ -253,7 +254,7 @@ class ReplayScreen(Screen[None]):
         temperature = "" if sample.temperature_c is None else f" · {sample.temperature_c:.0f} °C"
         self._title(f"Heat {record.heat_id} · {grade.name} · sample {sample.sample_id} "
                     f"({self.index + 1} of {len(self.steps)}) · {sample.clock}{temperature} · "
-                    f"bath {step.bath_kg:,.0f} kg{mode}")
+                    f"bath {kg_text(step.bath_kg)} kg{mode}")
         revealed = self.revealed
         self.query_one("#replay-chemistry", Static).update(
             _framed_lightly(chemistry_table(step, dict(grade.window_pct), outcome=revealed)))

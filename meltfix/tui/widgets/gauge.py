@@ -17,6 +17,7 @@ from textual.geometry import Size
 from textual.widget import Widget
 
 from meltfix.plan.numbers import content_text, limit_text, unit_of
+from meltfix.plan.result import LIMIT_TOL_PCT
 from meltfix.shop.grades import Grade
 
 _LABEL = 5  # width of the min and max labels either side of the rail
@@ -87,7 +88,7 @@ def gauge_line(row: GaugeRow, rail_cells: int, labels: bool = True, name_width: 
         rail.append(("═", "$text-success") if low <= middle <= high else ("─", "$foreground-muted"))
     if row.aim_pct is not None:
         rail[max(0, min(rail_cells - 1, _cell(row.aim_pct, start, stop, rail_cells)))] = ("┿", "$text-success")
-    inside = row.after_pct is not None and low - 1e-12 <= row.after_pct <= high + 1e-12
+    inside = row.after_pct is not None and low - LIMIT_TOL_PCT <= row.after_pct <= high + LIMIT_TOL_PCT
     for value, mark, style in ((row.now_pct, "○", "$foreground"),
                                (row.after_pct, "●", "bold $text-success" if inside else "bold $text-error")):
         if value is None:

@@ -14,7 +14,7 @@ from textual.containers import Vertical, VerticalScroll
 from textual.content import Content
 from textual.widgets import Static
 
-from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, packs_text, unit_of
+from meltfix.plan.numbers import content_text, kg_text, limit_text, miss_text, money_text, packs_text, unit_of
 from meltfix.plan.result import Plan, RiskPlan
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
@@ -129,7 +129,7 @@ def _totals(plan: Plan) -> Content:
     return Content.assemble(
         ("Total ", "bold"), (f"{money_text(plan.total_cost)} {cur}", "bold"),
         f" · {money_text(plan.cost_per_t)} {cur}/t\n",
-        (f"bath +{kg_text(plan.added_kg)} kg → {plan.final_kg:,.0f} kg · {-plan.temperature_drop_c:+.1f} °C",
+        (f"bath +{kg_text(plan.added_kg)} kg → {kg_text(plan.final_kg)} kg · {-plan.temperature_drop_c:+.1f} °C",
          "$foreground-muted"),
     )
 
@@ -141,7 +141,7 @@ def _out_of_reach(plan: Plan) -> Content:
         lines.append(Content.assemble(
             (f"{v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit}", "bold"),
             f": {content_text(v.element, v.predicted_pct)} {unit} after, off by "
-            f"{content_text(v.element, v.by_pct)}. ", v.reason))
+            f"{miss_text(v.element, v.by_pct)}. ", v.reason))
     return Content("\n").join(lines)
 
 
