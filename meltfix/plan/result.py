@@ -210,6 +210,11 @@ class Odds:
     def to_json(self) -> dict[str, object]:
         return {"heat": self.heat, "limits": dict(self.limits), "draws": self.draws, "seed": self.seed}
 
+    def resolves(self, target: float) -> bool:
+        """Whether this many draws can show odds of ``target``: with n draws the highest share short
+        of all of them is 1 - 1/n, so a target above it cannot be told from certainty."""
+        return target <= 1.0 - 1.0 / self.draws
+
 
 @dataclass(frozen=True)
 class RiskPlan:
@@ -228,7 +233,7 @@ class RiskPlan:
 
     @property
     def reached(self) -> bool:
-        return self.plan.status == "optimal" and self.odds.heat >= self.target
+        return self.plan.status == "optimal" and self.odds.heat >= self.target and self.odds.resolves(self.target)
 
     @property
     def expected_total_cost(self) -> float:

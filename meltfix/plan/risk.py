@@ -5,129 +5,45 @@ Science 6(1), 1959): a limit that must hold with probability p, on a quantity th
 standard deviation sigma, holds exactly when the predicted quantity clears the limit by
 z sigma, z = the normal quantile of p. So each limit of the grade is moved inwards by z sigma and
 the ordinary planner solves the tightened grade. Sigma depends on the plan (the more of a material,
-the more its recovery scatters the content), so it is evaluated at the plan, linearised, and the
-plan solved again until sigma stops moving (a fixed point). The heat's odds are the product of
-its limits' odds in the closed form (limits taken as independent); the share each limit must reach
-is adjusted until the Monte Carlo simulation of meltfix.plan.uncertainty, the independent judge, says
-the heat reaches the target.
-
-The linearisation (all as fractions): a limit's quantity q = sum_s w_s p_s (w = 1 for one element,
-the index weights for an index such as a carbon equivalent), p_s = (W c_s + sum_j y_sj x_j) / M,
-M = W + sum_j g_j x_j. Then dq/dy_tj = x_j (w_t - q) / M for the dissolved yield y = a r of
-element t from material j (its standard deviation is y times the recovery's relative one),
-dq/dW = sum_s w_s (c_s - p_s) / M and dq/dc_s = w_s W / M; the variances add (independent errors).
+the more its recovery scatters the content), so it is evaluated at the plan, linearised
+(meltfix.plan.closed_form), and the plan solved again until sigma stops moving (a fixed point).
+The inset z is the least on a grid whose plan the Monte Carlo simulation of
+meltfix.plan.uncertainty, the independent judge, finds at or above the target. The closed form
+(the heat's odds as the product of its limits', taken as independent, scaled by what the
+simulation found for the last plan) only says which inset to try next, so that few are solved.
 """
 
 from __future__ import annotations
 
 import math
-import re
-from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
-from statistics import NormalDist
 from types import MappingProxyType
 
 import numpy as np
 
-from meltfix.plan.massbalance import bath_after
+from meltfix.plan.closed_form import closed_form_odds, heat_odds_by_inset, limit_sigma_pct, normal_quantile
+from meltfix.plan.moved_limits import loosened, real_name, tightened
 from meltfix.plan.planner import Planner, recheck
-from meltfix.plan.result import LIMIT_TOL_PCT, LimitCheck, Odds, Plan, PlanOptions, RiskPlan, limit_checks
-from meltfix.plan.treatment import contents_owed_pct
-from meltfix.plan.uncertainty import NO_SCATTER, LimitSet, Trial, analysis_sigma_pct, draw_trial, judge, world_symbols
+from meltfix.plan.result import LIMIT_TOL_PCT, Odds, Plan, PlanOptions, RiskPlan
+from meltfix.plan.uncertainty import Trial, draw_trial, judge
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, stage_material
-from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
-from meltfix.shop.settings import ECONOMIC, Scatter, ShopSettings
+from meltfix.shop.settings import ECONOMIC
 
 ECONOMIC_LEVELS = (0.5, 0.8, 0.9, 0.95, 0.98, 0.99)
 """Targets tried by ``target_odds = "economic"`` (besides the on-paper plan)."""
-# The insets tried, in sigmas: 0.1, 0.2, ... 4.0 (4 sigma is 99.997 % for one limit).
-_Z_STEP = 0.1
-_Z_STEPS = 40
+# The insets tried, in sigmas: 0.05, 0.1, ... 4.0 (4 sigma is 99.997 % for one limit); a step of
+# 0.05 sigma is about 1.5 points of odds near 80 %.
+_Z_STEP = 0.05
+_Z_STEPS = 80
+_Z_GRID = _Z_STEP * np.arange(_Z_STEPS + 1)
 # Sigma has settled when no limit's moved by more than this share between two plans; a plan is
 # solved at most this many times for one inset.
 _SIGMA_SETTLED = 0.05
 _SIGMA_ROUNDS = 2
 # Bindings confirmed by a re-solve each (the largest first): each costs one more solve.
 _MAX_CONFIRMED = 4
-
-
-# The normal distribution from the standard library, element by element (a plan has a few dozen
-# limits at most): SciPy's special functions cost a fifth of a second to import, more than a plan.
-# Phi(x) = erfc(-x / sqrt 2) / 2: erfc keeps its relative accuracy far into the lower tail.
-_CDF = np.frompyfunc(lambda x: 0.5 * math.erfc(-x / math.sqrt(2.0)), 1, 1)
-# inv_cdf is Wichura's algorithm AS 241 (Applied Statistics 37(3), 1988), about 1e-16 relative.
-_QUANTILE = np.frompyfunc(NormalDist().inv_cdf, 1, 1)
-
-
-def normal_cdf(x: np.ndarray | float) -> np.ndarray:
-    """Standard normal distribution function."""
-    return np.asarray(_CDF(np.asarray(x, dtype=float)), dtype=float)
-
-
-def normal_quantile(p: np.ndarray | float) -> np.ndarray:
-    """Standard normal quantile (inverse of :func:`normal_cdf`), p in (0, 1)."""
-    return np.asarray(_QUANTILE(np.asarray(p, dtype=float)), dtype=float)
-
-
-# ---------------------------------------------------------------------------------------------
-# The closed form
-
-
-def limit_sigma_pct(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings,
-                    checks: Sequence[LimitCheck], scatter: Scatter | None = None) -> np.ndarray:
-    """Standard deviation [wt %] of each checked quantity after ``used`` (material, kg), linearised
-    (see the module's docstring), in the order of ``checks``; ``scatter`` defaults to the shop's."""
-    scatter = settings.scatter if scatter is None else scatter
-    symbols = world_symbols(heat, grade, [m for m, _ in used])[:-1]  # iron is the balance
-    limits = LimitSet(grade, symbols, checks)
-    weights = limits.weights  # (symbols, limits): 1 for an element's own limit, the index weights
-    owed = contents_owed_pct(heat, grade, settings)
-    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
-    now = np.array([heat.analysis.get(s) - owed.get(s, 0.0) for s in symbols]) / 100.0
-    after = np.array([predicted.get(s, 0.0) for s in symbols]) / 100.0
-    q = after @ weights  # (limits,) as fractions
-    variance = np.zeros(len(checks))
-    if scatter != NO_SCATTER:
-        for material, kg in used:
-            sd = np.array([material.recovery_scatter.get(s, scatter.recovery) * material.yield_pct(s) / 100.0
-                           for s in symbols]) * kg  # kg of each element, one standard deviation
-            variance += (((weights - q) * sd[:, None]) ** 2).sum(axis=0)
-    variance += (scatter.bath * heat.bath_kg * ((now - after) @ weights)) ** 2
-    measured = np.array([heat.analysis.get(s) for s in symbols])
-    sigma_c = scatter.analysis * analysis_sigma_pct(symbols, measured) / 100.0
-    sigma_c[[s in heat.analysis.below_limit for s in symbols]] = 0.0  # planned at the safe end already
-    variance += ((weights * (sigma_c * heat.bath_kg)[:, None]) ** 2).sum(axis=0)
-    return 100.0 * np.sqrt(variance) / final_kg
-
-
-def closed_form_odds(margins_pct: np.ndarray, sigma_pct: np.ndarray) -> np.ndarray:
-    """Each limit's odds from its margin [wt %] and standard deviation [wt %] (normal)."""
-    exact = np.where(margins_pct >= -LIMIT_TOL_PCT, 1.0, 0.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(sigma_pct > 0, normal_cdf(margins_pct / np.where(sigma_pct > 0, sigma_pct, 1.0)), exact)
-
-
-# ---------------------------------------------------------------------------------------------
-# Planning to a target
-
-
-def tightened(grade: Grade, inset_pct: Mapping[str, float]) -> Grade:
-    """The grade with each limit (by label, "Mn min") moved inwards by its inset [wt %]; a window
-    closes at most to its middle."""
-    window = {}
-    for s, (low, high) in grade.window_pct.items():
-        room = (high - low) / 2.0
-        window[s] = (low + min(inset_pct.get(f"{s} min", 0.0), room), high - min(inset_pct.get(f"{s} max", 0.0), room))
-    indices = []
-    for ix in grade.indices:
-        both = ix.min_value is not None and ix.max_value is not None
-        room = (ix.max_value - ix.min_value) / 2.0 if both else math.inf  # type: ignore[operator]
-        indices.append(replace(
-            ix, min_value=None if ix.min_value is None else ix.min_value + min(inset_pct.get(f"{ix.name} min", 0.0), room),
-            max_value=None if ix.max_value is None else ix.max_value - min(inset_pct.get(f"{ix.name} max", 0.0), room)))
-    return replace(grade, window_pct=MappingProxyType(window), indices=tuple(indices))
 
 
 @dataclass(frozen=True)
@@ -172,14 +88,16 @@ class RiskPlanner:
         grade = checked_grade(heat, self.book.grade(heat.grade))
         used = [(stage_material(heat, self.book, a.material), a.kg) for a in plan.additions]
         sigma = limit_sigma_pct(heat, grade, used, self.book.settings, plan.checks)
-        return _Tried(plan, judge(trial, grade, plan), sigma)
+        return _Tried(plan, judge(trial, grade, plan.checks, plan.additions), sigma)
 
     def _to_target(self, heat: Heat, target: float, options: PlanOptions, trial: Trial,
                    on_paper: bool, to_aims: bool = False) -> RiskPlan:
         grade = checked_grade(heat, self.book.grade(heat.grade))
         unchanged = recheck(heat, grade, [], self.book.settings)[2]
-        if not to_aims and all(c.margin_pct >= -LIMIT_TOL_PCT for c in unchanged):
-            # Inside every window already: nothing to add if the odds hold as it stands.
+        if (not to_aims and all(c.margin_pct >= -LIMIT_TOL_PCT for c in unchanged)
+                and judge(trial, grade, unchanged).heat >= target):
+            # Inside every window already, and likely enough as it stands: nothing to add, unless
+            # the cheapest plan inside finds something the heat owes (a treatment, a deoxidation).
             bare = self._judged(heat, self.planner.plan(heat, replace(options, use_aim=False)), trial)
             if not bare.plan.additions and bare.odds.heat >= target:
                 return self._risk(_noted(bare, f"the heat is inside every window with {bare.odds.heat:.1%} odds "
@@ -248,7 +166,7 @@ class RiskPlanner:
         grade = tried.planned_to or real
         confirmed = []
         for binding in [b for b in plan.binding if not b.name.endswith(" aim")][:_MAX_CONFIRMED]:
-            moved = _loosened(heat, self.book, grade, binding.name)
+            moved = loosened(heat, self.book, grade, binding.name)
             if moved is None:
                 continue
             again_heat, again_book = moved
@@ -256,75 +174,45 @@ class RiskPlanner:
                 else self.planner.plan(again_heat, options)
             saving = plan.total_cost - again.total_cost
             if again.status == "optimal" and abs(saving - binding.saving) <= 0.05 * binding.saving:
-                confirmed.append(replace(binding, name=_real_name(binding.name, real), saving=saving))
+                confirmed.append(replace(binding, name=real_name(binding.name, real), saving=saving))
         return replace(tried, plan=replace(plan, binding=tuple(confirmed)))
 
     def _search(self, heat: Heat, target: float, options: PlanOptions, trial: Trial, paper: _Tried) -> _Tried:
-        """The least inset z (on a grid of _Z_STEP sigmas) whose plan the simulation finds at or
-        above the target; the plan at each z is a fixed point of sigma (see :meth:`_at`).
+        """The least inset (on the grid of _Z_STEP sigmas) whose plan the simulation finds at or
+        above the target, by a bracket that only narrows: each inset tried is the closed form's
+        guess when it falls inside the bracket, else a step from the bound just moved that doubles
+        while the guesses stay outside (whole packs make the odds jump where no closed form sees it).
 
-        The plan at a given z does not depend on the target, and a deeper inset never makes a
-        plan cheaper nor less likely inside, so the least z found by bracketing and bisection gives
-        a higher target a plan at least as costly and at least as safe.
+        The plan at a given inset does not depend on the target, and a deeper inset never makes a
+        plan cheaper nor less likely inside, so the least inset gives a higher target a plan at
+        least as costly and at least as safe, whichever insets were tried on the way.
         """
-        plans: dict[int, _Tried | None] = {0: paper}
-
-        def at(k: int) -> _Tried | None:
-            if k not in plans:
-                plans[k] = self._at(heat, options, trial, paper, k * _Z_STEP)
-            return plans[k]
-
-        def done(k: int) -> bool:  # reached, or the windows cannot tighten this far: deeper is no better
-            tried = at(k)
-            return tried is None or tried.odds.heat >= target
-
-        # First guess: each limit at risk on paper reaching the k-th root of the target.
-        at_risk = int(np.sum(closed_form_odds(_margins(paper.plan), paper.sigma) < 0.999))
-        guess = float(normal_quantile(target ** (1.0 / max(at_risk, 1))))
-        k = min(max(math.ceil(guess / _Z_STEP), 1), _Z_STEPS)
-        low, high = 0, _Z_STEPS + 1  # done(low) is false (the paper plan is short); done(high) true
-        step = 1
-        if done(k):
-            high = k
-            while high - step > low and done(high - step):
-                high, step = high - step, step * 2
-            low = max(high - step, low)
-        else:
-            low = k
-            while low + step <= _Z_STEPS and not done(low + step):
-                low, step = low + step, step * 2
-            high = min(low + step, _Z_STEPS + 1)
+        ladder = _Ladder(self, heat, options, trial, paper)
+        low, high = 0, _Z_STEPS + 1  # the paper plan is short; past the grid counts as reached
+        guess, stride, reached = _least_inset(paper, target), 1, False
         while high - low > 1:
-            middle = (low + high) // 2
-            low, high = (low, middle) if done(middle) else (middle, high)
-        best = plans.get(high) if high <= _Z_STEPS else None
-        if best is not None and best.odds.heat >= target:
+            if guess is not None and low < guess < high:
+                k, stride = guess, 1
+            elif guess is None or (high in ladder.plans and ladder.plans[high] is None):
+                k = (low + high) // 2  # where the windows stop closing, the closed form says nothing
+            else:
+                k = max(high - stride, low + 1) if reached else min(low + stride, high - 1)
+                stride *= 2
+            tried = ladder.at(k)
+            # Reached, or the windows cannot close this far: deeper is no better.
+            reached = tried is None or (tried.odds.heat >= target and tried.odds.resolves(target))
+            low, high = (low, k) if reached else (k, high)
+            guess = None if tried is None else _least_inset(tried, target)
+        best = ladder.plans.get(high)
+        if best is not None and best.odds.heat >= target and best.odds.resolves(target):
             return _noted(best, f"planned to {target:.0%} odds: each limit kept {best.z:.2f} standard "
                                 "deviations of its scatter inside")
-        tried = [t for t in plans.values() if t is not None]
-        best = max(tried, key=lambda t: (t.odds.heat, -t.plan.total_cost))
+        best = max([t for t in ladder.plans.values() if t is not None],
+                   key=lambda t: (t.odds.heat, -t.plan.total_cost))
+        if not best.odds.resolves(target):
+            return _noted(best, f"a {target:.4%} target cannot be told from certainty with {trial.draws:,} draws "
+                                f"(--draws); best odds {best.odds.heat:.1%}")
         return _noted(best, _why_short(best, target))
-
-    def _at(self, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried, z: float) -> _Tried | None:
-        """The plan with every limit moved in by z sigma, sigma evaluated at that plan (iterated
-        from the paper plan's until it settles); None when the tightened grade cannot be met."""
-        grade = checked_grade(heat, self.book.grade(heat.grade))
-        labels = [f"{c.element} {c.limit}" for c in paper.plan.checks]
-        sigma, result = paper.sigma, None
-        for _ in range(_SIGMA_ROUNDS):
-            tight = tightened(grade, dict(zip(labels, z * sigma)))
-            book = replace(self.book, grades=MappingProxyType({**self.book.grades, grade.name: tight}))
-            candidate = Planner(book).plan(heat, options)
-            if candidate.status != "optimal":
-                return None
-            used = [(stage_material(heat, self.book, a.material), a.kg) for a in candidate.additions]
-            candidate = replace(candidate, checks=recheck(heat, grade, used, self.book.settings)[2])
-            result = replace(self._judged(heat, candidate, trial), z=z, planned_to=tight)
-            settled = bool(np.all(np.abs(result.sigma - sigma) <= _SIGMA_SETTLED * np.maximum(sigma, 1e-12)))
-            sigma = result.sigma
-            if settled:
-                break
-        return result
 
     def _economic(self, heat: Heat, options: PlanOptions, trial: Trial, on_paper: bool, to_aims: bool) -> RiskPlan:
         """The level among ECONOMIC_LEVELS whose plan has the least expected total cost."""
@@ -336,65 +224,64 @@ class RiskPlanner:
         return replace(best, plan=replace(best.plan, notes=best.plan.notes + (note,)), economic=True)
 
 
-_LIMIT_NAME = re.compile(r"^(?P<label>\S+ (?:min|max)) (?P<pct>[-0-9.e+]+) %$")
+class _Ladder:
+    """The plans of one heat at the insets tried, judged on one trial.
+
+    Sigma is iterated to its fixed point at the first inset tried (the closed form's guess, near
+    the answer); every other inset is planned once with that sigma, so each costs one solve. The
+    first guess, and with it that sigma, grows with the target, so a higher target still gets
+    insets at least as deep.
+    """
+
+    def __init__(self, risk: RiskPlanner, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried) -> None:
+        self.risk, self.heat, self.options, self.trial, self.paper = risk, heat, options, trial, paper
+        self.grade = checked_grade(heat, risk.book.grade(heat.grade))
+        self.plans: dict[int, _Tried | None] = {0: paper}
+        self.sigma: np.ndarray | None = None
+        """Each limit's sigma at the fixed point [wt %], once found."""
+
+    def at(self, k: int) -> _Tried | None:
+        if k not in self.plans:
+            self.plans[k] = self._solved(k * _Z_STEP)
+        return self.plans[k]
+
+    def _solved(self, z: float) -> _Tried | None:
+        """The plan with every limit moved in by z sigma; None when the tightened grade cannot be met."""
+        book, heat, grade = self.risk.book, self.heat, self.grade
+        labels = [f"{c.element} {c.limit}" for c in self.paper.plan.checks]
+        sigma, rounds, result = self.paper.sigma, _SIGMA_ROUNDS, None
+        if self.sigma is not None:
+            sigma, rounds = self.sigma, 1
+        for _ in range(rounds):
+            tight = tightened(grade, dict(zip(labels, z * sigma)))
+            candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan(
+                heat, self.options)
+            if candidate.status != "optimal":
+                return None
+            used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
+            candidate = replace(candidate, checks=recheck(heat, grade, used, book.settings)[2])
+            result = replace(self.risk._judged(heat, candidate, self.trial), z=z, planned_to=tight)
+            settled = bool(np.all(np.abs(result.sigma - sigma) <= _SIGMA_SETTLED * np.maximum(sigma, 1e-12)))
+            sigma = result.sigma
+            if settled:
+                break
+        if self.sigma is None:
+            self.sigma = sigma
+        return result
 
 
-def _loosened(heat: Heat, book: RecipeBook, grade: Grade, name: str) -> tuple[Heat, RecipeBook] | None:
-    """The heat and book with the limit or resource ``name`` (a Binding's name) loosened by the
-    binding's unit: a limit by 0.01 %, the capacity by 1 t, the drop by 1 °C, a stock by 1 kg."""
-    match = _LIMIT_NAME.match(name)
-    if match:
-        label = match["label"]
-        symbol, side = label.rsplit(" ", 1)
-        return heat, replace(book, grades=MappingProxyType(
-            {**book.grades, heat.grade: _moved(grade, symbol, side, 0.01)}))
-    if name == "vessel capacity" and heat.capacity_kg is not None:
-        return heat.with_changes(capacity_kg=heat.capacity_kg + 1000.0), _with(book, grade, heat)
-    if name == "temperature drop limit":
-        limit = heat.drop_limit_c(book.settings)
-        return (None if limit is None else (heat.with_changes(max_temp_drop_c=limit + 1.0), _with(book, grade, heat)))
-    if name.startswith("stock of "):
-        material = book.material(name.removeprefix("stock of "))
-        stock = heat.material_stock_kg(material)
-        if stock is None:
-            return None
-        return heat.with_changes(stock_kg={**heat.stock_kg, material.name: stock + 1.0}), _with(book, grade, heat)
-    return None
-
-
-def _with(book: RecipeBook, grade: Grade, heat: Heat) -> RecipeBook:
-    """The book with ``grade`` in place of the heat's (the same book when it is the book's own)."""
-    if book.grade(heat.grade) is grade:
-        return book
-    return replace(book, grades=MappingProxyType({**book.grades, heat.grade: grade}))
-
-
-def _moved(grade: Grade, symbol: str, side: str, by_pct: float) -> Grade:
-    """The grade with one limit moved outwards by ``by_pct`` [wt %]."""
-    if symbol in grade.window_pct:
-        low, high = grade.window_pct[symbol]
-        window = {**grade.window_pct, symbol: (low - by_pct, high) if side == "min" else (low, high + by_pct)}
-        return replace(grade, window_pct=MappingProxyType(window))
-    return replace(grade, indices=tuple(
-        replace(ix, min_value=ix.min_value - by_pct if side == "min" and ix.min_value is not None else ix.min_value,
-                max_value=ix.max_value + by_pct if side == "max" and ix.max_value is not None else ix.max_value)
-        if ix.name == symbol else ix for ix in grade.indices))
-
-
-def _real_name(name: str, grade: Grade) -> str:
-    """A tightened limit's binding named by the grade's real limit, with the level planned to."""
-    match = _LIMIT_NAME.match(name)
-    if not match:
-        return name
-    symbol, side = match["label"].rsplit(" ", 1)
-    real = next((c.limit_pct for c in limit_checks(grade, {}) if c.element == symbol and c.limit == side), None)
-    if real is None or abs(real - float(match["pct"])) < 1e-9:
-        return name
-    return f"{match['label']} {real:g} % (planned to {float(match['pct']):.4g} % for the odds)"
-
-
-def _margins(plan: Plan) -> np.ndarray:
-    return np.array([c.margin_pct for c in plan.checks])
+def _least_inset(tried: _Tried, target: float) -> int | None:
+    """The closed form's guess at the least grid step whose plan reaches ``target``, from one plan:
+    its closed-form odds at each step, moved by the gap (as a normal quantile) between the
+    simulation's verdict on this plan and the closed form's; None when no step would reach it."""
+    margins = np.array([c.margin_pct for c in tried.plan.checks])
+    closed = float(np.prod(closed_form_odds(margins, tried.sigma)))
+    by_inset = np.clip(heat_odds_by_inset(margins, tried.sigma, tried.z, _Z_GRID), 1e-9, 1 - 1e-9)
+    gap = 0.0
+    if 0.0 < closed < 1.0 and 0.0 < tried.odds.heat < 1.0:
+        gap = float(normal_quantile(tried.odds.heat) - normal_quantile(closed))
+    reached = np.flatnonzero(normal_quantile(by_inset) + gap >= normal_quantile(target))
+    return int(reached[0]) if reached.size else None
 
 
 def _why_short(best: _Tried, target: float) -> str:

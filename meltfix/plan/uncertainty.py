@@ -21,7 +21,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from meltfix.plan.result import LIMIT_TOL_PCT, LimitCheck, Odds, Plan, limit_checks
+from meltfix.plan.result import LIMIT_TOL_PCT, Addition, LimitCheck, Odds, Plan, limit_checks
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.shop.grades import Grade, LinearIndex
 from meltfix.shop.heat import Heat, checked_grade
@@ -97,16 +97,17 @@ def draw_world(heat: Heat, materials: Sequence[Material], symbols: Sequence[str]
     meltfix.plan.deoxidation; magnesium bound by sulphur and lost to fade, meltfix.plan.treatment), as the planner does. The draws come from ``rng`` in a fixed order
     (recoveries, bath, analysis, below-limit readings) so that a caller may draw more after them.
     """
-    content = np.array([[m.composition_pct.get(s, 0.0) / 100.0 for m in materials] for s in symbols])
-    recovery = np.array([[m.recovery.get(s, 1.0) for m in materials] for s in symbols])
-    error = rng.standard_normal(size=(draws, *recovery.shape))
-    error *= recovery_sd(materials, symbols, scatter)
-    # content * min(recovery * (1 + error), 1), in place: this is the one large array.
-    yield_frac = error
-    yield_frac += 1.0
-    yield_frac *= recovery
-    np.minimum(yield_frac, 1.0, out=yield_frac)
-    yield_frac *= content
+    content = np.array([[m.composition_pct.get(s, 0.0) / 100.0 for m in materials] for s in symbols]).ravel()
+    recovery = np.array([[m.recovery.get(s, 1.0) for m in materials] for s in symbols]).ravel()
+    sd = recovery_sd(materials, symbols, scatter).ravel()
+    # content * min(recovery * (1 + error), 1). Only the pairs a material carries and whose recovery
+    # scatters are drawn (a third of the demo book's): drawing is most of a trial's time.
+    flat = np.empty((draws, content.size))
+    flat[:] = content * np.minimum(recovery, 1.0)
+    drawn = np.flatnonzero((content > 0) & (sd > 0))
+    drawn_recovery = recovery[drawn] * (1.0 + sd[drawn] * rng.standard_normal(size=(draws, drawn.size)))
+    flat[:, drawn] = content[drawn] * np.minimum(drawn_recovery, 1.0)
+    yield_frac = flat.reshape(draws, len(symbols), len(materials))
     bath_kg = heat.bath_kg * (1.0 + scatter.bath * rng.standard_normal(size=draws))
     measured = np.array([heat.analysis.get(s) for s in symbols])
     sigma = scatter.analysis * analysis_sigma_pct(symbols, measured)
@@ -139,7 +140,9 @@ class LimitSet:
             terms = indices[check.element].terms if check.element in indices else {check.element: 1.0}
             columns.append([terms.get(s, 0.0) for s in symbols])
         self.labels = tuple(f"{c.element} {c.limit}" for c in checks)
-        self.weights = np.array(columns, dtype=float).reshape(len(checks), len(symbols)).T
+        # C order: OpenBLAS multiplies a transposed (Fortran-order) operand of this shape some forty
+        # times slower, on several threads.
+        self.weights = np.ascontiguousarray(np.array(columns, dtype=float).reshape(len(checks), len(symbols)).T)
         self.bound = np.array([c.limit_pct for c in checks], dtype=float)
         self.is_min = np.array([c.limit == "min" for c in checks], dtype=bool)
 
@@ -187,13 +190,14 @@ def draw_trial(heat: Heat, book: RecipeBook, draws: int, seed: int, scatter: Sca
     return Trial(world, {name: j for j, name in enumerate(book.material_names)}, draws, seed)
 
 
-def judge(trial: Trial, grade: Grade, plan: Plan) -> Odds:
-    """The odds of ``plan`` on the trial's draws, limit by limit in the plan's order."""
+def judge(trial: Trial, grade: Grade, checks: Sequence[LimitCheck], additions: Sequence[Addition] = ()) -> Odds:
+    """The odds of ``additions`` (none: the heat as it stands) on the trial's draws, limit by limit
+    in the order of ``checks``."""
     kg = np.zeros(len(trial.kg_index))
-    for addition in plan.additions:
+    for addition in additions:
         kg[trial.kg_index[addition.material]] += addition.kg
     pct = trial.world.after(kg)[2]
-    limits = LimitSet(grade, trial.world.symbols, plan.checks)
+    limits = LimitSet(grade, trial.world.symbols, checks)
     held = limits.each(pct)
     return Odds(float(np.all(held, axis=1).mean()),
                 MappingProxyType(dict(zip(limits.labels, (float(p) for p in held.mean(axis=0))))),
@@ -204,4 +208,5 @@ def plan_odds(heat: Heat, book: RecipeBook, plan: Plan, draws: int = 2000, seed:
               scatter: Scatter | None = None) -> Odds:
     """The odds that ``plan``'s additions land ``heat`` inside its grade, from ``draws`` seeded draws
     (``scatter``: the shop's when None)."""
-    return judge(draw_trial(heat, book, draws, seed, scatter), checked_grade(heat, book.grade(heat.grade)), plan)
+    return judge(draw_trial(heat, book, draws, seed, scatter), checked_grade(heat, book.grade(heat.grade)), plan.checks,
+                 plan.additions)

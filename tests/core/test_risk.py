@@ -24,9 +24,10 @@ from scipy.stats import norm
 from meltfix.base.errors import InputError
 from meltfix.cli import main
 from meltfix.commands.exits import EXIT_SHORT
+from meltfix.plan.closed_form import closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import PlanOptions
-from meltfix.plan.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_cdf, normal_quantile
+from meltfix.plan.risk import RiskPlanner
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import analysis_sigma_pct, plan_odds
 from meltfix.shop.analysis import Analysis
@@ -218,12 +219,13 @@ def test_stated_odds_agree_with_an_independent_simulation_on_200_heats() -> None
         except InputError:
             continue
         kg = {a.material: a.kg for a in risk.plan.additions}
-        gaps.append(risk.odds.heat - independent_odds(shaken, book, kg, 4000, 10_000 + k))
+        gaps.append(risk.odds.heat - independent_odds(shaken, book, kg, 20_000, 10_000 + k))
         stated.append(risk.odds.heat)
     assert len(gaps) >= 150
     gap, odds = np.abs(gaps), np.array(stated)
     # Within the issue's 2 points on every heat that claims 90 % or more (the sampling error of
-    # the difference is at most 0.8 point there); a heat that cannot be brought near its target,
+    # the difference is at most 0.7 point there, nearly all of it the 2,000 stated draws': the
+    # reference's 20,000 keep its own error small); a heat that cannot be brought near its target,
     # at even odds, has 1.2 points of sampling error alone, so 3 points (2.5 of those) bound it.
     assert np.all(gap[odds >= 0.9] <= 0.02) and np.all(gap <= 0.03)
     assert abs(float(np.mean(gaps))) <= 0.005  # and no bias either way
