@@ -35,9 +35,10 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 
 from meltfix.base.errors import InputError
+from meltfix.plan.closed_form import closed_form_odds, limit_sigma_pct, normal_quantile
 from meltfix.plan.handmethod import HandPlan, hand_plan
 from meltfix.plan.result import LIMIT_TOL_PCT, PlanOptions
-from meltfix.plan.risk import RiskPlanner, closed_form_odds, limit_sigma_pct, normal_quantile
+from meltfix.plan.risk import RiskPlanner
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from meltfix.shop.analysis import Analysis
