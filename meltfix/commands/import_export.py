@@ -201,7 +201,8 @@ def _write_heat(args: argparse.Namespace, source: str, sample: SpectroSample) ->
                              for s in args.not_measured.split(",") if s.strip())
     try:
         heat = validate_heat(Heat(heat_id=heat_id, grade=grade, bath_kg=args.bath_kg, analysis=sample.analysis,
-                                  capacity_kg=args.capacity_kg, not_measured=not_measured), book, "command line")
+                                  capacity_kg=args.capacity_kg, not_measured=not_measured,
+                                  stage=book.settings.heat_stage), book, "command line")
     except InputError as exc:
         if exc.field != "analysis":
             raise

@@ -29,7 +29,8 @@ import numpy as np
 from highspy._core import _Highs
 
 from meltfix.plan.deoxidation import oxygen_notes
-from meltfix.plan.treatment import contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg
+from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg,
+                                    unbound_sulphur_pct)
 from meltfix.shop.elements import element_sort_key
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, usable_materials
@@ -328,10 +329,11 @@ class ModelShape:
         nodulariser in the book."""
         settings = self.book.settings
         bath = heat.bath_kg
-        s_pct = heat.analysis.get("S")
+        s_pct = unbound_sulphur_pct(heat)  # the S the Mg read has bound already is not charged again
         to_sulphide = bath * magnesium_for_sulphur_pct(s_pct) / 100.0
         to_fade = bath * magnesium_fade_pct(settings) / 100.0
-        note = (f"{to_sulphide:,.1f} kg of Mg goes to MgS (S {s_pct:g} %) and {to_fade:,.1f} kg to fade "
+        unbound = "" if s_pct == heat.analysis.get("S") else " not yet bound by the Mg read"
+        note = (f"{to_sulphide:,.1f} kg of Mg goes to MgS (S {s_pct:.4g} %{unbound}) and {to_fade:,.1f} kg to fade "
                 f"({settings.treatment_to_pour_min:g} min to pour at {settings.mg_fade_pct_per_min:g} % per min) "
                 "before any stays in the bath")
         carriers = [m for m in self.materials if m.composition_pct.get("Mg", 0.0) > 0]

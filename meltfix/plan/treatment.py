@@ -7,8 +7,11 @@ oxygen (meltfix.plan.deoxidation), the planner starts the Mg content lower by bo
 nodulariser pays first, possibly below 0 %), which keeps the window linear and the plan exact; the
 nodulariser's Mg content and recovery then set how much of it that takes.
 
-The heat's analysis is taken as the base iron before treatment: its sulphur is what the magnesium
-meets.
+Magnesium already in the analysis has met the sulphur first: a sample taken after the treatment
+(or base iron carrying magnesium from returns) holds sulphur the Mg read has already bound as MgS,
+up to MG_PER_S kg Mg per kg S. Only the sulphur left unbound takes new magnesium; charging the
+whole reading again would count the bound sulphur twice. The grade's Mg window is on the Mg a
+spark reads, which includes the Mg in MgS inclusions, so the Mg read still counts in full.
 """
 
 from __future__ import annotations
@@ -36,13 +39,21 @@ def magnesium_fade_pct(settings: ShopSettings) -> float:
     return settings.mg_fade_pct_per_min * settings.treatment_to_pour_min
 
 
+def unbound_sulphur_pct(heat: Heat) -> float:
+    """Sulphur [wt %] the magnesium in the analysis has not yet bound as MgS: the reading less
+    what the Mg read holds at MG_PER_S (none, when the sample is of treated iron)."""
+    # A sulphur reading "<L" is taken at L and a magnesium reading "<L" at 0: the safe ends, more
+    # magnesium owed rather than too little.
+    mg_pct = heat.analysis.lowest_pct.get("Mg", 0.0)
+    return max(0.0, heat.analysis.get("S") - mg_pct / MG_PER_S)
+
+
 def magnesium_owed_pct(heat: Heat, grade: Grade, settings: ShopSettings) -> Mapping[str, float]:
-    """``{"Mg": x}``: the magnesium [wt % of the bath now] sulphur and fade take before the residual
-    counts, for a cast-iron grade with an Mg window; else empty (no treatment to plan)."""
+    """``{"Mg": x}``: the magnesium [wt % of the bath now] the unbound sulphur and fade take before
+    the residual counts, for a cast-iron grade with an Mg window; else empty (no treatment to plan)."""
     if grade.family != "cast iron" or "Mg" not in grade.window_pct:
         return {}
-    # A sulphur reading "<L" is taken at L: the safe end, more magnesium rather than too little.
-    return {"Mg": magnesium_for_sulphur_pct(heat.analysis.get("S")) + magnesium_fade_pct(settings)}
+    return {"Mg": magnesium_for_sulphur_pct(unbound_sulphur_pct(heat)) + magnesium_fade_pct(settings)}
 
 
 def contents_owed_pct(heat: Heat, grade: Grade, settings: ShopSettings) -> Mapping[str, float]:

@@ -13,21 +13,27 @@ from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text,
 from meltfix.plan.result import Odds, Plan, RiskPlan, is_outside
 
 
-def odds_text(odds: Odds, risk: RiskPlan | None = None) -> Text:
-    """One line: the heat's in-spec odds and its weakest limits; with ``risk``, the target and the
-    expected total cost."""
+def odds_lines(odds: Odds, risk: RiskPlan | None = None) -> list[str]:
+    """The heat's in-spec odds and its weakest limits; with ``risk``, the target and the expected
+    total cost. Plain text, so the crew ticket prints the very lines ``meltfix solve`` does."""
     weakest = sorted(((p, label) for label, p in odds.limits.items() if p < 1.0))[:3]
     line = f"In-spec odds {100 * odds.heat:.1f} % ({odds.draws:,} draws, seed {odds.seed})"
     if risk is not None:
         line += f" · target {100 * risk.target:g} %"
     if weakest:
         line += " · weakest: " + ", ".join(f"{label} {100 * p:.1f} %" for p, label in weakest)
+    lines = [line]
     if risk is not None and risk.correction_cost:
         cur = risk.plan.currency
-        line += (f"\nExpected total cost {money_text(risk.expected_total_cost)} {cur} (additions + "
-                 f"{100 * (1 - odds.heat):.1f} % × {money_text(risk.correction_cost)} {cur} a correction)")
+        lines.append(f"Expected total cost {money_text(risk.expected_total_cost)} {cur} (additions + "
+                     f"{100 * (1 - odds.heat):.1f} % × {money_text(risk.correction_cost)} {cur} a correction)")
+    return lines
+
+
+def odds_text(odds: Odds, risk: RiskPlan | None = None) -> Text:
+    """:func:`odds_lines` as one Rich text, bold yellow when the odds fall short."""
     short = odds.heat < (0.9 if risk is None else risk.target)
-    return Text(line, style="bold yellow" if short else "bold")
+    return Text("\n".join(odds_lines(odds, risk)), style="bold yellow" if short else "bold")
 
 
 def headline(plan: Plan, risk: RiskPlan | None = None) -> str:

@@ -151,7 +151,7 @@ class _DemoShop:
         reading = self._sample(heat_id, sample_no, true_pct, elements, route.below_limit, when, temperature)
         for correction in range(MAX_CORRECTIONS):
             heat = Heat(heat_id, grade_name, recorded_kg, reading, capacity_kg=route.capacity_kg,
-                        temperature_c=round(temperature))
+                        temperature_c=round(temperature), stage=self.book.settings.heat_stage)
             plan = self.planner.plan(heat)
             when += timedelta(minutes=float(rng.uniform(2, 4)))
             plan_id = self.logbook.record_plan(heat, plan, when)
@@ -162,7 +162,8 @@ class _DemoShop:
             actual = self._actual(plan, behaviour if correction == 0 else "plan")
             when += timedelta(minutes=float(rng.uniform(2, 5)))
             self.logbook.record_additions(heat_id, [(m.name, kg) for m, kg in actual], plan_id, when)
-            true_kg, true_pct = bath_after(true_kg, true_pct, [(self._as_really(m, factors), kg) for m, kg in actual])
+            true_kg, true_pct = bath_after(true_kg, true_pct, [(self._as_really(m.at_stage(heat.stage), factors), kg)
+                                                         for m, kg in actual])
             recorded_kg, _ = bath_after(recorded_kg, reading.pct, actual)
             temperature -= plan.temperature_drop_c + float(rng.uniform(4, 9))  # plus ladle losses while stirring
             when += timedelta(minutes=float(rng.uniform(6, 12)))

@@ -7,7 +7,8 @@ A recorded heat is a TOML file of our own::
     bath_kg = 80000             # liquid bath at the FIRST sample [kg]
     capacity_kg = 86000         # optional: most the vessel holds [kg]
     max_temp_drop_c = 25        # optional: largest drop additions may cause [°C]; default: the shop's
-    stage = "ladle"             # optional: a stage shop.toml lists (default "ladle")
+    stage = "ladle"             # optional: a stage shop.toml lists (default: shop.toml default_stage,
+                                # else the shop's first stage)
     date = 2026-03-09           # optional: the day of the heat (a TOML date or a text)
 
     [[sample]]                  # one per spectrometer result, listed in time order
@@ -62,8 +63,9 @@ from meltfix.shop.analysis import Analysis, analysis_from_table
 from meltfix.shop.elements import parse_number
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, stage_material
-from meltfix.shop.materials import Material, stage_name
+from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import stage_name
 from meltfix.shop.toml_values import identifier, known_keys, number, read_toml, require, table, text
 
 if TYPE_CHECKING:  # a replay from a file never opens the logbook
@@ -167,12 +169,13 @@ def _entries(data: Mapping[str, Any], key: str, source: object) -> list[Mapping[
     return entries
 
 
-def parse_record(data: Mapping[str, Any], source: object, default_id: str) -> HeatRecord:
+def parse_record(data: Mapping[str, Any], source: object, default_id: str,
+                 default_stage: str = HeatRecord.stage) -> HeatRecord:
     """Build a HeatRecord from parsed TOML; every problem raises InputError naming the field."""
     known_keys(data, _RECORD_KEYS, source, "")
     capacity = data.get("capacity_kg")
     drop = data.get("max_temp_drop_c")
-    stage = text(data.get("stage", "ladle"), source, "stage")  # checked against the shop's stages
+    stage = text(data.get("stage", default_stage), source, "stage")  # checked against the shop's stages
     date = data.get("date", "")
     bath_kg = number(require(data, "bath_kg", source, ""), source, "bath_kg", positive=True)
     capacity_kg = None if capacity is None else number(capacity, source, "capacity_kg", positive=True)
@@ -267,7 +270,7 @@ def validate_record(record: HeatRecord, book: RecipeBook) -> HeatRecord:
 def load_record(path: Path | str, book: RecipeBook) -> HeatRecord:
     """Read and validate a recorded heat file against the recipe book."""
     path = Path(path)
-    record = parse_record(read_toml(path), path, default_id=path.stem)
+    record = parse_record(read_toml(path), path, default_id=path.stem, default_stage=book.settings.heat_stage)
     return validate_record(record, book)
 
 

@@ -222,7 +222,9 @@ def _weights(raw: Any, source: object, key: str) -> dict[str, float]:
     return {name: number(value, source, f"{key}.{name}") for name, value in table(raw, source, key).items()}
 
 
-def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat:
+def parse_heat(data: Mapping[str, Any], source: object, default_id: str, default_stage: str = Heat.stage) -> Heat:
+    """A heat from parsed TOML; ``default_stage`` where the file names none (the shop's
+    ``ShopSettings.heat_stage`` when read for a recipe book)."""
     known_keys(data, _HEAT_KEYS, source, "")
     capacity = data.get("capacity_kg")
     temperature = data.get("temperature_c")
@@ -243,7 +245,7 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
         capacity_kg=None if capacity is None else number(capacity, source, "capacity_kg", positive=True),
         temperature_c=None if temperature is None else number(temperature, source, "temperature_c"),
         max_temp_drop_c=None if drop is None else number(drop, source, "max_temp_drop_c"),
-        stage=text(data.get("stage", "ladle"), source, "stage"),
+        stage=text(data.get("stage", default_stage), source, "stage"),
         switched_off=frozenset(switch_off),
         locked_kg=MappingProxyType(_weights(data.get("lock_kg", {}), source, "lock_kg")),
         price_per_kg=MappingProxyType(_weights(data.get("price_per_kg", {}), source, "price_per_kg")),
@@ -256,7 +258,7 @@ def parse_heat(data: Mapping[str, Any], source: object, default_id: str) -> Heat
 def load_heat(path: Path | str, book: RecipeBook) -> Heat:
     """Read and validate a HEAT.toml file against the recipe book."""
     path = Path(path)
-    heat = parse_heat(read_toml(path), path, default_id=path.stem)
+    heat = parse_heat(read_toml(path), path, default_id=path.stem, default_stage=book.settings.heat_stage)
     return validate_heat(heat, book, path)
 
 

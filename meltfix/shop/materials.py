@@ -11,7 +11,7 @@ from typing import Any
 
 from meltfix.base.errors import InputError
 from meltfix.shop.elements import element_sort_key, normalise_symbol
-from meltfix.shop.settings import ADDITION_CLASSES, DEFAULT_STAGES
+from meltfix.shop.settings import ADDITION_CLASSES, DEFAULT_STAGES, stage_name
 from meltfix.shop.toml_values import known_keys, number, optional_text, read_toml, require, table, text
 
 MATERIAL_KINDS = ("alloy", "carbon", "metal", "dilution", "deoxidiser", "other")
@@ -167,15 +167,6 @@ def _recoveries(entry: Mapping[str, Any], composition: Mapping[str, float], sour
             raise InputError(source, f"{where}recovery.{key}", f"{symbol} is not in the composition")
         recovery[symbol] = _recovery(value, source, f"{where}recovery.{key}")
     return recovery
-
-
-def stage_name(value: Any, source: object, field_name: str, stages: Collection[str]) -> str:
-    """A stage name the shop lists ([stage.NAME] in shop.toml), else one line naming the field."""
-    name = text(value, source, field_name)
-    if name not in stages:
-        raise InputError(source, field_name, f"'{name}' is not a stage of this shop (shop.toml lists: "
-                         f"{', '.join(stages)})")
-    return name
 
 
 def _material_stages(entry: Mapping[str, Any], source: object, where: str,

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -102,6 +102,9 @@ class ShopSettings:
     """The instrument's export layout, read by :mod:`meltfix.readers.export_layout`."""
     stages: Mapping[str, Stage] = field(default_factory=lambda: DEFAULT_STAGES)
     """The shop's stages by name, in the order shop.toml lists them."""
+    default_stage: str | None = None
+    """Where a heat is when its file names no stage; None = the shop's first stage (see
+    :attr:`heat_stage`)."""
     target_odds: float | str = 0.95
     """Probability [0..1] that a plan must give of landing inside every window, or ``"economic"``."""
     correction_cost: float = 0.0
@@ -134,16 +137,31 @@ class ShopSettings:
     units: Units = Units()
     """What people read: metric (kg, t, °C) or US (lb, short ton, °F); data and JSON stay SI."""
 
+    @property
+    def heat_stage(self) -> str:
+        """The stage of a heat whose file names none: shop.toml ``default_stage``, else the first
+        stage the shop lists, where its heats are first sampled."""
+        return self.default_stage or next(iter(self.stages))
+
 
 _SHOP_KEYS = {"shop_name", "currency", "aim_penalty", "large_addition_kg_per_t", "max_temp_drop_c",
               "max_unlisted_rise_pct", "plan_time_limit_s", "spectrometer", "stage", "target_odds",
               "correction_cost", "scatter", "plausible_max_pct", "bath_kg_range", "addition_order",
-              "max_portion_kg", "stir_min", "superheat_c", "ticket_dir",
+              "max_portion_kg", "stir_min", "superheat_c", "ticket_dir", "default_stage",
               "ticket_print_command", "aluminium_recovery_basis", "mg_fade_pct_per_min", "treatment_to_pour_min",
               "units"}
 
 
 _STAGE_KEYS = {"max_temp_drop_c", "can_reheat", "reheat_cost_per_c", "reheat_max_c", "reheat_c_per_min"}
+
+
+def stage_name(value: Any, source: object, field_name: str, stages: Collection[str]) -> str:
+    """A stage name the shop lists ([stage.NAME] in shop.toml), else one line naming the field."""
+    name = text(value, source, field_name)
+    if name not in stages:
+        raise InputError(source, field_name, f"'{name}' is not a stage of this shop (shop.toml lists: "
+                         f"{', '.join(stages)})")
+    return name
 
 
 def parse_stages(raw: Any, source: object) -> Mapping[str, Stage]:
@@ -183,6 +201,7 @@ def load_settings(folder: Path) -> ShopSettings:
     data = read_toml(path)
     known_keys(data, _SHOP_KEYS, path, "")
     defaults = ShopSettings()
+    stages = parse_stages(data.get("stage"), path)
     drop = data.get("max_temp_drop_c")
     return ShopSettings(
         shop_name=text(data.get("shop_name", defaults.shop_name), path, "shop_name"),
@@ -196,7 +215,9 @@ def load_settings(folder: Path) -> ShopSettings:
         plan_time_limit_s=number(data.get("plan_time_limit_s", defaults.plan_time_limit_s), path,
                                  "plan_time_limit_s", positive=True),
         spectrometer=MappingProxyType(dict(table(data.get("spectrometer", {}), path, "spectrometer"))),
-        stages=parse_stages(data.get("stage"), path),
+        stages=stages,
+        default_stage=None if data.get("default_stage") is None
+        else stage_name(data["default_stage"], path, "default_stage", stages),
         target_odds=parse_target_odds(data.get("target_odds", defaults.target_odds), path, "target_odds"),
         correction_cost=number(data.get("correction_cost", defaults.correction_cost), path, "correction_cost"),
         scatter=_scatter(table(data.get("scatter", {}), path, "scatter"), path),

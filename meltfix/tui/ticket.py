@@ -17,7 +17,8 @@ from typing import TYPE_CHECKING
 from meltfix.base.outputs import write_atomic
 from meltfix.base.units import Units
 from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, unit_of
-from meltfix.plan.result import Plan
+from meltfix.plan.result import Plan, RiskPlan
+from meltfix.present.render import odds_lines
 from meltfix.shop.elements import element_sort_key
 from meltfix.shop.recipes import RecipeBook
 
@@ -32,11 +33,14 @@ _MOVED_PCT = 0.0005
 
 
 def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime, *, sample: str | None = None,
-                plan_number: int | None = None, odds: float | None = None) -> str:
+                plan_number: int | None = None, risk: RiskPlan | None = None) -> str:
     """The ticket as text lines of at most 72 characters (longer names are left whole): heat, sample,
     plan number, time and stage; the additions in order with their lots; the predicted chemistry of
-    the grade's elements and of every element the plan moves; odds; the temperature; the cautions;
-    and a line for the signature of the person who decides."""
+    the grade's elements and of every element the plan moves; with ``risk`` (the plan's odds), the
+    lines ``meltfix solve`` prints: the heat's odds, the shop's target, the weakest limits with
+    their odds and the expected total cost; the temperature; the cautions; and a line for the
+    signature of the person who decides. The screen always records the plan first, so its tickets
+    carry their plan number (:func:`write_ticket`)."""
     grade = book.grade(plan.grade)
     units = book.settings.units  # masses and temperatures as the crew reads them; the chemistry is wt %
     mass = units.mass_unit
@@ -69,8 +73,9 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
                   f"temperature change {units.temperature_change(-plan.temperature_drop_c):+.1f} "
                   f"{units.temperature_unit}"]
     lines += _temperature_lines(heat, plan, units)
-    if odds is not None:
-        lines.append(f"Odds of landing inside every window: {100 * odds:.0f} %")
+    if risk is not None:
+        for line in odds_lines(risk.odds, risk):
+            lines += textwrap.wrap(line, _WIDTH, subsequent_indent="  ", break_on_hyphens=False)
     lines.append("")
     lines.append("CHEMISTRY (wt %, N O B H in ppm)")
     lines.append(f"  {'':<4}{'now':>9}{'after':>9}{'min':>9}{'aim':>9}{'max':>9}")
@@ -128,7 +133,7 @@ def _bullet(text: str) -> list[str]:
 
 
 def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime, *,
-                 sample: str | None = None, plan_number: int | None = None, odds: float | None = None) -> Path:
+                 sample: str | None = None, plan_number: int | None = None, risk: RiskPlan | None = None) -> Path:
     """Write the ticket as ``<heat>-ticket.txt`` in ``folder``; an earlier ticket is never overwritten."""
     stem = re.sub(r"[^A-Za-z0-9._-]+", "_", plan.heat_id).strip("._") or "heat"
     folder.mkdir(parents=True, exist_ok=True)
@@ -138,7 +143,7 @@ def write_ticket(folder: Path, heat: "Heat", plan: "Plan", book: RecipeBook, wri
         path = folder / f"{stem}-ticket-{number}.txt"
         number += 1
     # Never overwrite: should another writer take the name in between, fail rather than replace it.
-    text = ticket_text(heat, plan, book, written, sample=sample, plan_number=plan_number, odds=odds)
+    text = ticket_text(heat, plan, book, written, sample=sample, plan_number=plan_number, risk=risk)
     return write_atomic(path, text, what="the ticket", overwrite=False)
 
 

@@ -164,7 +164,7 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
     ("typo in shop.toml", edit("shop.toml", "max_temp_drop_c", "max_temp_drop"),
      "shop.toml", "max_temp_drop",
      "unknown key (expected one of: addition_order, aim_penalty, aluminium_recovery_basis, bath_kg_range, "
-     "correction_cost, currency, large_addition_kg_per_t, max_portion_kg, max_temp_drop_c, max_unlisted_rise_pct, "
+     "correction_cost, currency, default_stage, large_addition_kg_per_t, max_portion_kg, max_temp_drop_c, max_unlisted_rise_pct, "
      "mg_fade_pct_per_min, plan_time_limit_s, plausible_max_pct, scatter, shop_name, spectrometer, stage, stir_min, "
      "superheat_c, target_odds, ticket_dir, ticket_print_command, treatment_to_pour_min, units)"),
     ("aluminium recovery basis misspelt", edit("shop.toml", "max_temp_drop_c = 25.0",
@@ -180,6 +180,9 @@ CASES: list[tuple[str, Callable[[Files], None], str, str, str]] = [
     ("stage the shop does not list", edit("shop.toml", "max_temp_drop_c = 25.0",
                                           'max_temp_drop_c = 25.0\n[stage.furnace]\n[stage.lf]\ncan_reheat = true'),
      "materials.toml", "material 'FeMn'.recovery_by_stage.ladle", "'ladle' is not a stage of this shop (shop.toml lists: furnace, lf)"),
+    ("default stage the shop does not list", edit("shop.toml", "max_temp_drop_c = 25.0",
+                                                  'max_temp_drop_c = 25.0\ndefault_stage = "tundish"'),
+     "shop.toml", "default_stage", "'tundish' is not a stage of this shop (shop.toml lists: furnace, ladle)"),
     ("empty stage list", edit("materials.toml", "stock_kg = 500", "stock_kg = 500\nstages = []"),
      "materials.toml", "material 'FeMn'.stages", "expected a non-empty list of stage names, got []"),
     ("stage recovery of an absent element", edit("materials.toml", "recovery_by_stage = { ladle = { C = 0.7 } }",

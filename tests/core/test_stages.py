@@ -75,12 +75,14 @@ def test_missing_carrier_at_this_stage_is_named(book: RecipeBook) -> None:
     assert mg.reason == "No material that carries Mg may go in at the furnace: raising it needs the ladle."
 
 
-def test_carbon_raiser_recovers_less_in_the_ladle(book: RecipeBook) -> None:
+def test_carbon_raiser_recovers_by_stage(book: RecipeBook) -> None:
     raiser = book.material("Carbon raiser (graphitised)")
     heat = load_heat(DEMO / "KB-24101.toml", book)
     assert stage_material(heat, book, raiser.name).recovery["C"] == 0.70
-    assert stage_material(heat.with_changes(stage="furnace"), book, raiser.name).recovery["C"] == 0.90
-    assert raiser.at_stage("furnace") is raiser  # nothing differs there
+    assert stage_material(heat.with_changes(stage="furnace"), book, raiser.name).recovery["C"] == 0.50
+    assert stage_material(heat.with_changes(stage="lf"), book, raiser.name).recovery["C"] == 0.90
+    femo = book.material("FeMo 65")
+    assert femo.at_stage("furnace") is femo  # nothing differs there
     # The plan's prediction uses the ladle's recovery: re-check it by the plain mass balance.
     plan = plan_heat(heat, book)
     used = [(stage_material(heat, book, a.material), a.kg) for a in plan.additions]
@@ -171,3 +173,24 @@ def test_command_line_names_the_heat_file_and_its_stage(tmp_path: Path, capsys: 
     assert main(["solve", str(heat)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and f"{heat}: stage: 'tundish' is not a stage of this shop" in err
+
+
+def test_a_heat_without_a_stage_is_at_the_shops_default_stage(book: RecipeBook, tmp_path: Path) -> None:
+    # A heat file that names no stage: the demo shop's `default_stage` (the ladle) ...
+    assert book.settings.default_stage == "ladle" and book.settings.heat_stage == "ladle"
+    text = (DEMO / "KB-24101.toml").read_text(encoding="utf-8")
+    assert "stage" not in text
+    assert load_heat(DEMO / "KB-24101.toml", book).stage == "ladle"
+    # ... and without that setting the shop's first stage, where its heats are first sampled.
+    first = replace(book, settings=replace(book.settings, default_stage=None))
+    assert first.settings.heat_stage == "furnace" == next(iter(first.settings.stages))
+    assert load_heat(DEMO / "KB-24101.toml", first).stage == "furnace"
+    assert load_heat(DEMO / "KB-24103.toml", first).stage == "lf"  # a stage the file names wins
+    assert ShopSettings().heat_stage == "furnace"  # no [stage.*]: furnace, then ladle
+    # The recorded heats of `meltfix replay` read the same default.
+    from meltfix.records.replay import load_record
+
+    record = tmp_path / "R1.toml"
+    record.write_text((ROOT / "demo" / "records" / "KB-24211.toml").read_text(encoding="utf-8")
+                      .replace('stage = "ladle"\n', ""), encoding="utf-8")
+    assert load_record(record, book).stage == "ladle" and load_record(record, first).stage == "furnace"

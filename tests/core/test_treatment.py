@@ -92,6 +92,36 @@ def test_worked_example_the_nodulariser_pays_sulphur_and_fade_first() -> None:
     assert "1.5 kg of Mg goes to MgS" in note and "0.8 kg to fade" in note and "about 86 kg of Mg 6" in note
 
 
+def test_a_sample_of_treated_iron_does_not_charge_its_bound_sulphur_again() -> None:
+    # Mg + S -> MgS binds k = M(Mg) / M(S) kg Mg per kg S (atomic weights from periodictable:
+    # 24.305 / 32.06 = 0.7581). Magnesium already in the iron has met the sulphur first, so only the
+    # sulphur it has not bound takes new magnesium: owed = k x max(0, S - Mg / k) = max(0, k S - Mg).
+    k = periodictable.Mg.mass / periodictable.S.mass
+    book = shop()
+    grade = book.grade("Ductile")
+    # A sample after the treatment: 0.012 % S and 0.020 % Mg. Mg / k = 0.0264 % S >= 0.012 %: every
+    # bit of the sulphur is bound already; only the fade (8 x 0.001 %) is owed.
+    treated = Heat("T2", "Ductile", W, Analysis({"S": 0.012, "Mg": 0.020}))
+    assert magnesium_owed_pct(treated, grade, FADE) == {"Mg": pytest.approx(0.008, abs=1e-12)}
+    # Worked by hand as above: W (0.020 - 0.008) + 0.027 x >= 0.035 % (W + 0.967 x)
+    #   x = 10000 x (0.00035 - 0.00012) / (0.027 - 0.967 x 0.00035) = 10000 x 0.00023 / 0.02666155 = 86.27 kg;
+    # charging the 0.012 % S again (k x 0.012 = 0.009097 %) would ask 10000 x 0.00032097 / 0.02666155
+    # = 120.39 kg, a third more magnesium than the iron needs.
+    plan = Planner(book).plan(treated, NO_AIM)
+    assert plan.additions[0].kg == pytest.approx(86.27, abs=0.05)
+    assert plan.predicted_pct["Mg"] == pytest.approx(0.035, abs=1e-9)
+    assert "0.0 kg of Mg goes to MgS" in next(n for n in plan.notes if "MgS" in n)
+    # Partly bound (base iron with a little Mg from returns): 0.005 % Mg holds 0.005 / k = 0.006595 % S,
+    # the other 0.005405 % S takes k x 0.005405 = 0.004097 % Mg, which is k x 0.012 - 0.005.
+    partly = Heat("T3", "Ductile", W, Analysis({"S": 0.012, "Mg": 0.005}))
+    owed = magnesium_owed_pct(partly, grade, FADE)["Mg"] - 0.008
+    assert owed == pytest.approx(k * (0.012 - 0.005 / k), rel=1e-4)
+    assert owed == pytest.approx(0.004097, abs=2e-6)
+    # A magnesium reading below the detection limit binds nothing: the whole sulphur is owed (safe side).
+    below = Heat("T4", "Ductile", W, Analysis({"S": 0.012, "Mg": 0.002}, below_limit=frozenset({"Mg"})))
+    assert magnesium_owed_pct(below, grade, FADE)["Mg"] == pytest.approx(k * 0.012 + 0.008, rel=1e-4)
+
+
 def test_the_demo_ductile_heat_covers_sulphur_and_fade() -> None:
     book = load_recipes()
     demo = load_heat(DEMO / "KB-24104.toml", book)

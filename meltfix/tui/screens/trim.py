@@ -401,24 +401,29 @@ class TrimScreen(Screen[None]):
         self.app.push_screen(MaterialsDialog(self.book, self.base, self.query_one(HeatForm).grade), closed)
 
     def action_accept(self) -> None:
-        from meltfix.records.logbook import Logbook
-
         if self.current is None:
             self.notify("The plan is being brought up to date; try again in a moment.", title="Accept")
             return
-        heat, plan = self.current
+        self._record(*self.current)
+
+    def _record(self, heat: Heat, plan: Plan) -> int | None:
+        """Record the plan (and the sample it answers) in the logbook; its plan number, or None
+        when the logbook refused (said on screen)."""
+        from meltfix.records.logbook import Logbook
+
         try:
             with Logbook(self.logbook_path, book=self.book) as records:
                 accepted = record_accepted(records, heat, plan, self._imported_sample())
         except Exception as exc:  # a logbook fault is reported; the plan on screen stays as it is
             self.notify(str(exc), title="Not recorded", severity="error")
-            return
+            return None
         self.accepted = (accepted.plan_id, plan)
         self._sync_bindings()
         sample = f"sample {accepted.sample_id}" + ("" if accepted.sample_is_new else " (already in the logbook)")
         closest = " — closest plan: the grade is NOT met" if plan.status != "optimal" else ""
         self.notify(f"Plan {accepted.plan_id} recorded for heat {heat.heat_id}, {sample}{closest}", title="Accepted",
                     severity="warning" if closest else "information")
+        return accepted.plan_id
 
     def _imported_sample(self) -> SpectroSample | None:
         """The spectrometer sample the analysis on screen is, unless a cell was changed since it was read."""
@@ -453,11 +458,15 @@ class TrimScreen(Screen[None]):
             self.notify("The plan is being brought up to date; try again in a moment.", title="Ticket")
             return
         heat, plan = self.current
+        # A ticket always carries its plan number, so what the crew signs can be traced in the
+        # logbook: a plan not accepted yet is recorded first, as Accept would.
+        number = self.accepted[0] if self.accepted and self.accepted[1] is plan else self._record(heat, plan)
+        if number is None:
+            return
         try:
             path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now(),
                                 sample=None if self.imported is None else self.imported[0].sample_id,
-                                plan_number=self.accepted[0] if self.accepted and self.accepted[1] is plan else None,
-                                odds=None if self.current_risk is None else self.current_risk.odds.heat)
+                                plan_number=number, risk=self.current_risk)
         except OSError as exc:
             self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
             return
