@@ -29,7 +29,11 @@ def test_ticket_carries_what_the_crew_needs() -> None:
     text = ticket_text(heat, plan, book, datetime(2026, 3, 14, 10, 5), sample="L2", plan_number=17, risk=risk)
     assert "Heat KB-24103   sample L2   plan #17" in text
     assert "stage lf   written 2026-03-14 10:05" in text
-    assert "ADD, IN THIS ORDER" in text and " 1 Aluminium shot" in text
+    assert "ADD, IN THIS ORDER" in text
+    # The shop's order of classes: the aluminium wire goes last.
+    numbered = [line for line in text.split("ADD, IN THIS ORDER")[1].split("  total")[0].splitlines()
+                if line[:2].strip().isdigit()]
+    assert numbered[-1].split()[1:3] == ["Aluminium", "wire"]
     assert "m of wire" in text  # the aluminium wire in metres
     # The odds as `meltfix solve` prints them: the heat's, the target, the weakest limits, the
     # expected total cost (additions + (1 - odds) x the correction cost).

@@ -404,11 +404,14 @@ class TrimScreen(Screen[None]):
         if self.current is None:
             self.notify("The plan is being brought up to date; try again in a moment.", title="Accept")
             return
-        self._record(*self.current)
+        recorded = self._record(*self.current)
+        if recorded is not None:
+            closest = self.current[1].status != "optimal"
+            self.notify(recorded[1], title="Accepted", severity="warning" if closest else "information")
 
-    def _record(self, heat: Heat, plan: Plan) -> int | None:
-        """Record the plan (and the sample it answers) in the logbook; its plan number, or None
-        when the logbook refused (said on screen)."""
+    def _record(self, heat: Heat, plan: Plan) -> tuple[int, str] | None:
+        """Record the plan (and the sample it answers) in the logbook: its plan number and what was
+        recorded in words, or None when the logbook refused (said on screen)."""
         from meltfix.records.logbook import Logbook
 
         try:
@@ -421,9 +424,7 @@ class TrimScreen(Screen[None]):
         self._sync_bindings()
         sample = f"sample {accepted.sample_id}" + ("" if accepted.sample_is_new else " (already in the logbook)")
         closest = " — closest plan: the grade is NOT met" if plan.status != "optimal" else ""
-        self.notify(f"Plan {accepted.plan_id} recorded for heat {heat.heat_id}, {sample}{closest}", title="Accepted",
-                    severity="warning" if closest else "information")
-        return accepted.plan_id
+        return accepted.plan_id, f"Plan {accepted.plan_id} recorded for heat {heat.heat_id}, {sample}{closest}"
 
     def _imported_sample(self) -> SpectroSample | None:
         """The spectrometer sample the analysis on screen is, unless a cell was changed since it was read."""
@@ -460,9 +461,13 @@ class TrimScreen(Screen[None]):
         heat, plan = self.current
         # A ticket always carries its plan number, so what the crew signs can be traced in the
         # logbook: a plan not accepted yet is recorded first, as Accept would.
-        number = self.accepted[0] if self.accepted and self.accepted[1] is plan else self._record(heat, plan)
-        if number is None:
-            return
+        if self.accepted is not None and self.accepted[1] is plan:
+            number, recorded = self.accepted[0], ""
+        else:
+            made = self._record(heat, plan)
+            if made is None:
+                return
+            number, recorded = made
         try:
             path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now(),
                                 sample=None if self.imported is None else self.imported[0].sample_id,
@@ -473,10 +478,11 @@ class TrimScreen(Screen[None]):
         except InputError as exc:
             self.notify(str(exc), title="Ticket not written", severity="error")
             return
-        printed = ""
+        # One line: a toast shows a line break as a control character.
+        said = ([recorded] if recorded else []) + [str(path)]
         if self.book.settings.ticket_print_command:
-            printed = "\n" + print_ticket(path, self.book.settings.ticket_print_command)
-        self.notify(str(path) + printed, title="Ticket written")
+            said.append(print_ticket(path, self.book.settings.ticket_print_command))
+        self.notify("; ".join(said), title="Ticket written")
 
     def action_add_element(self) -> None:
         grid = self.query_one(AnalysisGrid)
