@@ -72,6 +72,8 @@ class Outcome:
     reasons: tuple[str, ...]
     """meltfix: the planner's reason per missed limit; hand: the melter's notes."""
     temperature_drop_c: float
+    stated_odds: float | None = None
+    """meltfix: the odds the risk planner states for its plan; hand: None (it states none)."""
 
     @property
     def cost_per_t(self) -> float:
@@ -125,11 +127,12 @@ def _kg_vector(additions: Iterable[tuple[str, float]]) -> np.ndarray:
 
 
 def _meltfix(index: int, heat: Heat) -> Outcome:
-    plan = _PLANNER.plan(heat, options=_OPTIONS, draws=_PLAN_DRAWS, seed=index).plan  # to the shop's target odds
+    risk = _PLANNER.plan(heat, options=_OPTIONS, draws=_PLAN_DRAWS, seed=index)  # to the shop's target odds
+    plan = risk.plan
     return Outcome(index, heat.grade, plan.status == "optimal", plan.total_cost, plan.final_kg,
                    _kg_vector((a.material, a.kg) for a in plan.additions),
                    tuple(f"{v.element} {v.limit}" for v in plan.violations),
-                   tuple(v.reason for v in plan.violations), plan.temperature_drop_c)
+                   tuple(v.reason for v in plan.violations), plan.temperature_drop_c, risk.odds.heat)
 
 
 def hand_margins_pct(heat: Heat, plan: HandPlan, book: RecipeBook) -> dict[str, float]:
@@ -176,7 +179,9 @@ def _plan_chunk(indices: Sequence[int], methods: Sequence[str]) -> tuple[dict[st
 def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> dict[str, Draws]:
     heat = _HEATS[index]
     book, grade = _BOOK, _BOOK.grade(heat.grade)
-    materials = book.materials
+    # As both methods plan them: with the recoveries of the heat's stage (a raiser thrown into a
+    # ladle recovers less than one charged into the furnace).
+    materials = [m.at_stage(heat.stage) for m in book.materials]
     watched = watched_symbols(heat, grade)
     symbols = world_symbols(heat, grade, materials)
     limits = LimitSet(grade, symbols)
@@ -191,7 +196,7 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
     for method, plan in first.items():
         bath_kg, element_kg, pct = world.after(plan.kg)
         in_first = limits.inside(pct)
-        read = np.maximum(pct + analysis_sigma_pct(symbols, pct) * noise, 0.0)
+        read = np.maximum(pct + book.settings.scatter.analysis * analysis_sigma_pct(symbols, pct) * noise, 0.0)
         to_correct = np.flatnonzero(~limits.inside(read))
         final = in_first.copy()
         cost_per_t = 0.0
@@ -210,12 +215,22 @@ def _simulate(index: int, first: dict[str, Outcome], draws: int, seed: int) -> d
 
 
 def _correction_kg(method: str, heat: Heat, first: Outcome, reading_pct: dict[str, float]) -> np.ndarray:
-    """The method's correction from the second sample, on the bath the melter believes is there."""
+    """The method's correction from the second sample, on the bath the melter believes is there.
+
+    The second sample is of the treated, deoxidised heat: the sulphur has taken its magnesium, the
+    fade to pouring is in the simulated truth already, and the probe's oxygen is bound. The planner
+    charges those debts to a first sample (meltfix.plan.treatment), so they are handed back here and
+    the correction is planned on the reading as it is, as the simulation then applies it.
+    """
     stock = {m.name: max(0.0, heat.material_stock_kg(m) - first.kg[j])
              for j, m in enumerate(_BOOK.materials) if heat.material_stock_kg(m) is not None}
     capacity = None if heat.capacity_kg is None else max(heat.capacity_kg, first.final_kg)
     second = heat.with_changes(bath_kg=first.final_kg, analysis=Analysis(reading_pct), capacity_kg=capacity,
-                               stock_kg=stock, locked_kg={})
+                               stock_kg=stock, locked_kg={}, dissolved_o_ppm=None)
+    owed = contents_owed_pct(second, _BOOK.grade(heat.grade), _BOOK.settings)
+    if owed:
+        second = second.with_changes(analysis=Analysis({s: reading_pct.get(s, 0.0) + owed.get(s, 0.0)
+                                                        for s in set(reading_pct) | set(owed)}))
     try:
         return _PLAN_BY[method](first.index, second).kg
     except InputError:
@@ -389,6 +404,11 @@ def tables(results: Results, book: RecipeBook, currency: str) -> list[Table]:
             ("truly inside after one correction", "in_spec_final"))
     for label, name in rows:
         mc.add_row(label, *(_pct(sum(getattr(x[m], name) for x in d), total) for m in METHODS))
+    reach = [i for i in range(n) if mf[i].in_spec or hd[i].in_spec]
+    mc.add_row("… of the heats a plan brings inside on paper",
+               *(_pct(sum(d[i][m].in_spec_first for i in reach), len(reach) * results.n_draws) for m in METHODS))
+    stated = [o.stated_odds for o in mf if o.stated_odds is not None]
+    mc.add_row("meltfix's stated odds (mean over its plans)", f"{100 * np.mean(stated):.1f} %" if stated else "", "")
     mc.add_row(f"mean correction cost [{currency}/t per heat]",
                *(f"{sum(x[m].correction_cost_per_t for x in d) / total:.2f}" for m in METHODS))
     mc.add_row(f"expected total cost [{currency}/t per heat]",

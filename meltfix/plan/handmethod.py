@@ -9,8 +9,15 @@ over its maximum is diluted with clean material at the start of each pass. Stock
 (when the usual alloy runs out the next one on the list is used) and the trim stops when the vessel
 is full. When manganese and silicon are both short, silicomanganese (a material carrying both) goes
 first for manganese. A competent melter keeps the same margin inside each limit that the shop's
-planner keeps (``margins_pct``). Derived indices (carbon equivalents) and the temperature limit
-are not planned for: a melter checks them afterwards, which is what :attr:`HandPlan.checks` does.
+planner keeps (``margins_pct``), and works out a ductile-iron treatment from the sulphur reading
+and the fade before pouring (the magnesium owed, meltfix.plan.treatment) and an aluminium trim
+from an oxygen-probe reading, as the planner does.
+
+Then the melter checks, as on the floor: a carbon equivalent over its maximum has the sheet done
+again with the elements it weighs aimed lower (manganese first, none below its minimum); a trim
+that would cool the bath more than the stage allows, or below the liquidus plus the shop's
+superheat when the temperature is measured, has its most chilling additions cut to fit (the rest
+waits for reheating or the next sample). A ladle furnace's arcs are not used to buy the drop back.
 
 Everything here is common practice, from no published source; the rules are spelled out in
 :class:`HandRules` so that a comparison with the planner can say exactly what it compared against.
@@ -25,11 +32,14 @@ from dataclasses import dataclass
 from meltfix.plan.massbalance import bath_after, single_addition_kg, temperature_drop_c
 from meltfix.plan.planner import recheck
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition, LimitCheck, addition
+from meltfix.plan.treatment import contents_owed_pct
 from meltfix.shop.elements import element_sort_key
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, usable_materials, validate_heat
+from meltfix.shop.liquidus import formula_for
 from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
+from meltfix.shop.settings import ShopSettings
 
 # The sheet order: the big carbon-free alloys first, then those that carry carbon; magnesium (the
 # nodulariser brings much silicon) before silicon, which the alloys before it also bring; carbon
@@ -37,6 +47,8 @@ from meltfix.shop.recipes import RecipeBook
 # (common practice). Other elements go between.
 _FIRST = ("Ni", "Mo", "Cu", "Cr", "Mn", "V", "Nb", "Ti", "B", "Mg")
 _LAST = ("Si", "C", "Al")
+# Times the sheet is done again with lower aims for a carbon equivalent over its maximum.
+_INDEX_ROUNDS = 5
 
 
 @dataclass(frozen=True)
@@ -118,18 +130,22 @@ def usual_materials(grade: Grade, materials: Sequence[Material], symbol: str) ->
 class _Trim:
     """The melter's running sheet: what has been added so far and what the bath will be."""
 
-    def __init__(self, heat: Heat, materials: Sequence[Material]) -> None:
+    def __init__(self, heat: Heat, materials: Sequence[Material], owed_pct: Mapping[str, float]) -> None:
         self.heat = heat
+        # What the bath owes before an addition counts (magnesium to sulphur and fade, aluminium to
+        # dissolved oxygen): a melter works the treatment out from the sulphur reading.
+        self.owed_pct = owed_pct
         self.kg: dict[str, float] = dict(heat.locked_kg)
         self.by_name = {m.name: m for m in materials}
         # For raising, an element reported below its detection limit counts as zero, as in the planner.
         self.low_analysis = heat.analysis.lowest_pct
         self.full = False
         self.notes: list[str] = []
+        self.passes = 0
 
     def predicted(self, analysis_pct: Mapping[str, float]) -> tuple[float, dict[str, float]]:
         used = [(self.by_name[name], kg) for name, kg in self.kg.items()]
-        return bath_after(self.heat.bath_kg, analysis_pct, used)
+        return bath_after(self.heat.bath_kg, analysis_pct, used, self.owed_pct)
 
     def stock_left_kg(self, material: Material) -> float:
         stock = self.heat.material_stock_kg(material)
@@ -174,7 +190,8 @@ def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRul
         needs: list[tuple[float, Material]] = []
         for symbol, (low, high) in grade.window_pct.items():
             now = pct.get(symbol, 0.0)
-            ceiling = high - margins_pct.get(f"{symbol} max", 0.0)
+            # Margins that meet in the middle leave the aim band of the middle (a pack's rounding).
+            ceiling = max(high - margins_pct.get(f"{symbol} max", 0.0), (low + high) / 2.0 + rules.aim_band * (high - low))
             if now <= ceiling:
                 continue
             target = min(high - rules.dilution_margin * (high - low), ceiling)
@@ -201,13 +218,15 @@ def _dilute(trim: _Trim, grade: Grade, clean: Sequence[Material], rules: HandRul
 
 
 def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], rules: HandRules,
-           margins_pct: Mapping[str, float]) -> bool:
-    """Bring ``symbol`` up to its aim (mid-window without one, and at least the margin inside its
-    minimum) with the usual alloy; True if anything went in."""
+           margins_pct: Mapping[str, float], cap_pct: float) -> bool:
+    """Bring ``symbol`` up to its aim (mid-window without one), at least the margin inside its
+    minimum and at most the margin inside its maximum and ``cap_pct`` (an index's share), with the
+    usual alloy; True if anything went in."""
     low, high = grade.window_pct[symbol]
     middle = (low + high) / 2.0
     low = min(low + margins_pct.get(f"{symbol} min", 0.0), middle)
-    target = max(grade.aim_pct.get(symbol, middle), low)
+    ceiling = max(high - margins_pct.get(f"{symbol} max", 0.0), middle)
+    target = max(min(grade.aim_pct.get(symbol, middle), ceiling, cap_pct), low)
     if symbol == "Mn" and "Si" in grade.window_pct:
         si_low = grade.window_pct["Si"][0] + margins_pct.get("Si min", 0.0)
         if trim.predicted(trim.low_analysis)[1].get("Si", 0.0) < si_low:  # both short: silicomanganese first
@@ -248,6 +267,90 @@ def _raise(trim: _Trim, grade: Grade, symbol: str, alloys: Sequence[Material], r
     return changed
 
 
+def _sheet(heat: Heat, grade: Grade, usable: Sequence[Material], owed_pct: Mapping[str, float], rules: HandRules,
+           margins_pct: Mapping[str, float], caps_pct: Mapping[str, float]) -> _Trim:
+    """Passes down the sheet until nothing more is needed (or the trim stops)."""
+    trim = _Trim(heat, usable, owed_pct)
+    clean = sorted((m for m in usable if m.kind == "dilution"), key=lambda m: m.price_per_kg)
+    sheet = [(symbol, usual_materials(grade, usable, symbol)) for symbol in sheet_order(grade)]
+    for trim.passes in range(1, rules.max_passes + 1):
+        changed = _dilute(trim, grade, clean, rules, margins_pct)
+        for symbol, alloys in sheet:
+            if trim.full:
+                break
+            changed |= _raise(trim, grade, symbol, alloys, rules, margins_pct, caps_pct.get(symbol, math.inf))
+        if not changed or trim.full:
+            break
+    else:
+        trim.note(f"the additions had not settled after {rules.max_passes} passes")
+    return trim
+
+
+def _index_caps(trim: _Trim, grade: Grade, margins_pct: Mapping[str, float],
+                caps_pct: Mapping[str, float]) -> dict[str, float] | None:
+    """Lower caps on the raised elements of an index over its maximum (less its margin), or None
+    when every index is inside.
+
+    The melter checks the carbon equivalent once the sheet is done and, where it is over, aims the
+    elements it weighs lower, in the sheet's order (manganese before carbon), each no lower than its
+    minimum and margin: the excess taken off the first, what is left off the next.
+    """
+    pct = trim.predicted(trim.heat.analysis.pct)[1]
+    caps = dict(caps_pct)
+    for index in grade.indices:
+        if index.max_value is None:
+            continue
+        excess = index.value(pct) - (index.max_value - margins_pct.get(f"{index.name} max", 0.0))
+        for symbol in sheet_order(grade):
+            weight = index.terms.get(symbol, 0.0)
+            if excess <= LIMIT_TOL_PCT or weight <= 0:
+                continue
+            floor = grade.window_pct[symbol][0] + margins_pct.get(f"{symbol} min", 0.0)
+            now = pct.get(symbol, 0.0)
+            lowered = max(floor, now - excess / weight)
+            if lowered < min(now, caps.get(symbol, math.inf)) - 1e-9:
+                caps[symbol] = lowered
+                excess -= (now - lowered) * weight
+    return None if caps == dict(caps_pct) else caps
+
+
+def _allowed_drop_c(trim: _Trim, grade: Grade, settings: ShopSettings) -> float | None:
+    """The most the additions may cool the bath [°C]: the stage's drop limit and, with a measured
+    temperature, what keeps the bath above the liquidus of the planned analysis plus the superheat."""
+    allowed = trim.heat.drop_limit_c(settings)
+    if trim.heat.temperature_c is not None:
+        liquidus = formula_for(grade.family).liquidus_c(trim.predicted(trim.heat.analysis.lowest_pct)[1])
+        room = max(trim.heat.temperature_c - liquidus - settings.superheat_c, 0.0)
+        allowed = room if allowed is None else min(allowed, room)
+    return allowed
+
+
+def _cool(trim: _Trim, grade: Grade, settings: ShopSettings, rules: HandRules) -> None:
+    """Split a trim the bath cannot afford: the same share of every chilling addition now (rounded
+    down to packs and the scale's step), the rest after reheating or at the next sample. A
+    treatment (the nodulariser) is one reaction and is never split."""
+    for _ in range(4):  # the liquidus moves with what is cut: a few rounds settle it
+        allowed = _allowed_drop_c(trim, grade, settings)
+        used = [(trim.by_name[name], kg) for name, kg in trim.kg.items() if kg > 0]
+        drop = temperature_drop_c(trim.heat.bath_kg, used) if used else 0.0
+        if allowed is None or drop <= allowed + 1e-6:
+            return
+        cut = [(m, kg) for m, kg in used if m.chill_per_kg_t > 0 and m.name not in trim.heat.locked_kg
+               and m.addition_class != "treatment"]
+        kept_c = drop - temperature_drop_c(trim.heat.bath_kg, cut) if cut else drop
+        if kept_c >= allowed:
+            trim.note("the weighed-out additions alone chill the bath beyond what it may lose")
+            if not cut:
+                return
+        share = max(allowed - kept_c, 0.0) / (drop - kept_c)
+        for material, kg in cut:
+            step = material.pack_kg or rules.loose_step_kg
+            keep = math.floor(kg * share / step + 1e-9) * step if step > 0 else kg * share
+            trim.kg[material.name] = keep if keep >= max(material.min_kg, 1e-9) else 0.0
+        trim.note("split: the whole trim would chill the bath beyond what it may lose (the rest after "
+                  "reheating or at the next sample)")
+
+
 def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules(),
               margins_pct: Mapping[str, float] | None = None) -> HandPlan:
     """Trim ``heat`` the way a melter does by hand (see the module notes), keeping ``margins_pct``
@@ -256,20 +359,18 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules(),
     validate_heat(heat, book)
     grade = checked_grade(heat, book.grade(heat.grade))
     usable = usable_materials(heat, book)
-    trim = _Trim(heat, usable)
-    clean = sorted((m for m in usable if m.kind == "dilution"), key=lambda m: m.price_per_kg)
-    sheet = [(symbol, usual_materials(grade, usable, symbol)) for symbol in sheet_order(grade)]
-    passes = 0
-    for passes in range(1, rules.max_passes + 1):
-        changed = _dilute(trim, grade, clean, rules, margins_pct)
-        for symbol, alloys in sheet:
-            if trim.full:
-                break
-            changed |= _raise(trim, grade, symbol, alloys, rules, margins_pct)
-        if not changed or trim.full:
+    owed = contents_owed_pct(heat, grade, book.settings)
+    caps: dict[str, float] = {}
+    trim = _sheet(heat, grade, usable, owed, rules, margins_pct, caps)
+    for _ in range(_INDEX_ROUNDS):
+        lowered = _index_caps(trim, grade, margins_pct, caps)
+        if lowered is None:
             break
-    else:
-        trim.note(f"the additions had not settled after {rules.max_passes} passes")
+        caps = lowered
+        trim = _sheet(heat, grade, usable, owed, rules, margins_pct, caps)
+    if caps:
+        trim.note("aimed " + ", ".join(sorted(caps)) + " lower to keep the carbon equivalent inside")
+    _cool(trim, grade, book.settings, rules)
 
     used = [(trim.by_name[name], kg) for name, kg in trim.kg.items() if kg > 0]
     final_kg, predicted, checks = recheck(heat, grade, used, book.settings)  # judged exactly as the planner's plans
@@ -284,7 +385,7 @@ def hand_plan(heat: Heat, book: RecipeBook, rules: HandRules = HandRules(),
         final_kg=final_kg,
         predicted_pct=predicted,
         checks=checks,
-        passes=passes,
+        passes=trim.passes,
         temperature_drop_c=temperature_drop_c(heat.bath_kg, used) if used else 0.0,
         notes=tuple(trim.notes),
         currency=book.settings.currency,
