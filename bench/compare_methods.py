@@ -1,6 +1,6 @@
 """What the planner saves against the hand method, and how often a heat lands in spec.
 
-    python bench/compare_methods.py [--heats 1000] [--seed 2026] [--draws 20] [--workers 2]
+    python bench/compare_methods.py [--heats 1000] [--seed 2026] [--draws 20] [--workers 2] [--target economic]
 
 Every heat of a seeded population (bench/population.py) is planned by meltfix and by the hand
 method of the melt shop (meltfix.plan.handmethod), and the plans are compared: heats inside every
@@ -43,7 +43,7 @@ from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat, stage_material
-from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.recipes import ECONOMIC, RecipeBook, load_recipes
 
 METHODS = ("meltfix", "hand")
 # Draws behind each meltfix plan's odds: fewer than `solve`'s 2,000, for speed; the benchmark's own
@@ -104,17 +104,20 @@ class Draws:
 _BOOK: RecipeBook
 _PLANNER: RiskPlanner
 _OPTIONS: PlanOptions
+_TARGET: float | str | None
 _HEATS: list[Heat]
 
 
-def _start_worker(recipes: str | None, n_heats: int, seed: int, options: PlanOptions) -> None:
-    global _BOOK, _PLANNER, _OPTIONS, _HEATS
+def _start_worker(recipes: str | None, n_heats: int, seed: int, options: PlanOptions,
+                  target: float | str | None) -> None:
+    global _BOOK, _PLANNER, _OPTIONS, _TARGET, _HEATS
     # HiGHS can write straight to file descriptor 1, below Python's sys.stdout; a worker prints
     # nothing of its own, so its descriptor 1 goes to the null device and the tables stay clean.
     os.dup2(os.open(os.devnull, os.O_WRONLY), 1)
     _BOOK = load_recipes(recipes)
     _PLANNER = RiskPlanner(_BOOK)
     _OPTIONS = options
+    _TARGET = target
     _HEATS = population(_BOOK, n_heats, seed)
 
 
@@ -127,7 +130,7 @@ def _kg_vector(additions: Iterable[tuple[str, float]]) -> np.ndarray:
 
 
 def _meltfix(index: int, heat: Heat) -> Outcome:
-    risk = _PLANNER.plan(heat, options=_OPTIONS, draws=_PLAN_DRAWS, seed=index)  # to the shop's target odds
+    risk = _PLANNER.plan(heat, _TARGET, options=_OPTIONS, draws=_PLAN_DRAWS, seed=index)
     plan = risk.plan
     return Outcome(index, heat.grade, plan.status == "optimal", plan.total_cost, plan.final_kg,
                    _kg_vector((a.material, a.kg) for a in plan.additions),
@@ -273,9 +276,10 @@ class Results:
     n_draws: int
 
 
-def run(recipes: str | None, n_heats: int, seed: int, n_draws: int, workers: int, options: PlanOptions) -> Results:
+def run(recipes: str | None, n_heats: int, seed: int, n_draws: int, workers: int, options: PlanOptions,
+        target: float | str | None = None) -> Results:
     indices = list(range(n_heats))
-    start_args = (recipes, n_heats, seed, options)
+    start_args = (recipes, n_heats, seed, options, target)
     progress = Progress(TextColumn("{task.description:<34}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
                         console=Console(stderr=True), transient=True)
     with progress:
@@ -434,8 +438,8 @@ def _by_family(results: Results, book: RecipeBook, currency: str) -> Table:
     per heat, expected total cost per tonne (additions, corrections' additions, correction_cost)."""
     table = Table(title=f"By grade family, in the uncertain world (correction_cost "
                         f"{book.settings.correction_cost:,.0f} {currency} a correction)", title_justify="left")
-    for name in ("family", "heats", "inside first: meltfix", "hand", "corrections/heat: meltfix", "hand",
-                 f"total {currency}/t: meltfix", "hand"):
+    for name in ("family", "heats", "stated odds: meltfix", "inside first: meltfix", "hand",
+                 "corrections/heat: meltfix", "hand", f"total {currency}/t: meltfix", "hand"):
         table.add_column(name, justify="left" if name == "family" else "right")
     families: dict[str, list[int]] = defaultdict(list)
     for i, outcome in enumerate(results.outcomes["meltfix"]):
@@ -444,7 +448,8 @@ def _by_family(results: Results, book: RecipeBook, currency: str) -> Table:
         draws = len(members) * results.n_draws
         sums = {m: {f: sum(getattr(results.draws[i][m], f) for i in members)
                     for f in ("in_spec_first", "corrected", "total_cost_per_t")} for m in METHODS}
-        table.add_row(family, f"{len(members)}",
+        stated = [results.outcomes["meltfix"][i].stated_odds for i in members]
+        table.add_row(family, f"{len(members)}", f"{100 * np.mean([p for p in stated if p is not None]):.1f} %",
                       *(f"{100 * sums[m]['in_spec_first'] / draws:.1f} %" for m in METHODS),
                       *(f"{sums[m]['corrected'] / draws:.3f}" for m in METHODS),
                       *(f"{sums[m]['total_cost_per_t'] / draws:.2f}" for m in METHODS))
@@ -460,10 +465,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--recipes", help="recipes folder (default: the demo shop's)")
     parser.add_argument("--aim-penalty", type=float,
                         help="meltfix's aim weight [currency per 0.01 %% off aim per tonne] (default: the shop's)")
+    parser.add_argument("--target", help="meltfix's target odds, a probability or 'economic' (default: the shop's)")
     parser.add_argument("--markdown", type=Path, help="also write the tables (the command first) to this file")
     args = parser.parse_args(argv)
     if args.heats < 1 or args.draws < 1 or args.workers < 1:
         parser.error("--heats, --draws and --workers must be at least 1")
+    target: float | str | None = args.target
+    if target is not None and target != ECONOMIC:
+        try:
+            target = float(target)
+        except ValueError:
+            parser.error(f"--target must be a probability or '{ECONOMIC}', got {target!r}")
     try:
         book = load_recipes(args.recipes)
     except InputError as exc:
@@ -472,14 +484,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     console = Console(record=True, width=130)
     load = os.getloadavg()[0]
     start = time.perf_counter()
-    results = run(args.recipes, args.heats, args.seed, args.draws, args.workers, PlanOptions(aim_penalty=args.aim_penalty))
+    results = run(args.recipes, args.heats, args.seed, args.draws, args.workers, PlanOptions(aim_penalty=args.aim_penalty),
+                  target)
     command = f"python bench/compare_methods.py --heats {args.heats} --seed {args.seed} --draws {args.draws}"
     command += "".join(f" --{name.replace('_', '-')} {value}" for name, value in
-                       (("aim_penalty", args.aim_penalty), ("recipes", args.recipes)) if value is not None)
+                       (("aim_penalty", args.aim_penalty), ("target", args.target), ("recipes", args.recipes))
+                       if value is not None)
     aim = book.settings.aim_penalty if args.aim_penalty is None else args.aim_penalty
     console.print(f"[bold]{command}[/]\n{book.settings.shop_name}: {len(book.grades)} grades, "
                   f"{len(book.materials)} materials; meltfix aim weight {aim:g} {book.settings.currency} per 0.01 % "
-                  f"per t\n{args.heats:,} heats, seed {args.seed}; {os.cpu_count()} cores, load {load:.1f} at the start; "
+                  f"per t, target odds {book.settings.target_odds if target is None else target}\n"
+                  f"{args.heats:,} heats, seed {args.seed}; {os.cpu_count()} cores, load {load:.1f} at the start; "
                   f"{time.perf_counter() - start:.0f} s in all")
     for table in tables(results, book, book.settings.currency):
         console.print()
