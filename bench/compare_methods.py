@@ -43,7 +43,8 @@ from meltfix.plan.treatment import contents_owed_pct
 from meltfix.plan.uncertainty import LimitSet, analysis_sigma_pct, draw_world, watched_symbols, world_symbols
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat, stage_material
-from meltfix.shop.recipes import ECONOMIC, RecipeBook, load_recipes
+from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.settings import ECONOMIC
 
 METHODS = ("meltfix", "hand")
 # Draws behind each meltfix plan's odds: fewer than `solve`'s 2,000, for speed; the benchmark's own
