@@ -7,7 +7,6 @@ Each command lives in ``meltfix.commands.<name>`` with ``add_arguments(parser)``
 from __future__ import annotations
 
 import argparse
-import difflib
 import importlib
 import os
 import sys
@@ -101,6 +100,8 @@ def _unknown_command(word: str) -> str | None:
     """What to say when ``word`` looks like a mistyped command rather than a heat file to open."""
     if word.startswith("-") or word.endswith(".toml") or Path(word).exists():
         return None
+    import difflib  # only for a mistyped command: every run pays for what the top imports
+
     near = difflib.get_close_matches(word, COMMANDS, n=1, cutoff=0.6)
     if near:
         return f"command line: '{word}' is not a command; did you mean '{near[0]}'? (meltfix --help lists them)"

@@ -12,9 +12,9 @@ this; the Monte Carlo simulation of meltfix.plan.uncertainty judges every plan.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
-from statistics import NormalDist
 
 import numpy as np
 
@@ -31,8 +31,16 @@ from meltfix.shop.settings import Scatter, ShopSettings
 # limits at most): SciPy's special functions cost a fifth of a second to import, more than a plan.
 # Phi(x) = erfc(-x / sqrt 2) / 2: erfc keeps its relative accuracy far into the lower tail.
 _CDF = np.frompyfunc(lambda x: 0.5 * math.erfc(-x / math.sqrt(2.0)), 1, 1)
-# inv_cdf is Wichura's algorithm AS 241 (Applied Statistics 37(3), 1988), about 1e-16 relative.
-_QUANTILE = np.frompyfunc(NormalDist().inv_cdf, 1, 1)
+
+
+@functools.cache
+def _quantile() -> np.ufunc:
+    # statistics (and the fractions and decimal it loads) only once a quantile is asked for: a heat
+    # that reaches its target on paper never does. inv_cdf is Wichura's algorithm AS 241 (Applied
+    # Statistics 37(3), 1988), about 1e-16 relative.
+    from statistics import NormalDist
+
+    return np.frompyfunc(NormalDist().inv_cdf, 1, 1)
 
 
 def normal_cdf(x: np.ndarray | float) -> np.ndarray:
@@ -42,7 +50,7 @@ def normal_cdf(x: np.ndarray | float) -> np.ndarray:
 
 def normal_quantile(p: np.ndarray | float) -> np.ndarray:
     """Standard normal quantile (inverse of :func:`normal_cdf`), p in (0, 1)."""
-    return np.asarray(_QUANTILE(np.asarray(p, dtype=float)), dtype=float)
+    return np.asarray(_quantile()(np.asarray(p, dtype=float)), dtype=float)
 
 
 def limit_sigma_pct(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings,

@@ -25,7 +25,7 @@ from meltfix.plan.closed_form import closed_form_odds, heat_odds_by_inset, limit
 from meltfix.plan.moved_limits import loosened, real_name, tightened
 from meltfix.plan.planner import Planner, recheck
 from meltfix.plan.result import LIMIT_TOL_PCT, Odds, Plan, PlanOptions, RiskPlan
-from meltfix.plan.uncertainty import Trial, draw_trial, judge
+from meltfix.plan.uncertainty import Trial, judge
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, stage_material
 from meltfix.shop.recipes import RecipeBook
@@ -73,7 +73,7 @@ class RiskPlanner:
         window at the target odds gets an empty plan unless ``to_aims`` asks to pull it to the aims."""
         settings = self.book.settings
         target = settings.target_odds if target is None else target
-        trial = draw_trial(heat, self.book, draws, seed)
+        trial = Trial(heat, self.book, draws, seed)
         if target == ECONOMIC:
             return self._economic(heat, options, trial, on_paper, to_aims)
         assert isinstance(target, float)

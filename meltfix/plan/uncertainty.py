@@ -88,26 +88,29 @@ def recovery_sd(materials: Sequence[Material], symbols: Sequence[str], scatter: 
                      for s in symbols]).reshape(len(symbols), len(materials))
 
 
-def draw_world(heat: Heat, materials: Sequence[Material], symbols: Sequence[str], draws: int,
-               rng: np.random.Generator, scatter: Scatter = Scatter(),
-               owed_pct: Mapping[str, float] | None = None) -> World:
-    """Draw ``draws`` true heats around what was measured (``symbols`` from :func:`world_symbols`).
-
-    ``owed_pct`` [wt %] is taken off the true start (aluminium bound by dissolved oxygen,
-    meltfix.plan.deoxidation; magnesium bound by sulphur and lost to fade, meltfix.plan.treatment), as the planner does. The draws come from ``rng`` in a fixed order
-    (recoveries, bath, analysis, below-limit readings) so that a caller may draw more after them.
-    """
-    content = np.array([[m.composition_pct.get(s, 0.0) / 100.0 for m in materials] for s in symbols]).ravel()
-    recovery = np.array([[m.recovery.get(s, 1.0) for m in materials] for s in symbols]).ravel()
-    sd = recovery_sd(materials, symbols, scatter).ravel()
-    # content * min(recovery * (1 + error), 1). Only the pairs a material carries and whose recovery
-    # scatters are drawn (a third of the demo book's): drawing is most of a trial's time.
-    flat = np.empty((draws, content.size))
-    flat[:] = content * np.minimum(recovery, 1.0)
+def draw_yield(material: Material, symbols: Sequence[str], draws: int, rng: np.random.Generator,
+               scatter: Scatter) -> np.ndarray:
+    """Mass of each element that dissolves per kg of ``material`` in each draw [kg/kg], shape
+    (draws, symbols): content x min(recovery x (1 + error), 1). Only the elements the material
+    carries and whose recovery scatters are drawn."""
+    content = np.array([material.composition_pct.get(s, 0.0) / 100.0 for s in symbols])
+    recovery = np.array([material.recovery.get(s, 1.0) for s in symbols])
+    sd = recovery_sd([material], symbols, scatter)[:, 0]
+    dissolved = np.empty((draws, len(symbols)))
+    dissolved[:] = content * np.minimum(recovery, 1.0)
     drawn = np.flatnonzero((content > 0) & (sd > 0))
     drawn_recovery = recovery[drawn] * (1.0 + sd[drawn] * rng.standard_normal(size=(draws, drawn.size)))
-    flat[:, drawn] = content[drawn] * np.minimum(drawn_recovery, 1.0)
-    yield_frac = flat.reshape(draws, len(symbols), len(materials))
+    dissolved[:, drawn] = content[drawn] * np.minimum(drawn_recovery, 1.0)
+    return dissolved
+
+
+def draw_start(heat: Heat, symbols: Sequence[str], draws: int, rng: np.random.Generator, scatter: Scatter,
+               owed_pct: Mapping[str, float] | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """The true bath [kg] (draws,) and element masses [kg] (draws, symbols) before any addition:
+    the bath weight, then the analysis, then the below-limit readings, drawn from ``rng`` in that
+    order. ``owed_pct`` [wt %] is taken off the true start (aluminium bound by dissolved oxygen,
+    meltfix.plan.deoxidation; magnesium bound by sulphur and lost to fade, meltfix.plan.treatment),
+    as the planner does; iron is 0 (the balance)."""
     bath_kg = heat.bath_kg * (1.0 + scatter.bath * rng.standard_normal(size=draws))
     measured = np.array([heat.analysis.get(s) for s in symbols])
     sigma = scatter.analysis * analysis_sigma_pct(symbols, measured)
@@ -118,7 +121,18 @@ def draw_world(heat: Heat, materials: Sequence[Material], symbols: Sequence[str]
     true_pct[:, -1] = 0.0
     for s, pct in (owed_pct or {}).items():
         true_pct[:, symbols.index(s)] -= pct
-    return World(tuple(symbols), bath_kg, bath_kg[:, None] * true_pct / 100.0, yield_frac)
+    return bath_kg, bath_kg[:, None] * true_pct / 100.0
+
+
+def draw_world(heat: Heat, materials: Sequence[Material], symbols: Sequence[str], draws: int,
+               rng: np.random.Generator, scatter: Scatter = Scatter(),
+               owed_pct: Mapping[str, float] | None = None) -> World:
+    """Draw ``draws`` true heats around what was measured (``symbols`` from :func:`world_symbols`),
+    every material's recoveries included. The draws come from ``rng`` in a fixed order (recoveries
+    material by material, then :func:`draw_start`) so that a caller may draw more after them."""
+    yield_frac = np.stack([draw_yield(m, symbols, draws, rng, scatter) for m in materials], axis=-1)
+    bath_kg, element_kg = draw_start(heat, symbols, draws, rng, scatter, owed_pct)
+    return World(tuple(symbols), bath_kg, element_kg, yield_frac)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -164,40 +178,50 @@ class LimitSet:
 # Odds of a plan
 
 
-@dataclass(frozen=True)
 class Trial:
-    """One heat's draws, kept to judge several plans for it on the same draws."""
+    """One heat's draws, kept to judge several plans for it on the same draws (with :func:`judge`).
 
-    world: World
-    kg_index: Mapping[str, int]
-    draws: int
-    seed: int
+    The true start is drawn at once; a material's recoveries when a plan first uses it, from a
+    stream of their own (the seed and the material's place in the book), so the draws do not
+    depend on which materials a plan uses nor on the order plans use them, and a heat planned
+    with three materials draws three, not the whole book. The recoveries are those of the heat's
+    stage (a raiser thrown into a ladle recovers less). Not frozen: it keeps the recoveries drawn.
+    """
 
+    def __init__(self, heat: Heat, book: RecipeBook, draws: int, seed: int, scatter: Scatter | None = None) -> None:
+        if draws < 1:
+            raise ValueError("draws must be at least 1")
+        grade = checked_grade(heat, book.grade(heat.grade))
+        self.draws, self.seed = draws, seed
+        self.scatter = book.settings.scatter if scatter is None else scatter
+        self.materials = {m.name: m.at_stage(heat.stage) for m in book.materials}
+        self.symbols = tuple(world_symbols(heat, grade, list(self.materials.values())))
+        self.bath_kg, self.element_kg = draw_start(heat, self.symbols, draws, np.random.default_rng(seed), self.scatter,
+                                                   contents_owed_pct(heat, grade, book.settings))
+        self._place = {name: j for j, name in enumerate(self.materials)}
+        self._yields: dict[str, np.ndarray] = {}
 
-def draw_trial(heat: Heat, book: RecipeBook, draws: int, seed: int, scatter: Scatter | None = None) -> Trial:
-    """Draw ``draws`` true heats for ``heat`` once (``scatter``: the shop's when None), to judge
-    any number of plans for it on the same draws with :func:`judge`."""
-    if draws < 1:
-        raise ValueError("draws must be at least 1")
-    grade = checked_grade(heat, book.grade(heat.grade))
-    # Every material of the book, used or not: the draws then do not depend on the plan, so plans
-    # for one heat are compared on the same draws.
-    # The recoveries are those of the heat's stage (a raiser thrown into a ladle recovers less).
-    materials = [m.at_stage(heat.stage) for m in book.materials]
-    symbols = world_symbols(heat, grade, materials)
-    world = draw_world(heat, materials, symbols, draws, np.random.default_rng(seed),
-                       book.settings.scatter if scatter is None else scatter, contents_owed_pct(heat, grade, book.settings))
-    return Trial(world, {name: j for j, name in enumerate(book.material_names)}, draws, seed)
+    def dissolved(self, name: str) -> np.ndarray:
+        """Mass of each element that dissolves per kg of material ``name`` [kg/kg], (draws, symbols)."""
+        if name not in self._yields:
+            rng = np.random.default_rng([self.seed, 1 + self._place[name]])
+            self._yields[name] = draw_yield(self.materials[name], self.symbols, self.draws, rng, self.scatter)
+        return self._yields[name]
+
+    def after_pct(self, additions: Sequence[Addition]) -> np.ndarray:
+        """Contents after ``additions`` [wt %], shape (draws, symbols)."""
+        element_kg = self.element_kg.copy()
+        for addition in additions:
+            element_kg += addition.kg * self.dissolved(addition.material)
+        bath_kg = self.bath_kg + (element_kg - self.element_kg).sum(axis=1)
+        return 100.0 * element_kg / bath_kg[:, None]
 
 
 def judge(trial: Trial, grade: Grade, checks: Sequence[LimitCheck], additions: Sequence[Addition] = ()) -> Odds:
     """The odds of ``additions`` (none: the heat as it stands) on the trial's draws, limit by limit
     in the order of ``checks``."""
-    kg = np.zeros(len(trial.kg_index))
-    for addition in additions:
-        kg[trial.kg_index[addition.material]] += addition.kg
-    pct = trial.world.after(kg)[2]
-    limits = LimitSet(grade, trial.world.symbols, checks)
+    pct = trial.after_pct(additions)
+    limits = LimitSet(grade, trial.symbols, checks)
     held = limits.each(pct)
     return Odds(float(np.all(held, axis=1).mean()),
                 MappingProxyType(dict(zip(limits.labels, (float(p) for p in held.mean(axis=0))))),
@@ -208,5 +232,5 @@ def plan_odds(heat: Heat, book: RecipeBook, plan: Plan, draws: int = 2000, seed:
               scatter: Scatter | None = None) -> Odds:
     """The odds that ``plan``'s additions land ``heat`` inside its grade, from ``draws`` seeded draws
     (``scatter``: the shop's when None)."""
-    return judge(draw_trial(heat, book, draws, seed, scatter), checked_grade(heat, book.grade(heat.grade)), plan.checks,
+    return judge(Trial(heat, book, draws, seed, scatter), checked_grade(heat, book.grade(heat.grade)), plan.checks,
                  plan.additions)
