@@ -71,3 +71,17 @@ def test_help_imports_only_the_parser() -> None:
         "assert not [m for m in ('numpy', 'rich', 'tomllib') if m in sys.modules]\n"
     )
     subprocess.run([sys.executable, "-c", code], check=True, capture_output=True)
+
+
+def test_the_screen_opens_without_its_dialogs_nor_the_solver() -> None:
+    """Dialogs load when first opened, the solver in the first plan's worker (after the first frame)."""
+    code = (
+        "import sys\n"
+        "import meltfix.tui.app\n"
+        "later = ('meltfix.tui.screens.added', 'meltfix.tui.screens.choice', 'meltfix.tui.screens.help',\n"
+        "         'meltfix.tui.screens.materials', 'meltfix.tui.screens.open_file', 'meltfix.tui.screens.prompt',\n"
+        "         'meltfix.plan.risk', 'meltfix.plan.planner', 'highspy')\n"
+        "loaded = [m for m in later if m in sys.modules]\n"
+        "assert not loaded, loaded\n"
+    )
+    subprocess.run([sys.executable, "-c", code], check=True)

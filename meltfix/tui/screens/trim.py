@@ -2,7 +2,8 @@
 
 Every change of an input bumps ``revision`` and asks a thread worker for a new plan; a plan
 that comes back for an older revision is dropped, so the panel only ever calls current a plan
-made from exactly the inputs on screen.
+made from exactly the inputs on screen. The dialogs are imported when first opened and the solver
+in the first plan's worker, after the first frame: neither delays the screen's start-up.
 """
 
 from __future__ import annotations
@@ -34,12 +35,6 @@ from meltfix.tui.accept import record_accepted
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat
 from meltfix.tui.messages import PlanFailed, PlanReady
 from meltfix.tui.palette import ScreenActions
-from meltfix.tui.screens.added import AddedDialog
-from meltfix.tui.screens.choice import ChoiceDialog
-from meltfix.tui.screens.help import KeysScreen
-from meltfix.tui.screens.materials import MaterialsDialog
-from meltfix.tui.screens.open_file import OpenFileDialog
-from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
 from meltfix.tui.ticket import print_ticket, write_ticket
 from meltfix.tui.widgets.analysis_grid import AnalysisGrid, CellSpec, window_hint
 from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
@@ -288,6 +283,11 @@ class TrimScreen(Screen[None]):
             fields[0].focus()
 
     def action_keys(self) -> None:
+        from meltfix.tui.screens.choice import ChoiceDialog
+        from meltfix.tui.screens.help import KeysScreen
+        from meltfix.tui.screens.materials import MaterialsDialog
+        from meltfix.tui.screens.prompt import PromptDialog
+
         self.app.push_screen(KeysScreen(
             [("Trim screen", self.BINDINGS), ("Every screen", self.app.BINDINGS),
              ("Materials (F5)", MaterialsDialog.BINDINGS),
@@ -295,6 +295,8 @@ class TrimScreen(Screen[None]):
             extra=MOVING_KEYS))
 
     def action_pick_grade(self, typed: str = "") -> None:
+        from meltfix.tui.screens.choice import ChoiceDialog
+
         items = [(name, f"{name}  ·  {grade.family}  ·  {grade.standard}".rstrip(" ·"))
                  for name, grade in self.book.grades.items()]
 
@@ -311,6 +313,8 @@ class TrimScreen(Screen[None]):
                              chosen)
 
     def action_open_heat(self) -> None:
+        from meltfix.tui.screens.open_file import OpenFileDialog
+
         folder = self.heat_path.parent if self.heat_path else _demo_folder("heats")
 
         def read(path: Path) -> tuple[Path, Heat]:
@@ -326,6 +330,8 @@ class TrimScreen(Screen[None]):
 
     def action_read_export(self) -> None:
         from meltfix.readers.spectro import read_export
+        from meltfix.tui.screens.choice import ChoiceDialog
+        from meltfix.tui.screens.open_file import OpenFileDialog
 
         folder = _demo_folder("spectro")
 
@@ -356,6 +362,8 @@ class TrimScreen(Screen[None]):
 
     def _offer_sample(self, sample: SpectroSample) -> None:
         """Load the sample, after a confirmation naming both heats when the export says it is another heat's."""
+        from meltfix.tui.screens.choice import ChoiceDialog
+
         this = self.base.heat_id
         if not sample.heat or sample.heat == this:
             self.call_later(self._use_sample, sample)
@@ -393,6 +401,8 @@ class TrimScreen(Screen[None]):
         self.inputs_changed()
 
     def action_materials(self) -> None:
+        from meltfix.tui.screens.materials import MaterialsDialog
+
         def closed(heat: Heat | None) -> None:
             if heat is not None and heat != self.base:
                 self.base = heat
@@ -434,6 +444,8 @@ class TrimScreen(Screen[None]):
         return sample if _filled(self._inputs.cells) == _filled(texts) else None
 
     def action_record_added(self) -> None:
+        from meltfix.tui.screens.added import AddedDialog
+
         if self.accepted is None:
             return
         plan_id, plan = self.accepted
@@ -485,6 +497,8 @@ class TrimScreen(Screen[None]):
         self.notify("; ".join(said), title="Ticket written")
 
     def action_add_element(self) -> None:
+        from meltfix.tui.screens.prompt import BACKED_OUT, PromptDialog
+
         grid = self.query_one(AnalysisGrid)
 
         def parse(text: str) -> str:
