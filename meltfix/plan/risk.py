@@ -28,6 +28,7 @@ from meltfix.plan.result import LIMIT_TOL_PCT, Odds, Plan, PlanOptions, RiskPlan
 from meltfix.plan.uncertainty import Trial, judge
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, stage_material
+from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
 from meltfix.shop.settings import ECONOMIC
 
@@ -119,7 +120,8 @@ class RiskPlanner:
 
         The least-violation plan will use any alloy as a few kilograms of diluent (ferrosilicon or
         aluminium to take carbon down by a thousandth); a melter adds only what acts on the missed
-        limits: dilution materials against a maximum, carriers of the element against a minimum.
+        limits: dilution materials against a maximum, carriers of the element against a minimum
+        (a material whose content of it is a trace carries none).
         Materials that keep another limit inside (a minimum the plan meets with nothing to spare) or
         lift an element towards its aim stay.
         """
@@ -131,13 +133,20 @@ class RiskPlanner:
         needed |= {s for s, aim in grade.aim_pct.items() if options.use_aim and heat.analysis.get(s) < aim}
         indices = {ix.name: ix for ix in grade.indices}
 
+        def carries(material: Material, symbol: str) -> bool:
+            # A carrier holds the element as one of its principal contents, at least a twentieth of
+            # its largest (iron aside): the 0.01 % carbon in nickel or the 0.5 % Mn in
+            # ferroniobium only thin a bath that holds more, so they carry nothing (common practice).
+            largest = max((pct for s, pct in material.composition_pct.items() if s != "Fe"), default=0.0)
+            return material.yield_pct(symbol) > 0 and material.composition_pct.get(symbol, 0.0) >= largest / 20.0
+
         def acts(name: str) -> bool:
             material = stage_material(heat, self.book, name)
             if material.kind == "dilution":
                 return any(v.limit == "max" for v in missed)
             for element in needed:
                 terms = indices[element].terms if element in indices else {element: 1.0}
-                if any(w > 0 and material.yield_pct(s) > 0 for s, w in terms.items()):
+                if any(w > 0 and carries(material, s) for s, w in terms.items()):
                     return True
             return False
 

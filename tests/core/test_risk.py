@@ -322,6 +322,24 @@ def test_the_closest_plan_adds_nothing_that_cannot_help() -> None:
     assert any(note.startswith("left out ") for note in risk.plan.notes)
 
 
+def test_a_trace_of_an_element_does_not_make_a_carrier_of_it() -> None:
+    # Treated ductile iron (the demo base iron after a treatment that left Mg 0.040 %) with Si 2.85 %
+    # over its 2.75 % maximum, in the ladle, where no dilution material may go. Nickel (C 0.01 %),
+    # FeMo 65 (C 0.05 %) and FeV 80 (C 0.20 %) hold far less carbon than the iron's 3.55 %: by the mass
+    # balance they lower carbon, never lift it towards its aim, and they do not lower silicon by more
+    # than their own weight thins it (common practice: a melter never adds an alloy to lower another
+    # element). Before, the closest plan added about 106 kg of nickel here.
+    book = load_recipes(None)
+    heat = load_heat(heat_path("KB-24104"), book)
+    owed = contents_owed_pct(heat, book.grade(heat.grade), book.settings)["Mg"]
+    pct = dict(heat.analysis.pct, Si=2.85, Mn=0.20, Mg=0.040 + owed)  # the planner charges the debt again
+    heat = heat.with_changes(analysis=Analysis(pct, heat.analysis.below_limit - {"Mg"}))
+    risk = RiskPlanner(book).plan(heat, draws=300)
+    assert risk.plan.status == "closest"
+    assert {a.material for a in risk.plan.additions}.isdisjoint({"Nickel", "FeMo 65", "FeV 80", "Copper"})
+    assert any(note.startswith("left out ") and "Nickel" in note for note in risk.plan.notes)
+
+
 def test_what_holds_the_cost_up_is_money_a_re_solve_confirms() -> None:
     book = load_recipes(None)
     planner = RiskPlanner(book)
