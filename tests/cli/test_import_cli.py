@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import tomllib
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -19,18 +20,13 @@ DEMO = ROOT / "demo" / "spectro"
 
 
 @pytest.fixture()
-def recipes(tmp_path: Path) -> Path:
+def recipes(tmp_path: Path, write_recipes: Callable[..., Path]) -> Path:
     """A small recipe book of our own, so the tests do not depend on the demo shop's settings."""
-    folder = tmp_path / "recipes"
-    (folder / "grades").mkdir(parents=True)
-    (folder / "materials.toml").write_text(
+    return write_recipes(
+        tmp_path / "recipes",
         '[[material]]\nname = "FeMn HC"\nprice_per_kg = 1.4\ncomposition = { Mn = 78.0, C = 7.0 }\n',
-        encoding="utf-8")
-    (folder / "grades" / "s355j2.toml").write_text(
-        'name = "S355J2"\n[window]\nC = [0, 0.20]\nMn = [0, 1.60]\n', encoding="utf-8")
-    (folder / "grades" / "trial.toml").write_text(
-        'name = "Trial"\n[window]\nC = [0.1, 0.3]\nMn = [0.5, 1.0]\n', encoding="utf-8")
-    return folder
+        {"s355j2.toml": 'name = "S355J2"\n[window]\nC = [0, 0.20]\nMn = [0, 1.60]\n',
+         "trial.toml": 'name = "Trial"\n[window]\nC = [0.1, 0.3]\nMn = [0.5, 1.0]\n'})
 
 
 def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[int, str, str]:

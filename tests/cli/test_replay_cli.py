@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -43,14 +44,13 @@ def test_json_has_the_promised_shape(capsys: pytest.CaptureFixture[str]) -> None
     assert doc["steps"][-1]["measured_next"] is None
 
 
-def test_json_with_own_recipes_matches_hand_arithmetic(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    folder = tmp_path / "book"
-    (folder / "grades").mkdir(parents=True)
-    (folder / "materials.toml").write_text(
-        '[[material]]\nname = "Mn metal"\nprice_per_kg = 3.0\ncomposition = { Mn = 100.0 }\n', encoding="utf-8")
+def test_json_with_own_recipes_matches_hand_arithmetic(tmp_path: Path, capsys: pytest.CaptureFixture[str],
+                                                      write_recipes: Callable[..., Path]) -> None:
     # No scatter: the plan to the target odds is the plan on paper, so the arithmetic below holds.
-    (folder / "shop.toml").write_text("[scatter]\nrecovery = 0\nbath = 0\nanalysis = 0\n", encoding="utf-8")
-    (folder / "grades" / "g.toml").write_text('name = "G"\n[window]\nMn = [0.5, 1.0]\n', encoding="utf-8")
+    folder = write_recipes(tmp_path / "book",
+                           '[[material]]\nname = "Mn metal"\nprice_per_kg = 3.0\ncomposition = { Mn = 100.0 }\n',
+                           'name = "G"\n[window]\nMn = [0.5, 1.0]\n',
+                           "[scatter]\nrecovery = 0\nbath = 0\nanalysis = 0\n")
     record = tmp_path / "two.toml"
     record.write_text(
         'grade = "G"\nbath_kg = 20000\n'

@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -58,13 +59,9 @@ Mn = 0.85
 
 
 @pytest.fixture()
-def recipes(tmp_path: Path) -> Path:
-    folder = tmp_path / "recipes"
-    (folder / "grades").mkdir(parents=True)
-    (folder / "materials.toml").write_text(MATERIALS, encoding="utf-8")
-    (folder / "grades" / "trim.toml").write_text(GRADE, encoding="utf-8")
-    (folder / "shop.toml").write_text('shop_name = "Test shop"\naim_penalty = 0.5\n', encoding="utf-8")
-    return folder
+def recipes(tmp_path: Path, write_recipes: Callable[..., Path]) -> Path:
+    return write_recipes(tmp_path / "recipes", MATERIALS, {"trim.toml": GRADE},
+                         'shop_name = "Test shop"\naim_penalty = 0.5\n')
 
 
 def solve(capsys: pytest.CaptureFixture[str], recipes: Path, *argv: str | Path) -> tuple[int, str, str]:
@@ -121,6 +118,7 @@ def test_several_heats_as_json_lines_in_order_with_the_worst_exit(capsys: pytest
     assert [p["status"] for p in plans] == ["optimal", "closest", "optimal"]
 
 
+@pytest.mark.slow  # starts worker processes
 def test_jobs_plans_in_processes_and_keeps_the_order_and_the_worst_exit(capsys: pytest.CaptureFixture[str],
                                                                        recipes: Path, tmp_path: Path) -> None:
     bad = tmp_path / "bad.toml"
@@ -192,6 +190,7 @@ def test_the_built_in_recipe_book_plans_a_heat(capsys: pytest.CaptureFixture[str
     assert 0.60 <= plan["predicted"]["Mn"] <= 0.90 and 0.43 <= plan["predicted"]["C"] <= 0.50  # SAE J403 1045
 
 
+@pytest.mark.slow  # meltfix solve in a pseudo-terminal, a process of its own
 def test_nothing_but_the_plans_reaches_the_terminal() -> None:
     # HiGHS can write straight to file descriptor 1 (seen with HiGHS 1.12), under Python's sys.stdout, which would
     # corrupt a running screen; a separate process catches that. The demo heats (whole packs: integer

@@ -14,6 +14,7 @@ import subprocess
 import sys
 import textwrap
 import time
+from collections.abc import Callable
 from contextlib import contextmanager
 from datetime import UTC, date, datetime
 from pathlib import Path
@@ -41,11 +42,9 @@ def place(request: pytest.FixtureRequest, tmp_path: Path) -> str:
 
 
 @pytest.fixture()
-def book(tmp_path: Path):
+def book(tmp_path: Path, write_recipes: Callable[..., Path]):
     """A three-material recipe book, so the tests do not depend on the shop's data."""
-    folder = tmp_path / "recipes"
-    (folder / "grades").mkdir(parents=True)
-    (folder / "materials.toml").write_text(textwrap.dedent("""
+    return load_recipes(write_recipes(tmp_path / "recipes", textwrap.dedent("""
         [[material]]
         name = "FeMn"
         price_per_kg = 1.35
@@ -62,8 +61,7 @@ def book(tmp_path: Path):
         name = "Scrap"
         price_per_kg = 0.36
         composition = { C = 0.05, Mn = 0.40 }
-        """), encoding="utf-8")
-    (folder / "grades" / "plain.toml").write_text(textwrap.dedent("""
+        """), textwrap.dedent("""
         name = "Plain"
         [window]
         C = [0.43, 0.50]
@@ -71,8 +69,7 @@ def book(tmp_path: Path):
         [aim]
         C = 0.46
         Mn = 0.75
-        """), encoding="utf-8")
-    return load_recipes(folder)
+        """)))
 
 
 def _heat(heat_id: str = "H1", **changes) -> Heat:

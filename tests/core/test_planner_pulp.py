@@ -42,7 +42,8 @@ from meltfix.shop.recipes import RecipeBook
 from meltfix.shop.settings import ShopSettings
 
 # pulp 3 announces that 4.0 will want a separately installed CBC; the bundled one is what we use.
-pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning:pulp")
+# Slow: CBC solves each case again beside HiGHS.
+pytestmark = [pytest.mark.filterwarnings("ignore::DeprecationWarning:pulp"), pytest.mark.slow]
 
 ELEMENTS = ("C", "Si", "Mn", "P", "S", "Cr", "Ni", "Mo", "Cu", "V")
 HEATS = 200

@@ -11,6 +11,7 @@ import random
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
+import pytest
 
 from meltfix.base.paths import demo_dir
 from meltfix.plan.planner import Planner
@@ -40,6 +41,7 @@ def shaken_heats(count: int) -> list[Heat]:
     return heats
 
 
+@pytest.mark.slow  # every demo heat, planned on four threads and on one
 def test_four_threads_plan_what_one_thread_plans() -> None:
     book = load_recipes()
     heats = shaken_heats(HEATS)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import tomllib
+from collections.abc import Callable
 from dataclasses import replace
 from datetime import datetime, timedelta
 from pathlib import Path
@@ -58,12 +59,9 @@ DAY = datetime(2026, 3, 9, 6, 0)
 
 
 @pytest.fixture(scope="module")
-def hand_book(tmp_path_factory: pytest.TempPathFactory) -> RecipeBook:
-    folder = tmp_path_factory.mktemp("book")
-    (folder / "grades").mkdir()
-    (folder / "materials.toml").write_text(MATERIALS, encoding="utf-8")
-    (folder / "grades" / "test.toml").write_text(GRADE, encoding="utf-8")
-    return load_recipes(folder)
+def hand_book(tmp_path_factory: pytest.TempPathFactory, write_recipes: Callable[..., Path]) -> RecipeBook:
+    # This module's own book (three alloys), in place of the shared one of tests/conftest.py.
+    return load_recipes(write_recipes(tmp_path_factory.mktemp("book") / "recipes", MATERIALS, GRADE))
 
 
 def _really(material: Material) -> Material:

@@ -17,24 +17,11 @@ from meltfix.shop.recipes import RecipeBook, load_recipes
 
 RECORDS = sorted((demo_dir() / "records").glob("*.toml"))
 
-# One ferromanganese-like alloy and one grade, so every figure can be worked by hand.
-MATERIALS = """
-[[material]]
-name = "FeMn test"
-price_per_kg = 2.0
-composition = { Mn = 80.0 }
-recovery = { Mn = 0.9 }
-"""
-GRADE = """
-name = "Test steel"
-[window]
-Mn = [0.60, 0.90]
-[aim]
-Mn = 0.75
-"""
+# The hand book (tests/conftest.py): FeMn test (80 % Mn, recovery 0.9, 2.0 a kg) and the grade "Mn steel"
+# (Mn 0.60-0.90, aim 0.75), so every figure can be worked by hand.
 RECORD = """
 heat = "HAND-1"
-grade = "Test steel"
+grade = "Mn steel"
 bath_kg = 10000
 [[sample]]
 id = "S1"
@@ -51,14 +38,6 @@ time = "10:04"
 material = "FeMn test"
 kg = 40
 """
-
-
-@pytest.fixture
-def hand_book(tmp_path: Path) -> RecipeBook:
-    (tmp_path / "book" / "grades").mkdir(parents=True)
-    (tmp_path / "book" / "materials.toml").write_text(MATERIALS, encoding="utf-8")
-    (tmp_path / "book" / "grades" / "test.toml").write_text(GRADE, encoding="utf-8")
-    return load_recipes(tmp_path / "book")
 
 
 def _record_file(tmp_path: Path, body: str, name: str = "rec.toml") -> Path:
@@ -268,7 +247,7 @@ def test_addition_at_a_sample_time_answers_that_sample(tmp_path: Path, hand_book
 
 @pytest.mark.parametrize(("old", "new", "field"), [
     ('bath_kg = 10000', 'bath_kg = 10000\nbath_mass = 3', "bath_mass"),
-    ('grade = "Test steel"', 'grade = "Nope"', "grade"),
+    ('grade = "Mn steel"', 'grade = "Nope"', "grade"),
     ('material = "FeMn test"', 'material = "FeMn tset"', "addition #1.material"),
     ('kg = 40', 'kg = -4', "addition #1.kg"),
     ('time = "10:04"', 'time = "09:59"', "addition #1.time"),

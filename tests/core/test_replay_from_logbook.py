@@ -13,40 +13,11 @@ from meltfix.records.logbook import Logbook
 from meltfix.records.replay import record_from_history, replay
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
-from meltfix.shop.recipes import RecipeBook, load_recipes
+from meltfix.shop.recipes import RecipeBook
 
-# Two alloys and one grade, so every figure can be worked by hand.
-MATERIALS = """
-[[material]]
-name = "FeMn test"
-price_per_kg = 2.0
-composition = { Mn = 80.0 }
-recovery = { Mn = 0.9 }
-
-[[material]]
-name = "FeSi test"
-price_per_kg = 1.5
-composition = { Si = 75.0 }
-recovery = { Si = 0.8 }
-"""
-GRADE = """
-name = "Test steel"
-[window]
-Mn = [0.60, 0.90]
-Si = [0.15, 0.35]
-[aim]
-Mn = 0.75
-Si = 0.25
-"""
+# The hand book (tests/conftest.py): FeMn test (80 % Mn, recovery 0.9) and FeSi test (75 % Si, recovery
+# 0.8), grade "Test steel" (Mn 0.60-0.90, Si 0.15-0.35), so every figure can be worked by hand.
 DAY = datetime(2026, 3, 9)
-
-
-@pytest.fixture
-def hand_book(tmp_path: Path) -> RecipeBook:
-    (tmp_path / "book" / "grades").mkdir(parents=True)
-    (tmp_path / "book" / "materials.toml").write_text(MATERIALS, encoding="utf-8")
-    (tmp_path / "book" / "grades" / "test.toml").write_text(GRADE, encoding="utf-8")
-    return load_recipes(tmp_path / "book")
 
 
 def _at(hh: int, mm: int) -> datetime:

@@ -44,6 +44,7 @@ def _peak_bytes(path: Path) -> int:
         tracemalloc.stop()
 
 
+@pytest.mark.slow  # writes and reads exports of several MB
 def test_reading_memory_does_not_grow_with_the_file(tmp_path: Path) -> None:
     # A memory property, not a timing: four times the rows may not need even twice the memory,
     # because only the samples still being read (and one batch being averaged) are held.

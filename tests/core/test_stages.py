@@ -8,6 +8,7 @@ the planner's own promise: a plan at a stage never holds a material barred from 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
 from types import MappingProxyType
@@ -47,12 +48,11 @@ def test_demo_shop_lists_furnace_ladle_and_ladle_furnace(book: RecipeBook) -> No
     assert book.material("FeMo 65").stages is None  # no list: every stage
 
 
-def test_a_book_without_stage_tables_has_furnace_and_ladle(tmp_path: Path) -> None:
+def test_a_book_without_stage_tables_has_furnace_and_ladle(tmp_path: Path, write_recipes: Callable[..., Path]) -> None:
     assert list(ShopSettings().stages) == ["furnace", "ladle"] == list(DEFAULT_STAGES)
-    (tmp_path / "grades").mkdir()
-    (tmp_path / "materials.toml").write_text('[[material]]\nname = "A"\nprice_per_kg = 1\ncomposition = { Mn = 80 }\n')
-    (tmp_path / "grades" / "g.toml").write_text('name = "G"\n[window]\nMn = [0.5, 1.0]\n')
-    assert list(load_recipes(tmp_path).settings.stages) == ["furnace", "ladle"]
+    folder = write_recipes(tmp_path / "book", '[[material]]\nname = "A"\nprice_per_kg = 1\ncomposition = { Mn = 80 }\n',
+                           'name = "G"\n[window]\nMn = [0.5, 1.0]\n')
+    assert list(load_recipes(folder).settings.stages) == ["furnace", "ladle"]
 
 
 def test_ladle_plan_never_proposes_furnace_only_materials(book: RecipeBook) -> None:
