@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 from meltfix.base.errors import visible
 from meltfix.commands.logbook_args import add_logbook_arguments, date_range, logbook_to_read
+from meltfix.plan.numbers import kg_text, money_text
 
 if TYPE_CHECKING:
     from rich.console import JustifyMethod, RenderableType
@@ -61,18 +62,19 @@ def bar(value: float, largest: float, width: int = BAR_WIDTH) -> str:
     return "█" * (eighths // 8) + (_EIGHTHS[eighths % 8] if eighths % 8 else "")
 
 
+# Sums over many heats in whole units of the currency; costs per tonne with the decimals of any amount.
 def _money(value: float) -> str:
-    return "–" if math.isnan(value) else f"{value:,.0f}"
+    return "–" if math.isnan(value) else money_text(value, places=0)
 
 
 def _signed(value: float) -> str:
     if math.isnan(value) or round(value) == 0:
         return "0"
-    return f"{value:+,.0f}"
+    return money_text(value, places=0, signed=True)
 
 
 def _per_t(value: float) -> str:
-    return "–" if math.isnan(value) else f"{value:,.2f}"
+    return "–" if math.isnan(value) else money_text(value)
 
 
 def report_renderable(report: CostReport, logbook_path: LogbookLocation, width: int = 80) -> RenderableType:
@@ -145,8 +147,8 @@ def report_renderable(report: CostReport, logbook_path: LogbookLocation, width: 
         ("Material", "left"), ("Planned kg", "right"), ("Actual kg", "right"), ("Planned", "right"),
         ("Actual", "right"), ("Share", "right")])
     for row in report.materials.itertuples(index=False):
-        materials.add_row(_data(row.material), f"{row.planned_kg:,.0f}", f"{row.actual_kg:,.0f}", _money(row.planned_cost),
-                          _money(row.cost), f"{row.share:.0%}")
+        materials.add_row(_data(row.material), kg_text(row.planned_kg), kg_text(row.actual_kg),
+                          _money(row.planned_cost), _money(row.cost), f"{row.share:.0%}")
 
     parts: list[RenderableType] = [head, summary, Text(""), heats]
     if report.heats["cost_per_t"].notna().any():  # nothing to draw when no bath weight is known

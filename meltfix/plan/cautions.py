@@ -9,6 +9,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+from meltfix.plan.numbers import content_text, kg_text, with_unit
+from meltfix.shop.elements import PPM_PER_PCT
 from meltfix.shop.materials import Material
 from meltfix.shop.settings import ShopSettings
 
@@ -55,7 +57,7 @@ def plan_cautions(additions: Sequence[tuple[Material, float]], bath_kg: float, t
     if per_t > settings.large_addition_kg_per_t or temperature_drop_c > 15.0:
         chill = f" chills the bath by about {temperature_drop_c:.0f} °C" if temperature_drop_c >= 0.5 else ""
         cautions.append(
-            f"Large addition: {total_kg:,.0f} kg ({per_t:.1f} kg/t){chill}. Check the temperature before and "
+            f"Large addition: {kg_text(total_kg)} kg ({per_t:.1f} kg/t){chill}. Check the temperature before and "
             "after, add in portions while stirring, and keep clear of a freezing nozzle or a skulled ladle."
         )
     cautions += _temperature(temperature_c, temperature_drop_c, bath, settings)
@@ -95,7 +97,8 @@ def _reactions(materials: Sequence[Material], bath: BathState) -> list[str]:
     cautions = []
     carbon = [m.name for m in materials if m.composition_pct.get("C", 0.0) >= _CARBON_BEARING_PCT]
     if carbon and bath.dissolved_o_ppm is not None and bath.dissolved_o_ppm >= _BOIL_O_PPM:
-        cautions.append(f"Carbon boil: {', '.join(carbon)} carry carbon into a bath with {bath.dissolved_o_ppm:g} ppm "
+        cautions.append(f"Carbon boil: {', '.join(carbon)} carry carbon into a bath with "
+                        f"{with_unit('O', content_text('O', bath.dissolved_o_ppm / PPM_PER_PCT))} "
                         "dissolved oxygen; carbon and oxygen react to CO at once and the bath can boil over violently. "
                         "Deoxidise first, add carbon slowly in small lots, keep the freeboard and stand clear.")
     fume = sorted({f"{m.name} ({'/'.join(s for s, pct in _FUME_PCT.items() if m.composition_pct.get(s, 0.0) >= pct)})"
@@ -124,6 +127,6 @@ def _handling(additions: Sequence[tuple[Material, float]], bath: BathState) -> l
     if bath.capacity_kg is not None and bath.final_kg is not None:
         free = bath.capacity_kg - bath.final_kg
         if free <= _FREEBOARD_SHARE * bath.capacity_kg:
-            cautions.append(f"Freeboard: the bath will be within {free:,.0f} kg of the vessel's capacity; leave room "
+            cautions.append(f"Freeboard: the bath will be within {kg_text(free)} kg of the vessel's capacity; leave room "
                             "for slag and a boil, and add slowly.")
     return cautions

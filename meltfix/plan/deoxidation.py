@@ -20,6 +20,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 
+from meltfix.plan.numbers import content_text, kg_text, with_unit
 from meltfix.shop.elements import ATOMIC_WEIGHT, PPM_PER_PCT
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
@@ -57,11 +58,16 @@ def oxygen_notes(heat: Heat, grade: Grade, owed: Mapping[str, float]) -> list[st
     if not heat.dissolved_o_ppm:
         return []
     if owed:
-        return [f"{heat.bath_kg * pct / 100.0:,.1f} kg of {s} goes to deoxidation ({heat.dissolved_o_ppm:g} ppm "
+        return [f"{kg_text(heat.bath_kg * pct / 100.0)} kg of {s} goes to deoxidation ({_o_text(heat.dissolved_o_ppm)} "
                 "dissolved O bound as Al2O3) before any stays in the bath; the heat of that reaction is not "
                 "credited to the temperature" for s, pct in owed.items()]
     if "Al" not in grade.window_pct:
         return [f"the dissolved O reading is not used: grade {grade.name} sets no Al window"]
-    return [f"the dissolved O reading ({heat.dissolved_o_ppm:g} ppm) is not counted again: the aluminium "
+    return [f"the dissolved O reading ({_o_text(heat.dissolved_o_ppm)}) is not counted again: the aluminium "
             "recoveries are measured from tap and already allow for the oxygen (shop.toml "
             "aluminium_recovery_basis)"]
+
+
+def _o_text(ppm: float) -> str:
+    """A dissolved-oxygen reading [ppm] as every output writes an O content."""
+    return with_unit("O", content_text("O", ppm / PPM_PER_PCT))

@@ -108,9 +108,10 @@ def packs_text(addition: Addition) -> str:
     return f"{addition.packs}×{addition.pack_kg:g}"
 
 
-def money_text(amount: float) -> str:
-    """An amount of money, two decimals with thousands separators (the currency written beside it)."""
-    return f"{amount:,.2f}"
+def money_text(amount: float, places: int = 2, signed: bool = False) -> str:
+    """An amount of money with thousands separators (the currency written beside it): two decimals,
+    or ``places`` (0 for the whole units of a summary over many heats); ``signed`` writes "+"."""
+    return f"{amount:{'+' if signed else ''},.{places}f}"
 
 
 def recovery_text(fraction: float | None) -> str:
