@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import argparse
 import json
-from pathlib import Path
 from typing import TYPE_CHECKING
 
 from meltfix.base.errors import InputError
@@ -25,7 +24,8 @@ if TYPE_CHECKING:
     from rich.console import JustifyMethod, RenderableType
 
     from meltfix.records.logbook.location import LogbookLocation
-    from meltfix.records.recovery_fit import RecoveryFit
+    from meltfix.records.recovery_fit import RecoveryEstimate, RecoveryFit
+    from meltfix.shop.recipes import RecipeBook
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -52,7 +52,7 @@ def run(args: argparse.Namespace) -> int:
     min_cases = _min_cases(args.min_cases)
     book = load_recipes(args.recipes)
     path = logbook_to_read(args, "recoveries")
-    from meltfix.records.recovery_fit import fit_logbook, toml_snippet
+    from meltfix.records.recovery_fit import fit_logbook
 
     with Logbook(path, create=False) as logbook:
         fit = fit_logbook(logbook, book, date_from, date_to, min_cases)
@@ -108,3 +108,28 @@ def fit_renderable(fit: RecoveryFit, logbook_path: LogbookLocation) -> Renderabl
         table.add_row(found.material, found.element, recovery_text(found.catalogue), recovery_text(found.estimate),
                       interval, str(found.cases), proposal)
     return Group(head, table, notes)
+
+
+# What the metallurgist pastes into materials.toml, where recoveries are fractions.
+def _toml_number(value: float) -> str:
+    return f"{value:.3f}".rstrip("0").rstrip(".") if value != 1.0 else "1.0"
+
+
+def toml_snippet(fit: RecoveryFit, book: RecipeBook) -> str:
+    """Lines for materials.toml: per material with a proposal, its whole ``recovery = {...}`` line
+    (unchanged elements keep their catalogue values, so the line can replace the material's own),
+    with what it was and the evidence in a comment. Empty when nothing is proposed."""
+    proposals: dict[str, list[RecoveryEstimate]] = {}
+    for found in fit.proposals:
+        proposals.setdefault(found.material, []).append(found)
+    lines = []
+    for name, changes in proposals.items():
+        material = book.material(name)
+        new = {found.element: found.proposed for found in changes}
+        recovery = {s: new.get(s, r) for s, r in material.recovery.items() if s != "Fe"}
+        evidence = "; ".join(f"{f.element} was {_toml_number(f.catalogue)}, {f.cases} cases, "
+                             f"{fit.confidence * 100:g} % CI {f.ci_low:.3f}-{f.ci_high:.3f}" for f in changes)
+        lines += [f'# [[material]] name = "{name}": replace its recovery line with',
+                  "recovery = { " + ", ".join(f"{s} = {_toml_number(r)}" for s, r in recovery.items())
+                  + f" }}  # {evidence}"]
+    return "\n".join(lines)

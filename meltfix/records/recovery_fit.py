@@ -34,8 +34,9 @@ in 84-87 % of simulated logbooks with a recovery scatter of 0.05; this one in at
 Analysis error: a rise of a few repeatability limits is mostly scatter, so a case whose
 catalogue-predicted rise is under ``MIN_RISE_LIMITS`` (3) repeatability limits is skipped, and
 counted in the notes. An update is proposed only with at least ``min_cases`` cases, an interval
-that excludes the catalogue value and an estimate that differs from it to three decimals. Nothing here edits the recipes: :func:`toml_snippet` prints
-lines for the metallurgist to check and paste.
+that excludes the catalogue value and an estimate that differs from it to three decimals. Nothing
+here edits the recipes: :func:`meltfix.commands.recoveries.toml_snippet` prints lines for the
+metallurgist to check and paste.
 """
 
 from __future__ import annotations
@@ -383,31 +384,3 @@ def fit_logbook(logbook: Logbook, book: RecipeBook, date_from: date | None = Non
                 left_out.append(f"{summary.heat_id} ({where}{exc.message})")
     fit = fit_records(records, book, min_cases, confidence)
     return replace(fit, heats=len(summaries), heats_skipped=tuple(left_out))
-
-
-# ---------------------------------------------------------------------------------------------
-# What the metallurgist pastes
-
-
-def _toml_number(value: float) -> str:
-    return f"{value:.3f}".rstrip("0").rstrip(".") if value != 1.0 else "1.0"
-
-
-def toml_snippet(fit: RecoveryFit, book: RecipeBook) -> str:
-    """Lines for materials.toml: per material with a proposal, its whole ``recovery = {...}`` line
-    (unchanged elements keep their catalogue values, so the line can replace the material's own),
-    with what it was and the evidence in a comment. Empty when nothing is proposed."""
-    proposals: dict[str, list[RecoveryEstimate]] = {}
-    for found in fit.proposals:
-        proposals.setdefault(found.material, []).append(found)
-    lines = []
-    for name, changes in proposals.items():
-        material = book.material(name)
-        new = {found.element: found.proposed for found in changes}
-        recovery = {s: new.get(s, r) for s, r in material.recovery.items() if s != "Fe"}
-        evidence = "; ".join(f"{f.element} was {_toml_number(f.catalogue)}, {f.cases} cases, "
-                             f"{fit.confidence * 100:g} % CI {f.ci_low:.3f}-{f.ci_high:.3f}" for f in changes)
-        lines += [f'# [[material]] name = "{name}": replace its recovery line with',
-                  "recovery = { " + ", ".join(f"{s} = {_toml_number(r)}" for s, r in recovery.items())
-                  + f" }}  # {evidence}"]
-    return "\n".join(lines)

@@ -14,13 +14,13 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
+from meltfix.commands.recoveries import toml_snippet
 from meltfix.plan.massbalance import bath_after
 from meltfix.plan.planner import Planner
 from meltfix.plan.uncertainty import R_TO_SIGMA
 from meltfix.records.demo_logbook import build_demo_logbook
 from meltfix.records.logbook import Logbook
-from meltfix.records.recovery_fit import (RecoveryEstimate, RecoveryFit, fit_logbook, pair_cases, toml_snippet,
-                                          weighted_ratio)
+from meltfix.records.recovery_fit import RecoveryEstimate, RecoveryFit, fit_logbook, pair_cases, weighted_ratio
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
 from meltfix.shop.materials import Material
