@@ -51,9 +51,33 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     """The plan as rich tables: additions, predicted chemistry, binding limits, cautions; with
     ``odds``, a line of in-spec odds under the chemistry (and the target, with ``risk``). Masses,
     costs per ton and temperatures in the shop's ``units``; notes and cautions stay as written."""
+    title = f"Heat {markup_safe(plan.heat_id)} · {markup_safe(plan.grade)} · " + headline(plan, risk)
+    parts: list[RenderableType] = [Text.from_markup(title), _additions_table(plan, units), _chemistry_table(plan)]
+    if odds is not None:
+        parts.append(odds_text(odds, risk))
+    if plan.violations:
+        parts.append(Panel(Text("\n".join(visible(
+            f"• {v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit_of(v.element)}: off by "
+            f"{miss_text(v.element, v.by_pct)} {unit_of(v.element)}. {v.reason}") for v in plan.violations)),
+            title="Why the grade cannot be met", border_style="red"))
+    if plan.binding:
+        bind = Table(title="What holds the cost up", title_justify="left")
+        bind.add_column("Limit")
+        bind.add_column(f"saves {plan.currency}", justify="right")
+        bind.add_column("per")
+        for b in plan.binding:
+            bind.add_row(Text(visible(b.name)), money_text(b.saving), b.unit)
+        parts.append(bind)
+    if plan.notes:
+        parts.append(Text(visible("Notes: " + " ".join(plan.notes)), style="dim"))
+    parts.append(Panel(Text("\n".join(visible(f"• {c}") for c in plan.cautions)), title="Cautions",
+                       border_style="yellow"))
+    return Group(*parts)
+
+
+def _additions_table(plan: Plan, units: Units) -> Table:
     mass = units.mass_unit
     cur = plan.currency
-    title = f"Heat {markup_safe(plan.heat_id)} · {markup_safe(plan.grade)} · " + headline(plan, risk)
     adds = Table(title="Additions", title_justify="left", expand=False)
     adds.add_column("Material")
     adds.add_column(mass, justify="right")
@@ -72,7 +96,10 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
     adds.caption = (f"{money_text(units.per_ton(plan.cost_per_t))} {cur}/{units.ton_unit} · bath "
                     f"{kg_text(units.mass(plan.bath_kg))} → {kg_text(units.mass(plan.final_kg))} {mass} · "
                     f"temperature {units.temperature_change(-plan.temperature_drop_c):+.1f} {units.temperature_unit}")
+    return adds
 
+
+def _chemistry_table(plan: Plan) -> Table:
     chem = Table(title="Predicted chemistry (wt %, ppm for N O B H)", title_justify="left")
     for column in ("Limit", "min", "predicted", "max", "margin"):
         chem.add_column(column, justify="right" if column != "Limit" else "left")
@@ -87,28 +114,7 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
         chem.add_row(element, "" if low is None else limit_text(element, low),
                      content_text(element, row["predicted"]), "" if high is None else limit_text(element, high),
                      margin_text(element, row["margin"]), style="red" if is_outside(row["margin"]) else "")
-
-    parts: list[RenderableType] = [Text.from_markup(title), adds, chem]
-    if odds is not None:
-        parts.append(odds_text(odds, risk))
-    if plan.violations:
-        parts.append(Panel(Text("\n".join(visible(
-            f"• {v.element} {v.limit} {limit_text(v.element, v.limit_pct)} {unit_of(v.element)}: off by "
-            f"{miss_text(v.element, v.by_pct)} {unit_of(v.element)}. {v.reason}") for v in plan.violations)),
-            title="Why the grade cannot be met", border_style="red"))
-    if plan.binding:
-        bind = Table(title="What holds the cost up", title_justify="left")
-        bind.add_column("Limit")
-        bind.add_column(f"saves {cur}", justify="right")
-        bind.add_column("per")
-        for b in plan.binding:
-            bind.add_row(Text(visible(b.name)), money_text(b.saving), b.unit)
-        parts.append(bind)
-    if plan.notes:
-        parts.append(Text(visible("Notes: " + " ".join(plan.notes)), style="dim"))
-    parts.append(Panel(Text("\n".join(visible(f"• {c}") for c in plan.cautions)), title="Cautions",
-                       border_style="yellow"))
-    return Group(*parts)
+    return chem
 
 
 def print_plan(plan: Plan, console: Console | None = None, odds: Odds | None = None,
