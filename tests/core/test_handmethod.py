@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -14,14 +15,15 @@ from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook, load_recipes
 
+BookOf = Callable[[str, str], RecipeBook]
 EXACT = HandRules(loose_step_kg=0.0, scrap_step_kg=0.0)
 
 
-def _book(folder: Path, materials: str, grade: str) -> RecipeBook:
-    (folder / "grades").mkdir(parents=True)
-    (folder / "materials.toml").write_text(materials, encoding="utf-8")
-    (folder / "grades" / "g.toml").write_text(grade, encoding="utf-8")
-    return load_recipes(folder)
+@pytest.fixture()
+def book_of(tmp_path: Path, write_recipes: Callable[..., Path]) -> Callable[[str, str], RecipeBook]:
+    """A recipe book of this test's own materials and one grade (tests/conftest.py writes the folder)."""
+    made = iter(range(1000))
+    return lambda materials, grade: load_recipes(write_recipes(tmp_path / f"book{next(made)}", materials, grade))
 
 
 def _amount(plan, name: str) -> float:
@@ -46,13 +48,13 @@ Mn = 0.80
 MN_HEAT = Heat("h", "Mn trim", 100_000.0, Analysis({"Mn": 0.50, "C": 0.0}))
 
 
-def test_one_element_equals_the_closed_form(tmp_path: Path) -> None:
+def test_one_element_equals_the_closed_form(book_of: BookOf) -> None:
     # Single-addition mass balance, our reference sheet §4.4: W = 100 t, Mn 0.50 -> 0.80 %, a = 0.78,
     # r = 0.90. Its "brief's form" x = W (c* - c0) / (r (a - c*)) = 431.78 kg holds when the bath
     # grows by r x, i.e. when the alloy's iron is lost in the same proportion as its Mn. The closed
     # form is the textbook one; the 431.78 kg figure is computed there (no published numeric example
     # was found), so it is recomputed here by hand too.
-    book = _book(tmp_path, FEMN.replace("{ Mn = 0.90 }", "{ Mn = 0.90, Fe = 0.90 }"), MN_GRADE)
+    book = book_of(FEMN.replace("{ Mn = 0.90 }", "{ Mn = 0.90, Fe = 0.90 }"), MN_GRADE)
     closed_form = 100_000.0 * (0.0080 - 0.0050) / (0.90 * (0.78 - 0.0080))
     assert closed_form == pytest.approx(431.78, abs=0.005)
     plan = hand_plan(MN_HEAT, book, EXACT)
@@ -64,20 +66,20 @@ def test_one_element_equals_the_closed_form(tmp_path: Path) -> None:
     assert _amount(hand_plan(MN_HEAT, book), "FeMn 78") == 432.0
 
 
-def test_iron_fully_recovered_lies_between_the_reference_forms(tmp_path: Path) -> None:
+def test_iron_fully_recovered_lies_between_the_reference_forms(book_of: BookOf) -> None:
     # With the alloy's iron all dissolving, the bath grows by g x with g = 0.78 x 0.90 + 0.22 = 0.922,
     # and x = W (c* - c0) / (r a - g c*) (the general closed form of meltfix.plan.massbalance) = 431.89 kg by hand:
     # between §4.4's "brief's form" (g = r, 431.78 kg) and its "alternative" (g = 1, 432.28 kg).
-    book = _book(tmp_path, FEMN, MN_GRADE)
+    book = book_of(FEMN, MN_GRADE)
     plan = hand_plan(MN_HEAT, book, EXACT)
     expected = 100_000.0 * 0.0030 / (0.90 * 0.78 - 0.922 * 0.0080)
     assert plan.additions[0].kg == pytest.approx(expected, rel=1e-9)
     assert 431.78 < plan.additions[0].kg < 432.28
 
 
-def test_carried_carbon_is_tracked(tmp_path: Path) -> None:
+def test_carried_carbon_is_tracked(book_of: BookOf) -> None:
     carbon_femn = FEMN.replace("{ Mn = 78.0 }", "{ Mn = 78.0, C = 7.0 }")
-    book = _book(tmp_path, carbon_femn.replace("{ Mn = 0.90 }", "{ Mn = 0.90, C = 0.90, Fe = 0.90 }"), MN_GRADE)
+    book = book_of(carbon_femn.replace("{ Mn = 0.90 }", "{ Mn = 0.90, C = 0.90, Fe = 0.90 }"), MN_GRADE)
     plan = hand_plan(MN_HEAT, book, EXACT)
     # Reference sheet §4.4 (computed there): the same 431.78 kg of FeMn at 7 % C, r_C = 0.90, adds
     # 0.0271 % C. The amount is unchanged because g stays r: Mn, C and iron all dissolve at 0.90.
@@ -100,8 +102,8 @@ Cu = [0, 0.30]
 """
 
 
-def test_copper_over_its_maximum_is_diluted_with_clean_material(tmp_path: Path) -> None:
-    book = _book(tmp_path, SCRAP, CU_GRADE)
+def test_copper_over_its_maximum_is_diluted_with_clean_material(book_of: BookOf) -> None:
+    book = book_of(SCRAP, CU_GRADE)
     plan = hand_plan(Heat("h", "Cu limited", 45_000.0, Analysis({"Cu": 0.34}), capacity_kg=60_000.0), book, EXACT)
     # Copper cannot be refined out of steel, only diluted (common practice). The melter dilutes to
     # 10 % of the window below the maximum: 0.27 %. Single-addition balance with the whole
@@ -112,8 +114,8 @@ def test_copper_over_its_maximum_is_diluted_with_clean_material(tmp_path: Path) 
     assert plan.in_spec
 
 
-def test_dilution_stops_at_the_vessel_capacity(tmp_path: Path) -> None:
-    book = _book(tmp_path, SCRAP, CU_GRADE)
+def test_dilution_stops_at_the_vessel_capacity(book_of: BookOf) -> None:
+    book = book_of(SCRAP, CU_GRADE)
     plan = hand_plan(Heat("h", "Cu limited", 45_000.0, Analysis({"Cu": 0.34}), capacity_kg=50_000.0), book)
     assert _amount(plan, "Clean plate") == pytest.approx(5_000.0)
     assert plan.final_kg <= 50_000.0 + 1e-6
@@ -180,8 +182,8 @@ Ni = 0.55
 
 
 @pytest.fixture(scope="module")
-def mixed_book(tmp_path_factory: pytest.TempPathFactory) -> RecipeBook:
-    return _book(tmp_path_factory.mktemp("mixed"), MIXED, MIXED_GRADE)
+def mixed_book(tmp_path_factory: pytest.TempPathFactory, write_recipes: Callable[..., Path]) -> RecipeBook:
+    return load_recipes(write_recipes(tmp_path_factory.mktemp("mixed") / "recipes", MIXED, MIXED_GRADE))
 
 
 def test_the_usual_material_is_the_cheapest_per_kg_of_recovered_element(mixed_book: RecipeBook) -> None:
@@ -258,19 +260,19 @@ Si = 0.25
 """
 
 
-def test_silicomanganese_goes_first_when_manganese_and_silicon_are_both_short(tmp_path: Path) -> None:
+def test_silicomanganese_goes_first_when_manganese_and_silicon_are_both_short(book_of: BookOf) -> None:
     # Common practice: with both short, one silicomanganese addition does the work of two.
-    book = _book(tmp_path, SIMN, SIMN_GRADE)
+    book = book_of(SIMN, SIMN_GRADE)
     both_short = hand_plan(Heat("h", "Mn trim", 100_000.0, Analysis({"Mn": 0.50, "Si": 0.05})), book, EXACT)
     assert _amount(both_short, "SiMn") > 0 and both_short.in_spec
     only_mn = hand_plan(Heat("h", "Mn trim", 100_000.0, Analysis({"Mn": 0.50, "Si": 0.25})), book, EXACT)
     assert _amount(only_mn, "SiMn") == 0 and _amount(only_mn, "FeMn 78") > 0
 
 
-def test_the_melter_keeps_the_margin_asked_inside_a_limit(tmp_path: Path) -> None:
+def test_the_melter_keeps_the_margin_asked_inside_a_limit(book_of: BookOf) -> None:
     # An aim of 0.72 % sits 0.02 % inside the 0.70 % minimum; asked for a margin of 0.06 %, the
     # melter raises Mn to 0.76 % instead, by the same mass balance.
-    book = _book(tmp_path, FEMN, MN_GRADE.replace("Mn = 0.80", "Mn = 0.72"))
+    book = book_of(FEMN, MN_GRADE.replace("Mn = 0.80", "Mn = 0.72"))
     plain = hand_plan(MN_HEAT, book, EXACT)
     kept = hand_plan(MN_HEAT, book, EXACT, margins_pct={"Mn min": 0.06})
     assert plain.predicted_pct["Mn"] == pytest.approx(0.72, abs=1e-6)
@@ -296,11 +298,9 @@ Mg = 0.040
 """
 
 
-def test_the_treatment_pays_the_sulphur_and_the_fade_first(tmp_path: Path) -> None:
-    book = _book(tmp_path, MGFESI, DUCTILE)
-    (tmp_path / "shop.toml").write_text("mg_fade_pct_per_min = 0.001\ntreatment_to_pour_min = 10.0\n",
-                                        encoding="utf-8")
-    book = load_recipes(tmp_path)
+def test_the_treatment_pays_the_sulphur_and_the_fade_first(tmp_path: Path, write_recipes: Callable[..., Path]) -> None:
+    book = load_recipes(write_recipes(tmp_path / "book", MGFESI, DUCTILE,
+                                      "mg_fade_pct_per_min = 0.001\ntreatment_to_pour_min = 10.0\n"))
     heat = Heat("h", "Ductile", 20_000.0, Analysis({"Mg": 0.0, "Si": 1.8, "S": 0.010}))
     plan = hand_plan(heat, book, EXACT)
     kg = _amount(plan, "MgFeSi 6")
@@ -344,10 +344,10 @@ def _cev(pct: dict[str, float]) -> float:
             + (get("Ni", 0.0) + get("Cu", 0.0)) / 15)
 
 
-def test_the_melter_keeps_the_carbon_equivalent_inside(tmp_path: Path) -> None:
+def test_the_melter_keeps_the_carbon_equivalent_inside(book_of: BookOf) -> None:
     heat = Heat("h", "Structural", 100_000.0, Analysis({"C": 0.18, "Mn": 0.80, "Cr": 0.10, "Mo": 0.02, "V": 0.0,
                                                         "Ni": 0.10, "Cu": 0.30}))
-    book = _book(tmp_path, FEMN_CLEAN, CEV_GRADE)
+    book = book_of(FEMN_CLEAN, CEV_GRADE)
     plan = hand_plan(heat, book, EXACT)
     # At the Mn aim the CEV would be 0.18 + 1.40/6 + 0.12/5 + 0.40/15 = 0.464 > 0.45 (by hand), so
     # Mn is aimed lower: about 6 x (0.45 - 0.18 - 0.024 - 0.0267) = 1.316 %, a little more as the
@@ -356,7 +356,7 @@ def test_the_melter_keeps_the_carbon_equivalent_inside(tmp_path: Path) -> None:
     assert 1.30 < plan.predicted_pct["Mn"] < 1.33
     assert plan.in_spec and any("carbon equivalent" in note for note in plan.notes)
     # Without the index the melter goes to the aim.
-    free = _book(tmp_path / "free", FEMN_CLEAN, CEV_GRADE.split("[index.CEV]")[0])
+    free = book_of(FEMN_CLEAN, CEV_GRADE.split("[index.CEV]")[0])
     assert hand_plan(heat, free, EXACT).predicted_pct["Mn"] == pytest.approx(1.40, abs=1e-6)
 
 
@@ -382,8 +382,8 @@ def _one_element_grade(name: str, symbol: str, low: float, high: float, aim: flo
     return f'name = "{name}"\n[window]\n{symbol} = [{low}, {high}]\n[aim]\n{symbol} = {aim}\n'
 
 
-def test_a_trim_that_chills_too_much_is_cut_to_the_allowed_drop(tmp_path: Path) -> None:
-    book = _book(tmp_path, CHILLERS, _one_element_grade("Carbon", "C", 0.30, 0.40, 0.35))
+def test_a_trim_that_chills_too_much_is_cut_to_the_allowed_drop(book_of: BookOf) -> None:
+    book = book_of(CHILLERS, _one_element_grade("Carbon", "C", 0.30, 0.40, 0.35))
     heat = Heat("h", "Carbon", 20_000.0, Analysis({"C": 0.10}), max_temp_drop_c=10.0)
     plan = hand_plan(heat, book, EXACT)
     # The chill factor is in degrees per kg of material per tonne of bath (common practice): a drop of
@@ -396,8 +396,8 @@ def test_a_trim_that_chills_too_much_is_cut_to_the_allowed_drop(tmp_path: Path) 
     assert roomy.predicted_pct["C"] == pytest.approx(0.35, abs=1e-6) and not roomy.notes
 
 
-def test_the_bath_stays_above_its_liquidus_and_the_superheat(tmp_path: Path) -> None:
-    book = _book(tmp_path, CHILLERS, _one_element_grade("Nickel steel", "Ni", 1.0, 2.0, 1.5))
+def test_the_bath_stays_above_its_liquidus_and_the_superheat(book_of: BookOf) -> None:
+    book = book_of(CHILLERS, _one_element_grade("Nickel steel", "Ni", 1.0, 2.0, 1.5))
     heat = Heat("h", "Nickel steel", 20_000.0, Analysis({"C": 0.10, "Ni": 0.50}), temperature_c=1590.0,
                 max_temp_drop_c=60.0)
     plan = hand_plan(heat, book)
