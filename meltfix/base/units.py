@@ -40,6 +40,11 @@ class Units:
         return "short ton" if self.us else "t"
 
     @property
+    def tons_unit(self) -> str:
+        """The ton in a running sentence ("80 t of bath", "88 short tons of bath")."""
+        return "short tons" if self.us else "t"
+
+    @property
     def temperature_unit(self) -> str:
         return "°F" if self.us else "°C"
 
@@ -58,3 +63,25 @@ class Units:
     def per_ton(self, per_t: float) -> float:
         """A cost per tonne (1000 kg), per the shop's ton."""
         return per_t * KG_PER_SHORT_TON / 1000.0 if self.us else per_t
+
+    def tons(self, tonnes: float) -> float:
+        """A mass in tonnes (1000 kg) in the shop's ton."""
+        return tonnes * 1000.0 / KG_PER_SHORT_TON if self.us else tonnes
+
+    def per_mass(self, per_kg: float) -> float:
+        """A price per kg, per the shop's mass unit."""
+        return per_kg * KG_PER_LB if self.us else per_kg
+
+    # The other way, for what a person types in the shop's units: back to SI.
+
+    def kg(self, mass: float) -> float:
+        """A mass typed in the shop's mass unit, in kg."""
+        return mass * KG_PER_LB if self.us else mass
+
+    def celsius(self, temperature: float) -> float:
+        """A temperature typed in the shop's scale, in °C."""
+        return (temperature - F_AT_0_C) / F_PER_C if self.us else temperature
+
+    def price_per_kg(self, price: float) -> float:
+        """A price typed per the shop's mass unit, per kg."""
+        return price / KG_PER_LB if self.us else price

@@ -65,7 +65,7 @@ def run(args: argparse.Namespace) -> int:
     date = f" · {record.date}" if record.date else ""
     console.print(Rule(f"Replay of heat {record.heat_id} · {grade.name} · {record.stage}{date}"))
     for step in steps:
-        console.print(step_renderable(step, dict(grade.window_pct), currency))
+        console.print(step_renderable(step, dict(grade.window_pct), currency, book.settings.units))
         console.print()
     console.print(fitted_path_chart(element_paths(steps, grade), [s.sample.sample_id for s in steps], console,
                                     console.width))

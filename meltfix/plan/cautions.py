@@ -9,7 +9,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from meltfix.plan.numbers import content_text, kg_text, with_unit
+from meltfix.base.units import Units
+from meltfix.plan.numbers import content_text, degrees_text, mass_text, temperature_text, with_unit
 from meltfix.shop.elements import PPM_PER_PCT
 from meltfix.shop.materials import Material
 from meltfix.shop.settings import ShopSettings
@@ -55,9 +56,11 @@ def plan_cautions(additions: Sequence[tuple[Material, float]], bath_kg: float, t
     total_kg = sum(kg for _, kg in additions)
     per_t = total_kg / (bath_kg / 1000.0)
     if per_t > settings.large_addition_kg_per_t or temperature_drop_c > 15.0:
-        chill = f" chills the bath by about {temperature_drop_c:.0f} °C" if temperature_drop_c >= 0.5 else ""
+        units = settings.units  # cautions are read at the vessel: in the shop's units
+        chill = f" chills the bath by about {degrees_text(temperature_drop_c, units)}" if temperature_drop_c >= 0.5 else ""
+        rate = f"{units.mass(total_kg) / units.tons(bath_kg / 1000.0):.1f} {units.mass_unit}/{units.ton_unit}"
         cautions.append(
-            f"Large addition: {kg_text(total_kg)} kg ({per_t:.1f} kg/t){chill}. Check the temperature before and "
+            f"Large addition: {mass_text(total_kg, units)} ({rate}){chill}. Check the temperature before and "
             "after, add in portions while stirring, and keep clear of a freezing nozzle or a skulled ladle."
         )
     cautions += _temperature(temperature_c, temperature_drop_c, bath, settings)
@@ -70,7 +73,7 @@ def plan_cautions(additions: Sequence[tuple[Material, float]], bath_kg: float, t
                         "bearing) — expect flare and spatter; add through the shop's chute or wire, never by hand, "
                         "and keep the exclusion zone.")
     cautions += _reactions(materials, bath)
-    cautions += _handling(additions, bath)
+    cautions += _handling(additions, bath, settings.units)
     for material in materials:
         if material.notes:
             cautions.append(f"{material.name}: {material.notes}")
@@ -81,14 +84,18 @@ def plan_cautions(additions: Sequence[tuple[Material, float]], bath_kg: float, t
 def _temperature(temperature_c: float | None, drop_c: float, bath: BathState, settings: ShopSettings) -> list[str]:
     if temperature_c is None:
         return []
+    units = settings.units
     after = bath.temperature_after_c if bath.temperature_after_c is not None else temperature_c - drop_c
     if bath.liquidus_c is None:
-        return [f"Predicted bath temperature after the additions: about {after:.0f} °C (from {temperature_c:.0f} °C)."]
+        return [f"Predicted bath temperature after the additions: about {temperature_text(after, units)} "
+                f"(from {temperature_text(temperature_c, units)})."]
     margin = after - bath.liquidus_c
-    text = (f"Predicted bath temperature after the additions: about {after:.0f} °C (from {temperature_c:.0f} °C), "
-            f"{margin:.0f} °C above the liquidus of about {bath.liquidus_c:.0f} °C")
+    text = (f"Predicted bath temperature after the additions: about {temperature_text(after, units)} "
+            f"(from {temperature_text(temperature_c, units)}), {degrees_text(margin, units)} above the liquidus of "
+            f"about {temperature_text(bath.liquidus_c, units)}")
     if margin < settings.superheat_c - 0.5:
-        return [text + f" — less than the shop's superheat of {settings.superheat_c:g} °C: measure before adding, "
+        return [text + f" — less than the shop's superheat of {degrees_text(settings.superheat_c, units)}: "
+                "measure before adding, "
                 "and heat or hold the additions rather than freeze a nozzle or skull the ladle."]
     return [text + "; measure to confirm."]
 
@@ -118,7 +125,7 @@ def _reactions(materials: Sequence[Material], bath: BathState) -> list[str]:
     return cautions
 
 
-def _handling(additions: Sequence[tuple[Material, float]], bath: BathState) -> list[str]:
+def _handling(additions: Sequence[tuple[Material, float]], bath: BathState, units: Units) -> list[str]:
     cautions = []
     lifted = [m.name for m, _ in additions if m.pack_kg is not None and m.pack_kg >= _LIFTED_PACK_KG]
     if lifted:
@@ -127,6 +134,6 @@ def _handling(additions: Sequence[tuple[Material, float]], bath: BathState) -> l
     if bath.capacity_kg is not None and bath.final_kg is not None:
         free = bath.capacity_kg - bath.final_kg
         if free <= _FREEBOARD_SHARE * bath.capacity_kg:
-            cautions.append(f"Freeboard: the bath will be within {kg_text(free)} kg of the vessel's capacity; leave room "
+            cautions.append(f"Freeboard: the bath will be within {mass_text(free, units)} of the vessel's capacity; leave room "
                             "for slag and a boil, and add slowly.")
     return cautions

@@ -20,7 +20,8 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 
-from meltfix.plan.numbers import content_text, kg_text, with_unit
+from meltfix.base.units import Units
+from meltfix.plan.numbers import content_text, mass_text, with_unit
 from meltfix.shop.elements import ATOMIC_WEIGHT, PPM_PER_PCT
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
@@ -52,13 +53,13 @@ def aluminium_owed_pct(heat: Heat, grade: Grade) -> Mapping[str, float]:
     return {"Al": aluminium_for_oxygen_pct(heat.dissolved_o_ppm)}
 
 
-def oxygen_notes(heat: Heat, grade: Grade, owed: Mapping[str, float]) -> list[str]:
-    """What the plan did with the heat's oxygen reading, in words; ``owed`` is
+def oxygen_notes(heat: Heat, grade: Grade, owed: Mapping[str, float], units: Units = Units()) -> list[str]:
+    """What the plan did with the heat's oxygen reading, in words (masses in ``units``); ``owed`` is
     :func:`aluminium_owed_pct` of the same heat and grade."""
     if not heat.dissolved_o_ppm:
         return []
     if owed:
-        return [f"{kg_text(heat.bath_kg * pct / 100.0)} kg of {s} goes to deoxidation ({_o_text(heat.dissolved_o_ppm)} "
+        return [f"{mass_text(heat.bath_kg * pct / 100.0, units)} of {s} goes to deoxidation ({_o_text(heat.dissolved_o_ppm)} "
                 "dissolved O bound as Al2O3) before any stays in the bath; the heat of that reaction is not "
                 "credited to the temperature" for s, pct in owed.items()]
     if "Al" not in grade.window_pct:

@@ -12,6 +12,7 @@ No Textual, NumPy or solver here: the ticket and the screen's first paint use it
 
 from __future__ import annotations
 
+from meltfix.base.units import Units
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition
 from meltfix.shop.elements import PPM_ELEMENTS, PPM_PER_PCT, SYMBOLS
 
@@ -99,6 +100,21 @@ def cell_text(symbol: str, pct: float, below_limit: bool = False) -> str:
 def kg_text(kg: float) -> str:
     """A mass [kg]: one decimal below a tonne, whole kilograms above."""
     return f"{kg:,.1f}" if abs(kg) < 1000 else f"{kg:,.0f}"
+
+
+def mass_text(kg: float, units: Units = Units()) -> str:
+    """A mass [kg] with its unit, in the shop's units (kg_text's decimals): "1,234 kg", "2,720 lb"."""
+    return f"{kg_text(units.mass(kg))} {units.mass_unit}"
+
+
+def temperature_text(c: float, units: Units = Units()) -> str:
+    """A temperature [°C] in whole degrees of the shop's scale: "1600 °C", "2912 °F"."""
+    return f"{units.temperature(c):.0f} {units.temperature_unit}"
+
+
+def degrees_text(delta_c: float, units: Units = Units()) -> str:
+    """A temperature difference [°C] in whole degrees of the shop's scale (no offset): "25 °C", "45 °F"."""
+    return f"{units.temperature_change(delta_c):.0f} {units.temperature_unit}"
 
 
 def packs_text(addition: Addition) -> str:

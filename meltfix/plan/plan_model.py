@@ -29,6 +29,7 @@ import numpy as np
 from highspy._core import _Highs
 
 from meltfix.plan.deoxidation import oxygen_notes
+from meltfix.plan.numbers import degrees_text, mass_text, temperature_text
 from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg,
                                     unbound_sulphur_pct)
 from meltfix.shop.elements import element_sort_key
@@ -317,8 +318,10 @@ class ModelShape:
         short_c = now_liquidus + superheat - heat.temperature_c - reheat_max_c
         if short_c > 0:
             lower -= heat.bath_kg * short_c
-            notes.append(f"the bath is {now_liquidus + superheat - heat.temperature_c:.0f} °C short of liquidus "
-                         f"{now_liquidus:.0f} °C + superheat {superheat:g} °C already; the plan may not make it worse")
+            units = self.book.settings.units
+            notes.append(f"the bath is {degrees_text(now_liquidus + superheat - heat.temperature_c, units)} short of "
+                         f"liquidus {temperature_text(now_liquidus, units)} + superheat {degrees_text(superheat, units)} "
+                         "already; the plan may not make it worse")
         row_lower[self.superheat.first] = lower
         coefficient = heat.temperature_c - superheat - self.liquidus.base_c
         # Floored away from 0 so HiGHS keeps the matrix's structure (it deletes a 0 coefficient).
@@ -333,13 +336,15 @@ class ModelShape:
         to_sulphide = bath * magnesium_for_sulphur_pct(s_pct) / 100.0
         to_fade = bath * magnesium_fade_pct(settings) / 100.0
         unbound = "" if s_pct == heat.analysis.get("S") else " not yet bound by the Mg read"
-        note = (f"{to_sulphide:,.1f} kg of Mg goes to MgS (S {s_pct:.4g} %{unbound}) and {to_fade:,.1f} kg to fade "
+        units = settings.units
+        note = (f"{mass_text(to_sulphide, units)} of Mg goes to MgS (S {s_pct:.4g} %{unbound}) and "
+                f"{mass_text(to_fade, units)} to fade "
                 f"({settings.treatment_to_pour_min:g} min to pour at {settings.mg_fade_pct_per_min:g} % per min) "
                 "before any stays in the bath")
         carriers = [m for m in self.materials if m.composition_pct.get("Mg", 0.0) > 0]
         if carriers:
             richest = max(carriers, key=lambda m: m.composition_pct["Mg"] * m.recovery.get("Mg", 1.0))
-            note += f"; about {nodulariser_kg(to_sulphide + to_fade, richest):,.0f} kg of {richest.name} for these"
+            note += f"; about {mass_text(nodulariser_kg(to_sulphide + to_fade, richest), units)} of {richest.name} for these"
         return note
 
     def load(self, heat: Heat, aim_penalty: float) -> HeatLoad:
@@ -358,7 +363,7 @@ class ModelShape:
         owed = contents_owed_pct(heat, grade, book.settings)
         debt = np.array([owed.get(s, 0.0) / 100.0 for s in self.elements])
         now, now_low = now - debt, now_low - debt
-        notes += oxygen_notes(heat, grade, {s: pct for s, pct in owed.items() if s == "Al"})
+        notes += oxygen_notes(heat, grade, {s: pct for s, pct in owed.items() if s == "Al"}, book.settings.units)
         if "Mg" in owed:
             notes.append(self._treatment_note(heat))
 

@@ -23,6 +23,7 @@ import numpy as np
 from meltfix.base.errors import InputError
 from meltfix.plan.cautions import BathState, plan_cautions
 from meltfix.plan.massbalance import bath_after, temperature_drop_c
+from meltfix.plan.numbers import degrees_text, temperature_text
 from meltfix.plan.plan_model import HeatLoad, HotModel, ModelShape, Solution
 from meltfix.plan.reasons import explain_violation
 from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition,
@@ -124,13 +125,17 @@ class Planner:
                                             check.predicted_pct, -check.margin_pct, reason))
         binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
         notes = load.notes
+        units = book.settings.units  # notes are read by people: in the shop's units
         temperature = _temperature(heat, book, shape, solution.x, drop, predicted)
         if temperature.reheat_c > 0:
-            notes = (f"arc heating about {temperature.reheat_c:.0f} °C ({temperature.reheat_min:.0f} min) at the "
+            notes = (f"arc heating about {degrees_text(temperature.reheat_c, units)} ({temperature.reheat_min:.0f} min) "
+                     f"at the "
                      f"{heat.stage}, {temperature.reheat_cost:,.2f} {book.settings.currency}",) + notes
-        if temperature.short_c > 0.5:
-            notes += (f"temperature after about {temperature.after_c:.0f} °C is {temperature.short_c:.0f} °C short of "
-                      f"liquidus {temperature.liquidus_c:.0f} °C + superheat {book.settings.superheat_c:g} °C",)
+        if temperature.short_c > 0.5 and temperature.after_c is not None:
+            notes += (f"temperature after about {temperature_text(temperature.after_c, units)} is "
+                      f"{degrees_text(temperature.short_c, units)} short of liquidus "
+                      f"{temperature_text(temperature.liquidus_c, units)} + superheat "
+                      f"{degrees_text(book.settings.superheat_c, units)}",)
         if not solution.proven:
             notes += ((f"best plan found within the {budget_s:g} s planning budget: the cheapest possible plan "
                        f"may cost up to {100 * solution.gap:.2g} % less",) if math.isfinite(solution.gap) else

@@ -16,7 +16,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from types import MappingProxyType
 
-from meltfix.plan.numbers import content_text, kg_text, limit_text, with_unit
+from meltfix.plan.numbers import content_text, degrees_text, limit_text, mass_text, with_unit
 from meltfix.shop.heat import Heat
 from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
@@ -158,11 +158,11 @@ def _short_of_min(element: str, heat: Heat, book: RecipeBook, usable: Sequence[M
         verb = "is" if len(carriers) == 1 else "are"
         return f"No stocked material carries {element}: {', '.join(m.name for m in carriers)} {verb} out of stock."
     if free_kg is not None and final_kg - heat.bath_kg >= free_kg - 1.0:
-        return (f"{element} is short because the vessel is full: all {kg_text(free_kg)} kg of free capacity "
+        return (f"{element} is short because the vessel is full: all {mass_text(free_kg, book.settings.units)} of free capacity "
                 "is used.")
     if drop_limit_c is not None and temperature_drop_c >= drop_limit_c - 0.05:
         return (f"{element} is short because more additions would chill the bath beyond the "
-                f"{drop_limit_c:g} °C the heat may lose.")
+                f"{degrees_text(drop_limit_c, book.settings.units)} the heat may lose.")
     exhausted = [m.name for m, kg in used if m in stocked
                  and (on_hand := heat.material_stock_kg(m)) is not None and kg >= on_hand - 1e-6]
     if exhausted and len(exhausted) >= len([m for m in stocked if heat.material_stock_kg(m) is not None]):
@@ -187,7 +187,7 @@ def _over_max(element: str, heat: Heat, book: RecipeBook, usable: Sequence[Mater
     needed_kg = heat.bath_kg * (now / high - 1.0)
     clean = [m for m in usable if m.kind == "dilution" and m.composition_pct.get(element, 0.0) < high]
     figures = (f"{element} is {with_unit(element, content_text(element, now))} against a maximum of "
-               f"{_pct(element, high)}: it needs about {kg_text(needed_kg)} kg of clean material")
+               f"{_pct(element, high)}: it needs about {mass_text(needed_kg, book.settings.units)} of clean material")
     if not clean:
         elsewhere = _other_stages(heat, book, [m for m in book.materials if m.kind == "dilution"
                                          and m.composition_pct.get(element, 0.0) < high])
@@ -195,13 +195,13 @@ def _over_max(element: str, heat: Heat, book: RecipeBook, usable: Sequence[Mater
             return f"{figures}, but none may go in at the {heat.stage}: dilution needs the {elsewhere}; {advice}."
         return f"{figures}, but no clean dilution material is usable; {advice}."
     if free_kg is not None and needed_kg > free_kg:
-        return f"{figures} but only {kg_text(free_kg)} kg of capacity is free; {advice}."
+        return f"{figures} but only {mass_text(free_kg, book.settings.units)} of capacity is free; {advice}."
     stocks = [heat.material_stock_kg(m) for m in clean]
     in_stock = math.fsum(s for s in stocks if s is not None)
     if None not in stocks and needed_kg > in_stock:
-        return f"{figures} but only {kg_text(in_stock)} kg of clean material is in stock; {advice}."
+        return f"{figures} but only {mass_text(in_stock, book.settings.units)} of clean material is in stock; {advice}."
     added_kg = sum(kg for _, kg in used)
-    return f"{figures} ({kg_text(added_kg)} kg is all the plan can add within its limits); {advice}."
+    return f"{figures} ({mass_text(added_kg, book.settings.units)} is all the plan can add within its limits); {advice}."
 
 
 def _other_stages(heat: Heat, book: RecipeBook, materials: Sequence[Material]) -> str:

@@ -13,7 +13,9 @@ from rich.measure import Measurement
 from rich.table import Table
 from rich.text import Text
 
-from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text, money_text, recovery_text
+from meltfix.base.units import Units
+from meltfix.plan.numbers import (content_text, kg_text, limit_text, margin_text, mass_text, money_text, recovery_text,
+                                  temperature_text)
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition
 from meltfix.records.replay import ActualAddition, ElementPath, ReplayStep, TrainingScore, summarise
 from meltfix.shop.elements import element_sort_key
@@ -46,18 +48,19 @@ def sample_mark(index: int) -> str:
     return _MARKS[index] if index < len(_MARKS) else "+"
 
 
-def additions_table(title: str, rows: Sequence[Addition | ActualAddition], currency: str) -> Table:
-    """A compact table of additions (planned or actual) with their total."""
+def additions_table(title: str, rows: Sequence[Addition | ActualAddition], currency: str,
+                    units: Units = Units()) -> Table:
+    """A compact table of additions (planned or actual) with their total, masses in ``units``."""
     table = Table(title=title, title_justify="left", expand=False)
     table.add_column("Material")
-    table.add_column("kg", justify="right")
+    table.add_column(units.mass_unit, justify="right")
     table.add_column(currency, justify="right")
     for row in rows:
-        table.add_row(row.material, kg_text(row.kg), money_text(row.cost))
+        table.add_row(row.material, kg_text(units.mass(row.kg)), money_text(row.cost))
     if not rows:
         table.add_row("(nothing)", "", "")
     table.add_section()
-    table.add_row("Total", kg_text(sum(r.kg for r in rows)), money_text(sum(r.cost for r in rows)))
+    table.add_row("Total", kg_text(units.mass(sum(r.kg for r in rows))), money_text(sum(r.cost for r in rows)))
     return table
 
 
@@ -92,18 +95,20 @@ def chemistry_table(step: ReplayStep, window: dict[str, tuple[float, float]], ou
     return table
 
 
-def step_renderable(step: ReplayStep, window: dict[str, tuple[float, float]], currency: str) -> Group:
-    """One step of the replay: the plan beside the actual additions, the chemistry, hints and costs."""
+def step_renderable(step: ReplayStep, window: dict[str, tuple[float, float]], currency: str,
+                    units: Units = Units()) -> Group:
+    """One step of the replay: the plan beside the actual additions, the chemistry, hints and costs;
+    masses and temperatures in the shop's ``units``."""
     sample = step.sample
     head = Text.assemble(
         (f"Sample {sample.sample_id}", "bold"), f" · {sample.clock}",
-        "" if sample.temperature_c is None else f" · {sample.temperature_c:.0f} °C",
-        f" · bath {kg_text(step.bath_kg)} kg")
+        "" if sample.temperature_c is None else f" · {temperature_text(sample.temperature_c, units)}",
+        f" · bath {mass_text(step.bath_kg, units)}")
     side = Table.grid(padding=(0, 3))
-    side.add_row(plan_renderable(step, currency), additions_table("Actually added", step.actual, currency))
+    side.add_row(plan_renderable(step, currency, units), additions_table("Actually added", step.actual, currency, units))
     parts: list[RenderableType] = [head, side, chemistry_table(step, window)]
     if step.recovery_hints:
-        parts.append(hints_table(step))
+        parts.append(hints_table(step, units))
     if step.predicted_misses:
         parts.append(Text("The actual additions should have missed: " + "; ".join(step.predicted_misses),
                           style="red"))
@@ -113,20 +118,20 @@ def step_renderable(step: ReplayStep, window: dict[str, tuple[float, float]], cu
     return Group(*parts)
 
 
-def hints_table(step: ReplayStep) -> Table:
+def hints_table(step: ReplayStep, units: Units = Units()) -> Table:
     """Recovery the catalogue assumes against the one the next sample implies, per element added."""
     table = Table(title="Recovery: catalogue against the next sample", title_justify="left")
-    for name in ("Element", "added kg", "catalogue", "implied"):
+    for name in ("Element", f"added {units.mass_unit}", "catalogue", "implied"):
         table.add_column(name, justify="left" if name == "Element" else "right")
     for hint in step.recovery_hints:
         # More than 10 points apart is more than the spectrometer's scatter on these rises (common practice).
         far = abs(hint.implied - hint.catalogue) > 0.1
-        table.add_row(hint.element, kg_text(hint.added_kg), recovery_text(hint.catalogue), recovery_text(hint.implied),
+        table.add_row(hint.element, kg_text(units.mass(hint.added_kg)), recovery_text(hint.catalogue), recovery_text(hint.implied),
                       style="yellow" if far else "")
     return table
 
 
-def plan_renderable(step: ReplayStep, currency: str) -> Table | Group:
+def plan_renderable(step: ReplayStep, currency: str, units: Units = Units()) -> Table | Group:
     """The plan meltfix makes at the step, or why it made none there."""
     if step.inside:
         return Group(Text("Plan meltfix makes", style="italic"),
@@ -134,7 +139,7 @@ def plan_renderable(step: ReplayStep, currency: str) -> Table | Group:
     if step.plan is None:
         return Group(Text("Plan meltfix makes", style="italic"), Text(f"no plan: {step.plan_error}", style="red"))
     title = "Plan meltfix makes" + ("" if step.plan.status == "optimal" else " (closest: windows missed)")
-    return additions_table(title, step.plan.additions, currency)
+    return additions_table(title, step.plan.additions, currency, units)
 
 
 def cost_line(step: ReplayStep, currency: str) -> Text:

@@ -36,3 +36,18 @@ def test_metric_is_the_identity() -> None:
     assert (METRIC.mass(12.5), METRIC.temperature(1550.0), METRIC.temperature_change(-3.0), METRIC.per_ton(7.0)) \
         == (12.5, 1550.0, -3.0, 7.0)
     assert (METRIC.mass_unit, METRIC.ton_unit, METRIC.temperature_unit) == ("kg", "t", "°C")
+
+
+def test_tons_prices_and_the_way_back_in() -> None:
+    # 1 t = 1000 / 907.18474 = 1.10231131 short ton (NIST SP 811 Appendix B.8 factor above).
+    assert US.tons(1.0) == pytest.approx(1.10231131, rel=1e-8)
+    # 2.70 EUR/kg is 2.70 x 0.45359237 = 1.224699 EUR/lb.
+    assert US.per_mass(2.70) == pytest.approx(1.2246994, rel=1e-7)
+    # Typed in US units, back to SI: 2000 lb = 907.18474 kg, 2912 °F = 1600 °C, 1.2247 EUR/lb = 2.70 EUR/kg.
+    assert US.kg(2000.0) == pytest.approx(907.18474, rel=1e-12)
+    assert US.celsius(2912.0) == pytest.approx(1600.0) and US.celsius(32.0) == 0.0
+    assert US.price_per_kg(US.per_mass(2.70)) == pytest.approx(2.70, rel=1e-12)
+    for value in (0.0, 12.5, 1550.0):  # each way back undoes its way out
+        assert US.kg(US.mass(value)) == pytest.approx(value) and US.celsius(US.temperature(value)) == pytest.approx(value)
+    assert (METRIC.tons(3.0), METRIC.per_mass(2.7), METRIC.kg(5.0), METRIC.celsius(1600.0), METRIC.price_per_kg(2.7)) \
+        == (3.0, 2.7, 5.0, 1600.0, 2.7)
