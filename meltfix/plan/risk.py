@@ -43,6 +43,8 @@ _Z_GRID = _Z_STEP * np.arange(_Z_STEPS + 1)
 # solved at most this many times for one inset.
 _SIGMA_SETTLED = 0.05
 _SIGMA_ROUNDS = 2
+# The odds the anchor inset of a heat's fixed point is guessed for (see _Ladder).
+_ANCHOR_ODDS = 0.95
 # Bindings confirmed by a re-solve each (the largest first): each costs one more solve.
 _MAX_CONFIRMED = 4
 
@@ -236,18 +238,28 @@ class RiskPlanner:
 class _Ladder:
     """The plans of one heat at the insets tried, judged on one trial.
 
-    Sigma is iterated to its fixed point at the first inset tried (the closed form's guess, near
-    the answer); every other inset is planned once with that sigma, so each costs one solve. The
-    first guess, and with it that sigma, grows with the target, so a higher target still gets
-    insets at least as deep.
+    Sigma is iterated to its fixed point once per heat, at an anchor inset: the closed form's guess
+    for _ANCHOR_ODDS from the paper plan (near the answer for the usual targets). Every inset is then
+    planned once with that sigma, so each costs one solve. The anchor does not depend on the target,
+    so every target walks the same ladder of plans, each deeper one no cheaper than the last.
     """
 
     def __init__(self, risk: RiskPlanner, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried) -> None:
         self.risk, self.heat, self.options, self.trial, self.paper = risk, heat, options, trial, paper
         self.grade = checked_grade(heat, risk.book.grade(heat.grade))
+        self.labels = [f"{c.element} {c.limit}" for c in paper.plan.checks]
         self.plans: dict[int, _Tried | None] = {0: paper}
-        self.sigma: np.ndarray | None = None
-        """Each limit's sigma at the fixed point [wt %], once found."""
+        anchor = _least_inset(paper, _ANCHOR_ODDS)
+        anchor = (_Z_STEPS + 1) // 2 if anchor is None else min(max(anchor, 1), _Z_STEPS)
+        self.sigma = paper.sigma
+        """Each limit's sigma [wt %] every inset is planned with: the fixed point at the anchor."""
+        for round_ in range(_SIGMA_ROUNDS):  # the fixed point, from the paper plan's sigma
+            tried = self.plans[anchor] = self._solved(anchor * _Z_STEP)
+            if tried is None or round_ == _SIGMA_ROUNDS - 1:
+                break
+            if np.all(np.abs(tried.sigma - self.sigma) <= _SIGMA_SETTLED * np.maximum(self.sigma, 1e-12)):
+                break  # settled: every inset is planned with the sigma this plan was made with
+            self.sigma = tried.sigma
 
     def at(self, k: int) -> _Tried | None:
         if k not in self.plans:
@@ -257,26 +269,14 @@ class _Ladder:
     def _solved(self, z: float) -> _Tried | None:
         """The plan with every limit moved in by z sigma; None when the tightened grade cannot be met."""
         book, heat, grade = self.risk.book, self.heat, self.grade
-        labels = [f"{c.element} {c.limit}" for c in self.paper.plan.checks]
-        sigma, rounds, result = self.paper.sigma, _SIGMA_ROUNDS, None
-        if self.sigma is not None:
-            sigma, rounds = self.sigma, 1
-        for _ in range(rounds):
-            tight = tightened(grade, dict(zip(labels, z * sigma)))
-            candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan(
-                heat, self.options)
-            if candidate.status != "optimal":
-                return None
-            used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
-            candidate = replace(candidate, checks=recheck(heat, grade, used, book.settings)[2])
-            result = replace(self.risk._judged(heat, candidate, self.trial), z=z, planned_to=tight)
-            settled = bool(np.all(np.abs(result.sigma - sigma) <= _SIGMA_SETTLED * np.maximum(sigma, 1e-12)))
-            sigma = result.sigma
-            if settled:
-                break
-        if self.sigma is None:
-            self.sigma = sigma
-        return result
+        tight = tightened(grade, dict(zip(self.labels, z * self.sigma)))
+        candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan(
+            heat, self.options)
+        if candidate.status != "optimal":
+            return None
+        used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
+        candidate = replace(candidate, checks=recheck(heat, grade, used, book.settings)[2])
+        return replace(self.risk._judged(heat, candidate, self.trial), z=z, planned_to=tight)
 
 
 def _least_inset(tried: _Tried, target: float) -> int | None:
