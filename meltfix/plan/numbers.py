@@ -117,11 +117,11 @@ def degrees_text(delta_c: float, units: Units = Units()) -> str:
     return f"{units.temperature_change(delta_c):.0f} {units.temperature_unit}"
 
 
-def packs_text(addition: Addition) -> str:
-    """Whole packs as "count×pack kg" ("2×25"), or "" for a loose addition."""
+def packs_text(addition: Addition, units: Units = Units()) -> str:
+    """Whole packs as "count×pack mass" in the shop's mass unit ("2×25"), or "" for a loose addition."""
     if addition.packs is None or addition.pack_kg is None:
         return ""
-    return f"{addition.packs}×{addition.pack_kg:g}"
+    return f"{addition.packs}×{units.mass(addition.pack_kg):.4g}"
 
 
 def money_text(amount: float, places: int = 2, signed: bool = False) -> str:

@@ -8,10 +8,11 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 
 from meltfix.base.errors import InputError
+from meltfix.base.units import Units
 from meltfix.shop.analysis import Analysis, parse_reading
 from meltfix.shop.elements import PPM_ELEMENTS, parse_number
 from meltfix.shop.heat import Heat, unmeasured, validate_heat
@@ -55,6 +56,16 @@ def cell_key(symbol: str) -> str:
     return f"{ANALYSIS}.{symbol}"
 
 
+def mass_field(kg: float | None, units: Units) -> str:
+    """A mass [kg] as its field shows it, in the shop's mass unit; empty for none."""
+    return "" if kg is None else f"{units.mass(kg):g}"
+
+
+def temperature_field(c: float | None, units: Units) -> str:
+    """A temperature [°C] as its field shows it, in the shop's scale; empty for none."""
+    return "" if c is None else f"{units.temperature(c):g}"
+
+
 def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     """Replace the base heat's grade, weights, stage and analysis with the typed inputs.
 
@@ -62,9 +73,13 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     overrides. Every field is checked, so all faults show at once, not one at a time.
     """
     errors: dict[str, str] = {}
-    bath_kg = _weight(inputs.bath_text, BATH, errors, required=True)
-    capacity_kg = _weight(inputs.capacity_text, CAPACITY, errors, required=False)
-    temperature_c = _temperature(inputs.temperature_text, errors)
+    units = book.settings.units  # typed in the shop's units, planned in SI
+    bath_kg = _exact(inputs.bath_text, mass_field(base.bath_kg, units), base.bath_kg,
+                     lambda: _weight(inputs.bath_text, BATH, errors, units, required=True))
+    capacity_kg = _exact(inputs.capacity_text, mass_field(base.capacity_kg, units), base.capacity_kg,
+                         lambda: _weight(inputs.capacity_text, CAPACITY, errors, units, required=False))
+    temperature_c = _exact(inputs.temperature_text, temperature_field(base.temperature_c, units), base.temperature_c,
+                           lambda: _temperature(inputs.temperature_text, errors, units))
     pct: dict[str, float] = {}
     below: set[str] = set()
     declared: set[str] = set()
@@ -105,21 +120,31 @@ def build_heat(base: Heat, inputs: HeatInputs, book: RecipeBook) -> Draft:
     return Draft(heat, {})
 
 
-def _temperature(raw: str, errors: dict[str, str]) -> float | None:
-    text = raw.strip().removesuffix("°C").removesuffix("C").strip()
-    return _positive(text, raw, TEMPERATURE, errors, "a bath temperature in °C") if text else None
+def _exact(raw: str, shown: str, value: float | None, parse: Callable[[], float | None]) -> float | None:
+    """The heat's own value while its field still shows it as written (a bath of 80,000 kg shown
+    as 176370 lb stays 80,000 kg, not 80,000.2); else what ``parse`` reads from the text."""
+    return value if shown and raw.strip() == shown else parse()
 
 
-def _weight(raw: str, key: str, errors: dict[str, str], *, required: bool) -> float | None:
-    text = raw.strip().removesuffix("kg").strip().replace("_", "").replace(" ", "")
+def _temperature(raw: str, errors: dict[str, str], units: Units) -> float | None:
+    scale = units.temperature_unit
+    text = raw.strip().removesuffix(scale).removesuffix(scale[-1]).strip()
+    value = _positive(text, raw, TEMPERATURE, errors, f"a bath temperature in {scale}") if text else None
+    return None if value is None else units.celsius(value)
+
+
+def _weight(raw: str, key: str, errors: dict[str, str], units: Units, *, required: bool) -> float | None:
+    unit = units.mass_unit
+    text = raw.strip().removesuffix(unit).strip().replace("_", "").replace(" ", "")
     if not text:
         if required:
-            errors[key] = "is needed (kg)"
+            errors[key] = f"is needed ({unit})"
         return None
     if _GROUPED.match(text):
-        errors[key] = f"'{raw.strip()}' is ambiguous: write the weight in kg without a thousands separator"
+        errors[key] = f"'{raw.strip()}' is ambiguous: write the weight in {unit} without a thousands separator"
         return None
-    return _positive(text, raw, key, errors, "a weight above 0 kg")
+    value = _positive(text, raw, key, errors, f"a weight above 0 {unit}")
+    return None if value is None else units.kg(value)
 
 
 def _positive(text: str, raw: str, key: str, errors: dict[str, str], what: str) -> float | None:

@@ -10,13 +10,15 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, Label
 
 from meltfix.base.errors import InputError
+from meltfix.base.units import Units
 from meltfix.plan.result import Plan
 from meltfix.shop.elements import parse_number
 from meltfix.tui.widgets.reason import ReasonLine
 
 
 class AddedDialog(ModalScreen[list[tuple[str, float]] | None]):
-    """One field per planned material, filled with the planned kg; Enter on the last one records."""
+    """One field per planned material, filled with the planned amount in the shop's mass unit; Enter
+    on the last one records (in kg)."""
 
     CSS_PATH = "dialogs.tcss"
     BINDINGS = [
@@ -25,17 +27,21 @@ class AddedDialog(ModalScreen[list[tuple[str, float]] | None]):
         Binding("up", "app.focus_previous", "Previous", show=False, id="added.previous"),
     ]
 
-    def __init__(self, plan: Plan) -> None:
+    def __init__(self, plan: Plan, units: Units = Units()) -> None:
         super().__init__()
         self.plan = plan
+        self.units = units
+
+    def _shown(self, kg: float) -> str:
+        return f"{self.units.mass(kg):.1f}"
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog") as box:
-            box.border_title = f"What went into heat {self.plan.heat_id} [kg]"
+            box.border_title = f"What went into heat {self.plan.heat_id} [{self.units.mass_unit}]"
             for number, addition in enumerate(self.plan.additions):
                 with Horizontal(classes="form-row"):
                     yield Label(addition.material, classes="added-label")
-                    yield Input(f"{addition.kg:.1f}", id=f"added-{number}", compact=True, classes="added-kg")
+                    yield Input(self._shown(addition.kg), id=f"added-{number}", compact=True, classes="added-kg")
             yield ReasonLine(id="added-reason", pointer=False)
             yield Label("0 = not added · Enter: next, on the last records · Esc backs out", classes="dialog-help")
 
@@ -51,14 +57,15 @@ class AddedDialog(ModalScreen[list[tuple[str, float]] | None]):
         made: list[tuple[str, float]] = []
         for addition, field in zip(self.plan.additions, fields):
             try:
-                kg = parse_number(field.value or "0", "added", addition.material)
-                if kg < 0:
+                typed = parse_number(field.value or "0", "added", addition.material)
+                if typed < 0:
                     raise InputError("added", addition.material, "must not be negative")
             except InputError as exc:
                 self.query_one(ReasonLine).show(f"{addition.material}: {exc.message}")
                 field.focus()
                 return
-            if kg > 0:
+            if typed > 0:  # the planned amount itself while its field shows it as written
+                kg = addition.kg if field.value.strip() == self._shown(addition.kg) else self.units.kg(typed)
                 made.append((addition.material, kg))
         if not made:
             self.query_one(ReasonLine).show("nothing to record: every amount is 0 (Esc backs out)")

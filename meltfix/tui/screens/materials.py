@@ -57,9 +57,9 @@ class MaterialsDialog(ModalScreen[Heat]):
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        cur = self.book.settings.currency
-        for key, label, width in (("use", "use", 6), ("name", "material", None), ("price", f"{cur}/kg", 8),
-                                  ("stock", "stock kg", 10), ("lock", "locked kg", 10)):
+        cur, mass = self.book.settings.currency, self.book.settings.units.mass_unit
+        for key, label, width in (("use", "use", 6), ("name", "material", None), ("price", f"{cur}/{mass}", 8),
+                                  ("stock", f"stock {mass}", 10), ("lock", f"locked {mass}", 10)):
             table.add_column(label, key=key, width=width)
         for material in self.book.materials:
             table.add_row(*self._cells(material), key=material.name)
@@ -67,7 +67,7 @@ class MaterialsDialog(ModalScreen[Heat]):
 
     def _cells(self, material: Material) -> tuple[Content, str, Text, Text, Text]:
         """One row: on/off/barred, name, then price, stock and lock (a * marks this heat's own value)."""
-        heat, name = self.heat, material.name
+        heat, name, units = self.heat, material.name, self.book.settings.units
         if name in self.book.grade(self.grade).forbidden and name not in heat.locked_kg:
             use = Content.styled("barred", "$foreground-muted")
         elif name in heat.switched_off:
@@ -78,9 +78,9 @@ class MaterialsDialog(ModalScreen[Heat]):
         stock = heat.material_stock_kg(material)
         marks = {key: "*" if name in getattr(heat, field) else " " for key, field in _OVERRIDES.items()}
         return (use, name,
-                Text(money_text(price) + marks["price"], justify="right"),
-                Text(("unlimited" if stock is None else f"{stock:,g}") + marks["stock"], justify="right"),
-                Text(f"{heat.locked_kg[name]:,g}*" if name in heat.locked_kg else "", justify="right"))
+                Text(money_text(units.per_mass(price)) + marks["price"], justify="right"),
+                Text(("unlimited" if stock is None else f"{units.mass(stock):,.6g}") + marks["stock"], justify="right"),
+                Text(f"{units.mass(heat.locked_kg[name]):,.6g}*" if name in heat.locked_kg else "", justify="right"))
 
     def _selected(self) -> Material:
         table = self.query_one(DataTable)
@@ -109,13 +109,18 @@ class MaterialsDialog(ModalScreen[Heat]):
     def action_edit(self, what: str) -> None:
         material = self._selected()
         field = _OVERRIDES[what]
+        units = self.book.settings.units  # typed in the shop's units, kept in SI
+        mass = units.mass_unit
+        shown = units.per_mass if what == "price" else units.mass
+        to_si = units.price_per_kg if what == "price" else units.kg
         current = getattr(self.heat, field).get(material.name)
         questions = {
-            "price": (f"Price of {material.name} for this heat [{self.book.settings.currency}/kg]",
-                      f"empty = the book's {money_text(material.price_per_kg)}"),
-            "stock": (f"Stock of {material.name} for this heat [kg]",
-                      "empty = the book's " + ("unlimited" if material.stock_kg is None else kg_text(material.stock_kg))),
-            "lock": (f"Lock {material.name} at a fixed amount [kg]", "empty = not locked; the plan then chooses"),
+            "price": (f"Price of {material.name} for this heat [{self.book.settings.currency}/{mass}]",
+                      f"empty = the book's {money_text(units.per_mass(material.price_per_kg))}"),
+            "stock": (f"Stock of {material.name} for this heat [{mass}]",
+                      "empty = the book's " + ("unlimited" if material.stock_kg is None
+                                               else kg_text(units.mass(material.stock_kg)))),
+            "lock": (f"Lock {material.name} at a fixed amount [{mass}]", "empty = not locked; the plan then chooses"),
         }
         question, hint = questions[what]
 
@@ -125,7 +130,7 @@ class MaterialsDialog(ModalScreen[Heat]):
             value = parse_number(text, "materials", field)
             if value < 0:
                 raise InputError("materials", field, "must not be negative")
-            return value
+            return to_si(value)
 
         def done(value: object) -> None:
             if value is BACKED_OUT:
@@ -139,7 +144,7 @@ class MaterialsDialog(ModalScreen[Heat]):
                 candidate = candidate.with_changes(switched_off=self.heat.switched_off - {material.name})
             self._apply(candidate, material)
 
-        self.app.push_screen(PromptDialog(material.name, question, "" if current is None else f"{current:g}", parse,
+        self.app.push_screen(PromptDialog(material.name, question, "" if current is None else f"{shown(current):g}", parse,
                                           hint=f"{hint} · Enter accepts · Esc backs out"), done)
 
     def action_reset(self) -> None:

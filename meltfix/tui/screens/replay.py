@@ -32,7 +32,8 @@ from textual.widgets.option_list import Option
 
 from meltfix.base.errors import InputError, visible
 from meltfix.base.paths import demo_dir
-from meltfix.plan.numbers import kg_text
+from meltfix.base.units import Units
+from meltfix.plan.numbers import mass_text, temperature_text
 from meltfix.present.replay_render import (additions_table, chemistry_table, cost_line, fitted_path_chart, hints_table,
                                            plan_renderable, score_renderable)
 from meltfix.records.replay import (HeatRecord, ReplayStep, TrainingScore, element_paths, load_record, parse_entry,
@@ -251,18 +252,19 @@ class ReplayScreen(Screen[None]):
         currency = self.book.settings.currency
         sample = step.sample
         mode = " · TRAINING" if self.training else ""
-        temperature = "" if sample.temperature_c is None else f" · {sample.temperature_c:.0f} °C"
+        units = self.book.settings.units
+        temperature = "" if sample.temperature_c is None else f" · {temperature_text(sample.temperature_c, units)}"
         self._title(f"Heat {record.heat_id} · {grade.name} · sample {sample.sample_id} "
                     f"({self.index + 1} of {len(self.steps)}) · {sample.clock}{temperature} · "
-                    f"bath {kg_text(step.bath_kg)} kg{mode}")
+                    f"bath {mass_text(step.bath_kg, units)}{mode}")
         revealed = self.revealed
         self.query_one("#replay-chemistry", Static).update(
             _framed_lightly(chemistry_table(step, dict(grade.window_pct), outcome=revealed)))
         hidden = Text("hidden until you enter your additions", style="dim italic")
         self.query_one("#replay-plan", Static).update(
-            _framed_lightly(plan_renderable(step, currency)) if revealed else Group("Plan meltfix makes", hidden))
+            _framed_lightly(plan_renderable(step, currency, units)) if revealed else Group("Plan meltfix makes", hidden))
         self.query_one("#replay-actual", Static).update(
-            _framed_lightly(additions_table("Actually added", step.actual, currency)) if revealed
+            _framed_lightly(additions_table("Actually added", step.actual, currency, units)) if revealed
             else Group("Actually added", hidden))
         training = self.query_one("#replay-training")
         training.display = self.training
@@ -272,7 +274,7 @@ class ReplayScreen(Screen[None]):
         if self.training and not revealed:
             self.query_one("#replay-entry", Input).focus()
             self.query_one("#replay-body").scroll_home(animate=False)  # the instructions too, not just the entry
-        self.query_one("#replay-notes", Static).update(self._notes(step, currency) if revealed else "")
+        self.query_one("#replay-notes", Static).update(self._notes(step, currency, units) if revealed else "")
         self._draw_chart()
         self.refresh_bindings()
 
@@ -294,8 +296,8 @@ class ReplayScreen(Screen[None]):
         self._draw_chart()
 
     @staticmethod
-    def _notes(step: ReplayStep, currency: str) -> Group:
-        lines: list[Any] = [_framed_lightly(hints_table(step))] if step.recovery_hints else []
+    def _notes(step: ReplayStep, currency: str, units: Units) -> Group:
+        lines: list[Any] = [_framed_lightly(hints_table(step, units))] if step.recovery_hints else []
         if step.measured_misses:
             lines.append(Text("Next sample misses: " + "; ".join(step.measured_misses), style="red"))
         elif step.next_sample is not None:

@@ -25,14 +25,14 @@ from textual.worker import Worker, WorkerState, get_current_worker
 
 from meltfix.base.errors import InputError
 from meltfix.base.paths import demo_dir
-from meltfix.plan.numbers import cell_text, kg_text
+from meltfix.plan.numbers import cell_text, mass_text, temperature_text
 from meltfix.plan.result import Plan, RiskPlan
 from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.elements import element_sort_key, normalise_symbol
 from meltfix.shop.heat import Heat, load_heat
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.accept import record_accepted
-from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat
+from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat, mass_field, temperature_field
 from meltfix.tui.messages import PlanFailed, PlanReady
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.ticket import print_ticket, write_ticket
@@ -121,9 +121,8 @@ class TrimScreen(Screen[None]):
         with Horizontal(id="body"):
             with VerticalScroll(id="inputs") as inputs:
                 inputs.border_title = "Heat"
-                yield HeatForm(heat.grade, f"{heat.bath_kg:g}",
-                               "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage,
-                               _temperature_text(heat), stages=tuple(self.book.settings.stages), id="form")
+                yield HeatForm(heat.grade, *self._field_texts(heat)[:2], heat.stage, self._field_texts(heat)[2],
+                               stages=tuple(self.book.settings.stages), units=self.book.settings.units, id="form")
                 yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
             yield PlanView(id="plan")
         yield Footer(compact=True, show_command_palette=False)
@@ -138,12 +137,17 @@ class TrimScreen(Screen[None]):
         self.accepted = None
         self.imported = None
         self._sync_bindings()
-        self.query_one(HeatForm).set_values(heat.grade, f"{heat.bath_kg:g}",
-                                            "" if heat.capacity_kg is None else f"{heat.capacity_kg:g}", heat.stage,
-                                            _temperature_text(heat))
+        bath, capacity, temperature = self._field_texts(heat)
+        self.query_one(HeatForm).set_values(heat.grade, bath, capacity, heat.stage, temperature)
         await self._set_rows(heat.grade, _cell_texts(heat))
         self._update_banner()
         self.inputs_changed(base_changed=True)
+
+    def _field_texts(self, heat: Heat) -> tuple[str, str, str]:
+        """Bath, vessel and temperature as their fields show them, in the shop's units."""
+        units = self.book.settings.units
+        return (mass_field(heat.bath_kg, units), mass_field(heat.capacity_kg, units),
+                temperature_field(heat.temperature_c, units))
 
     def _row_specs(self, grade_name: str, texts: Mapping[str, str], extra: frozenset[str] = frozenset()) -> list[CellSpec]:
         """One cell per element of the grade (and its indices), per element with a value, and ``extra``."""
@@ -158,7 +162,8 @@ class TrimScreen(Screen[None]):
     def _update_banner(self, heat: Heat | None = None) -> None:
         """The banner for ``heat`` (default: the base heat): the temperature follows the field."""
         heat = heat or self.base
-        temperature = "" if heat.temperature_c is None else f" · {heat.temperature_c:.0f} °C"
+        units = self.book.settings.units
+        temperature = "" if heat.temperature_c is None else f" · {temperature_text(heat.temperature_c, units)}"
         self.query_one("#banner", Static).update(Content.assemble(
             ("meltfix", "bold"), (f" · {self.book.settings.shop_name}", "$foreground-muted"),
             " · heat ", (heat.heat_id, "bold"), temperature))
@@ -209,7 +214,8 @@ class TrimScreen(Screen[None]):
             return  # made for inputs that have changed since
         self.current = (message.heat, message.plan)
         self.current_risk = message.risk
-        self.query_one(PlanView).show(message.heat, message.plan, self.book.grade(message.heat.grade), message.risk)
+        self.query_one(PlanView).show(message.heat, message.plan, self.book.grade(message.heat.grade), message.risk,
+                                      self.book.settings.units)
 
     @on(PlanFailed)
     def _plan_failed(self, message: PlanFailed) -> None:
@@ -461,10 +467,10 @@ class TrimScreen(Screen[None]):
             except Exception as exc:  # reported, never lost silently
                 self.notify(str(exc), title="Not recorded", severity="error")
                 return
-            lines = ", ".join(f"{material} {kg_text(kg)} kg" for material, kg in made)
+            lines = ", ".join(f"{material} {mass_text(kg, self.book.settings.units)}" for material, kg in made)
             self.notify(f"Heat {plan.heat_id}: {lines}", title="Recorded as added")
 
-        self.app.push_screen(AddedDialog(plan), recorded)
+        self.app.push_screen(AddedDialog(plan, self.book.settings.units), recorded)
 
     def action_ticket(self) -> None:
         if self.current is None:
@@ -526,11 +532,6 @@ def _cell_texts(source: Heat | SpectroSample) -> dict[str, str]:
     """Grid texts for the analysis of a heat or a spectrometer sample."""
     analysis = source.analysis
     return {s: cell_text(s, pct, s in analysis.below_limit) for s, pct in analysis.pct.items()}
-
-
-def _temperature_text(heat: Heat) -> str:
-    """The temperature field's text for a heat: its reading [°C], or empty for none."""
-    return "" if heat.temperature_c is None else f"{heat.temperature_c:g}"
 
 
 def _filled(texts: Mapping[str, str]) -> dict[str, str]:

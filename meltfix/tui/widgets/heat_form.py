@@ -12,6 +12,7 @@ from textual.content import Content
 from textual.message import Message
 from textual.widgets import Input, Label, Static
 
+from meltfix.base.units import Units
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, TEMPERATURE
 from meltfix.tui.widgets.reason import ReasonLine
 
@@ -76,8 +77,10 @@ class HeatForm(Vertical):
     """Grade, bath, capacity, stage and temperature; typing posts Input.Changed, the screen does the rest."""
 
     def __init__(self, grade: str, bath_text: str, capacity_text: str, stage: str, temperature_text: str = "", *,
-                 stages: tuple[str, ...] = ("furnace", "ladle"), id: str | None = None) -> None:
+                 stages: tuple[str, ...] = ("furnace", "ladle"), units: Units = Units(), id: str | None = None) -> None:
         super().__init__(id=id)
+        self._units = units
+        """The shop's units: the fields are typed in them."""
         self._initial = (grade, bath_text, capacity_text, stage, temperature_text)
         self._stages = stages
         """The shop's stages, in its order (shop.toml ``[stage.NAME]``)."""
@@ -89,11 +92,11 @@ class HeatForm(Vertical):
             yield GradeField(grade, id="grade")
         yield ReasonLine(id="reason-grade")
         with Horizontal(classes="form-row"):
-            yield Label("Bath kg", classes="form-label")
+            yield Label(f"Bath {self._units.mass_unit}", classes="form-label")
             yield Input(bath_text, id="bath", compact=True, classes="form-input")
         yield ReasonLine(id="reason-bath")
         with Horizontal(classes="form-row"):
-            yield Label("Vessel kg", classes="form-label")
+            yield Label(f"Vessel {self._units.mass_unit}", classes="form-label")
             yield Input(capacity_text, id="capacity", compact=True, classes="form-input",
                         placeholder="not limited")
         yield ReasonLine(id="reason-capacity")
@@ -101,7 +104,7 @@ class HeatForm(Vertical):
             yield Label("Stage", classes="form-label")
             yield CycleField(self._stages, stage, id="stage")
         with Horizontal(classes="form-row"):
-            yield Label("Temp °C", classes="form-label")
+            yield Label(f"Temp {self._units.temperature_unit}", classes="form-label")
             yield Input(temperature_text, id="temperature", compact=True, classes="form-input",
                         placeholder="no reading")
         yield ReasonLine(id="reason-temperature")

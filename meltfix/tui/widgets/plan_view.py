@@ -14,6 +14,7 @@ from textual.containers import Vertical, VerticalScroll
 from textual.content import Content
 from textual.widgets import Static
 
+from meltfix.base.units import Units
 from meltfix.plan.numbers import content_text, kg_text, limit_text, miss_text, money_text, packs_text, unit_of
 from meltfix.plan.result import Plan, RiskPlan
 from meltfix.shop.grades import Grade
@@ -48,8 +49,9 @@ class PlanView(Vertical):
             yield Static(id="plan-cautions-text")
 
     # -- what the screen calls ------------------------------------------------------------
-    def show(self, heat: Heat, plan: Plan, grade: Grade, risk: RiskPlan | None = None) -> None:
-        """Show a plan that matches the inputs on screen (with its odds against the target, when given)."""
+    def show(self, heat: Heat, plan: Plan, grade: Grade, risk: RiskPlan | None = None, units: Units = Units()) -> None:
+        """Show a plan that matches the inputs on screen (with its odds against the target, when given),
+        masses, costs per ton and temperatures in the shop's ``units``."""
         self.plan, self.is_current = plan, True
         self.remove_class("-stale")
         self.set_class(plan.status != "optimal", "-closest")
@@ -65,8 +67,8 @@ class PlanView(Vertical):
                                       " · the grade cannot be met, see why below")
         self.query_one("#plan-status", Static).update(status)
         self.why_not.say(None)
-        self.query_one("#plan-additions", Static).update(_additions_table(plan))
-        self.query_one("#plan-totals", Static).update(_totals(plan))
+        self.query_one("#plan-additions", Static).update(_additions_table(plan, units))
+        self.query_one("#plan-totals", Static).update(_totals(plan, units))
         out = self.query_one("#plan-out-of-reach", Static)
         out.update(_out_of_reach(plan))
         out.display = bool(plan.violations)
@@ -107,30 +109,31 @@ class PlanView(Vertical):
         return self.query_one("#plan-why-not", WhyNot)
 
 
-def _additions_table(plan: Plan) -> Table:
+def _additions_table(plan: Plan, units: Units) -> Table:
     cur = plan.currency
     # No rule under the header: at 80x24 that row is worth more to the additions themselves.
     table = Table(box=None, expand=True, padding=(0, 1), pad_edge=False, show_edge=False,
                   header_style="bold underline")
     table.add_column("Add", ratio=1, overflow="fold")
-    table.add_column("kg (packs)", justify="right", no_wrap=True)
+    table.add_column(f"{units.mass_unit} (packs)", justify="right", no_wrap=True)
     table.add_column(cur, justify="right", no_wrap=True)
     for addition in plan.additions:
-        packs = packs_text(addition)
-        table.add_row(Text(addition.material), kg_text(addition.kg) + (f" ({packs})" if packs else ""),
+        packs = packs_text(addition, units)
+        table.add_row(Text(addition.material), kg_text(units.mass(addition.kg)) + (f" ({packs})" if packs else ""),
                       money_text(addition.cost))
     if not plan.additions:
         table.add_row("nothing to add", "", "")
     return table
 
 
-def _totals(plan: Plan) -> Content:
+def _totals(plan: Plan, units: Units) -> Content:
     cur = plan.currency
+    mass = units.mass_unit
     return Content.assemble(
         ("Total ", "bold"), (f"{money_text(plan.total_cost)} {cur}", "bold"),
-        f" · {money_text(plan.cost_per_t)} {cur}/t\n",
-        (f"bath +{kg_text(plan.added_kg)} kg → {kg_text(plan.final_kg)} kg · {-plan.temperature_drop_c:+.1f} °C",
-         "$foreground-muted"),
+        f" · {money_text(units.per_ton(plan.cost_per_t))} {cur}/{units.ton_unit}\n",
+        (f"bath +{kg_text(units.mass(plan.added_kg))} {mass} → {kg_text(units.mass(plan.final_kg))} {mass} · "
+         f"{units.temperature_change(-plan.temperature_drop_c):+.1f} {units.temperature_unit}", "$foreground-muted"),
     )
 
 
