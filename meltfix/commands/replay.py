@@ -1,7 +1,7 @@
 """`meltfix replay RECORD [--json] [--recipes DIR]`: a recorded heat beside the plans meltfix would make.
 
 `meltfix replay --heat ID [--logbook PATH]` replays a heat from the logbook instead of a file
-(its samples and the additions actually made; see meltfix.records.replay.record_from_history).
+(its samples and the additions actually made; see meltfix.records.heat_record.record_from_history).
 
 ``--json`` prints one object ``{"heat": ID, "steps": [{"sample", "planned", "actual", "predicted",
 "measured_next", "planned_cost", "actual_cost", ...}], ...}`` (see ReplayStep.to_json for every field).
@@ -11,7 +11,7 @@ every limit at the shop's target odds (as the risk planner judges it) gets no pl
 ``"planned_total"`` is meltfix along the same path, its plan at ``"first_needed"`` (the plans of
 later samples replace it, so they are not added), against ``"actual_total"``. Exit 0 whether or not
 the heat met its grade (a replay reports history); 2 for a bad record or recipe book.
-The record format is described in meltfix.records.replay's docstring.
+The record format is described in meltfix.records.heat_record's docstring.
 """
 
 from __future__ import annotations
@@ -24,7 +24,7 @@ from meltfix.base.errors import InputError
 from meltfix.commands.logbook_args import LOGBOOK_HELP, given_logbook
 
 if TYPE_CHECKING:
-    from meltfix.records.replay import HeatRecord
+    from meltfix.records.heat_record import HeatRecord
     from meltfix.shop.recipes import RecipeBook
 
 
@@ -78,7 +78,7 @@ def run(args: argparse.Namespace) -> int:
 
 def _record(args: argparse.Namespace, book: RecipeBook) -> HeatRecord:
     """The heat to replay: the record file, or the heat's history in the logbook."""
-    from meltfix.records.replay import load_record, record_from_history
+    from meltfix.records.heat_record import load_record, record_from_history
 
     if args.record:
         return load_record(args.record, book)

@@ -17,7 +17,8 @@ from meltfix.base.units import Units
 from meltfix.plan.numbers import (content_text, kg_text, limit_text, margin_text, mass_text, money_text, recovery_text,
                                   temperature_text)
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition
-from meltfix.records.replay import ActualAddition, ElementPath, ReplayStep, TrainingScore, summarise
+from meltfix.records.replay import ActualAddition, ElementPath, ReplayStep, summarise
+from meltfix.records.training import TrainingScore
 from meltfix.shop.elements import element_sort_key
 
 # Longest and shortest bar of the chemistry path chart [characters]: the longest reads best, the

@@ -12,7 +12,7 @@ unknown, ``M2 = M2cat + a_j x_j (r_j - rcat_j)``. The balance is then exactly li
 
 so with no analysis error ``D / A`` is the true recovery exactly. The bath at the first sample is
 the one the heat's first plan was made for; later baths grow by the catalogue mass balance, as in
-the replay (:func:`meltfix.records.replay.record_from_history`). Where the catalogue is off for the other
+the replay (:func:`meltfix.records.heat_record.record_from_history`). Where the catalogue is off for the other
 materials or for this material's other elements too, the bath mass is off by a few kg in tens of tonnes, moving ``D / A`` by about ``c2`` times that
 error over ``A``: far less than the analysis error.
 
@@ -54,8 +54,8 @@ from meltfix.base.errors import InputError
 from meltfix.plan.massbalance import bath_after
 from meltfix.plan.uncertainty import R_TO_SIGMA
 from meltfix.readers.export_layout import ExportLayout
+from meltfix.records.heat_record import HeatRecord, record_from_history
 from meltfix.records.logbook import Logbook
-from meltfix.records.replay import HeatRecord, record_from_history
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.elements import element_sort_key
 from meltfix.shop.materials import Material

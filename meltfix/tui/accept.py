@@ -1,7 +1,7 @@
 """Accepting a plan: the sample it answers goes into the logbook first, then the plan itself.
 
 Without its samples a heat recorded from the screen could not be replayed
-(``meltfix.records.replay.record_from_history`` starts from the first sample). Free of Textual, like
+(``meltfix.records.heat_record.record_from_history`` starts from the first sample). Free of Textual, like
 ``draft.py``, so the rules are plain functions.
 """
 

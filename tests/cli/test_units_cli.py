@@ -113,7 +113,7 @@ def test_replay_in_pounds_and_fahrenheit_for_a_us_shop(capsys: pytest.CaptureFix
     assert main(["replay", str(record), "--recipes", str(us)]) == 0
     out = " ".join(capsys.readouterr().out.replace("│", " ").split())
     # The record's first sample: 80,000 kg at its temperature, read in lb and °F (NIST SP 811 factors).
-    from meltfix.records.replay import load_record
+    from meltfix.records.heat_record import load_record
 
     first = load_record(record, load_recipes(us)).samples[0]
     assert f"bath {80_000 / KG_PER_LB:,.0f} lb" in out

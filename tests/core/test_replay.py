@@ -11,8 +11,9 @@ import pytest
 from meltfix.base.errors import InputError
 from meltfix.base.paths import demo_dir
 from meltfix.plan.risk import RiskPlanner
-from meltfix.records.replay import (element_paths, load_record, parse_entry, parse_record, replay, replay_json,
-                                    score_entry, summarise)
+from meltfix.records.heat_record import load_record, parse_record
+from meltfix.records.replay import element_paths, replay, replay_json, summarise
+from meltfix.records.training import parse_entry, score_entry
 from meltfix.shop.recipes import RecipeBook, load_recipes
 
 RECORDS = sorted((demo_dir() / "records").glob("*.toml"))

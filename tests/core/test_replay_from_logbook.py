@@ -9,8 +9,9 @@ import pytest
 
 from meltfix.base.errors import InputError
 from meltfix.plan.planner import Planner
+from meltfix.records.heat_record import record_from_history
 from meltfix.records.logbook import Logbook
-from meltfix.records.replay import record_from_history, replay
+from meltfix.records.replay import replay
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook

@@ -188,7 +188,7 @@ def test_a_heat_without_a_stage_is_at_the_shops_default_stage(book: RecipeBook, 
     assert load_heat(DEMO / "KB-24103.toml", first).stage == "lf"  # a stage the file names wins
     assert ShopSettings().heat_stage == "furnace"  # no [stage.*]: furnace, then ladle
     # The recorded heats of `meltfix replay` read the same default.
-    from meltfix.records.replay import load_record
+    from meltfix.records.heat_record import load_record
 
     record = tmp_path / "R1.toml"
     record.write_text((ROOT / "demo" / "records" / "KB-24211.toml").read_text(encoding="utf-8")

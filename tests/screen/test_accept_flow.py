@@ -10,8 +10,9 @@ from textual.widgets import Input
 from meltfix.base.paths import demo_dir
 from meltfix.plan.planner import Planner
 from meltfix.readers.spectro import read_export
+from meltfix.records.heat_record import record_from_history
 from meltfix.records.logbook import Logbook
-from meltfix.records.replay import record_from_history, replay
+from meltfix.records.replay import replay
 from meltfix.tui.accept import record_accepted
 from meltfix.tui.app import make_app
 from meltfix.tui.screens.trim import TrimScreen

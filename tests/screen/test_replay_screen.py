@@ -11,7 +11,7 @@ from textual.widget import Widget
 from textual.widgets import Input, Static
 
 from meltfix.base.paths import demo_dir
-from meltfix.records.replay import load_record
+from meltfix.records.heat_record import load_record
 from meltfix.shop.recipes import load_recipes
 from meltfix.tui.screens.replay import ReplayScreen
 

@@ -81,7 +81,7 @@ async def test_the_replay_screen_of_a_us_shop_reads_pounds_and_fahrenheit(us_boo
     from textual.widgets import Static
 
     from meltfix.base.paths import demo_dir
-    from meltfix.records.replay import load_record
+    from meltfix.records.heat_record import load_record
     from meltfix.tui.screens.replay import ReplayScreen
 
     record = load_record(demo_dir() / "records" / "KB-24211.toml", us_book)

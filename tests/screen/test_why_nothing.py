@@ -10,7 +10,7 @@ from textual.screen import Screen
 from textual.widgets import Input, Label, Static
 
 from meltfix.base.paths import demo_dir
-from meltfix.records.replay import load_record
+from meltfix.records.heat_record import load_record
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.app import make_app

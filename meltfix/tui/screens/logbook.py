@@ -31,10 +31,10 @@ from textual.worker import Worker, WorkerState, get_current_worker
 from meltfix.base.errors import InputError
 from meltfix.base.units import Units
 from meltfix.plan.numbers import content_text, mass_text, money_text, temperature_text, unit_of
+from meltfix.records.heat_record import record_from_history
 from meltfix.records.logbook import (AdditionsRecord, HeatEvent, HeatHistory, HeatSummary, LineRecord, Logbook,
                                      PlanRecord, SampleRecord, ServerURL, Shift, default_logbook_path, event_time)
 from meltfix.records.logbook.location import LogbookLocation
-from meltfix.records.replay import record_from_history
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.screens.replay import ReplayScreen

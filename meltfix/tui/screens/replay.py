@@ -36,8 +36,9 @@ from meltfix.base.units import Units
 from meltfix.plan.numbers import mass_text, temperature_text
 from meltfix.present.replay_render import (additions_table, chemistry_table, cost_line, fitted_path_chart, hints_table,
                                            plan_renderable, score_renderable)
-from meltfix.records.replay import (HeatRecord, ReplayStep, TrainingScore, element_paths, load_record, parse_entry,
-                                    replay, score_entry)
+from meltfix.records.heat_record import HeatRecord, load_record
+from meltfix.records.replay import ReplayStep, element_paths, replay
+from meltfix.records.training import TrainingScore, parse_entry, score_entry
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
 from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
