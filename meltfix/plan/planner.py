@@ -22,9 +22,11 @@ import numpy as np
 
 from meltfix.base.errors import InputError
 from meltfix.plan.cautions import BathState, plan_cautions
+from meltfix.plan.heat_load import HeatLoad, load_of
+from meltfix.plan.hot_model import HotModel, Solution
 from meltfix.plan.massbalance import bath_after, temperature_drop_c
 from meltfix.plan.numbers import degrees_text, temperature_text
-from meltfix.plan.plan_model import HeatLoad, HotModel, ModelShape, Solution
+from meltfix.plan.plan_model import ModelShape
 from meltfix.plan.reasons import explain_violation
 from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition,
                                  limit_checks)
@@ -56,8 +58,11 @@ class Planner:
     hot HiGHS model of that shape from a pool (building one when all are busy) and gives it back.
     """
 
-    def __init__(self, book: RecipeBook) -> None:
+    def __init__(self, book: RecipeBook, prune: bool = True) -> None:
         self.book = book
+        self.prune = prune
+        """Shut the materials no cheapest plan needs before solving (meltfix.plan.dominance); off only
+        in the test that pruning changes no plan's cost."""
         self._lock = threading.Lock()
         # Keyed by grade, stage, mode and the elements declared not measured (their limits are no rows).
         self._shapes: dict[tuple[str, str, bool, bool, frozenset[str]], ModelShape] = {}
@@ -89,7 +94,7 @@ class Planner:
         budget_s = options.time_limit_s if options.time_limit_s is not None else settings.plan_time_limit_s
         deadline = time.monotonic() + _SEARCH_SHARE * budget_s
         with self._model(heat, options) as model:
-            load = model.shape.load(heat, penalty)
+            load = load_of(model.shape, heat, penalty, self.prune)
             model.load(load)
             solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options)
             least = None
@@ -110,19 +115,7 @@ class Planner:
         # The status is the re-check's, on every path: a solver's "optimal" at a bath so small that
         # its tolerances matter, or after the minimums are cleaned, is judged like any other plan.
         missed = [check for check in checks if check.margin_pct < -LIMIT_TOL_PCT]
-        violations: list[Violation] = []
-        if missed:
-            # The reasons are read from the least-violation plan: it shows which limit stops the
-            # heat getting closer.
-            least_used = _additions(shape, load, least.x)[1] if least is not None else used
-            least_final_kg = recheck(heat, grade, least_used, book.settings)[0]
-            least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
-            for check in missed:
-                reason = explain_violation(check.element, check.limit, heat, book, load.usable, least_used,
-                                           least_final_kg, bool(load.packed.any()), least_drop,
-                                           heat.drop_limit_c(book.settings))
-                violations.append(Violation(check.element, check.limit, check.limit_pct,
-                                            check.predicted_pct, -check.margin_pct, reason))
+        violations = self._violations(heat, shape, load, missed, least.x if least is not None else None, used)
         binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
         notes = load.notes
         units = book.settings.units  # notes are read by people: in the shop's units
@@ -171,6 +164,27 @@ class Planner:
         )
 
 
+    def _violations(self, heat: Heat, shape: ModelShape, load: HeatLoad, missed: Sequence[LimitCheck],
+                    least_x: np.ndarray | None, used: list[tuple[Material, float]]) -> list[Violation]:
+        """Each missed limit with its reason, read from the least-violation plan (``least_x``, when
+        the closest-plan phases ran): it shows which limit stops the heat getting closer."""
+        if not missed:
+            return []
+        book = self.book
+        least_used = _additions(shape, load, least_x)[1] if least_x is not None else used
+        least_final_kg = recheck(heat, shape.grade, least_used, book.settings)[0]
+        least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
+        usable = tuple(shape.materials[j] for j in load.can_use.nonzero()[0])
+        violations = []
+        for check in missed:
+            reason = explain_violation(check.element, check.limit, heat, book, usable, least_used,
+                                       least_final_kg, bool(load.packed.any()), least_drop,
+                                       heat.drop_limit_c(book.settings))
+            violations.append(Violation(check.element, check.limit, check.limit_pct,
+                                        check.predicted_pct, -check.margin_pct, reason))
+        return violations
+
+
 @dataclass(frozen=True)
 class _Temperature:
     liquidus_c: float
@@ -211,10 +225,13 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     materials it took more rounds than the smaller searches saved.)
     """
     shape = model.shape
-    model.set_bounds(lower, upper)
+    if lower is not load.col_lower or upper is not load.col_upper:  # model.load wrote the load's own
+        model.set_bounds(lower, upper)
     relaxed = model.solve_lp()
     if relaxed is None:
         return None
+    if not load.integer:  # nothing to round: the relaxation is the plan
+        return relaxed
     point = _integer_point(shape, load, relaxed.x)
     if point is not None:
         return replace(relaxed, x=point)
@@ -230,7 +247,7 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     if point is None:  # off whole packs beyond the tolerance: _additions rounds it, the re-check judges
         return found
     lower, upper = lower.copy(), upper.copy()
-    lower[fixed] = upper[fixed] = np.round(point[fixed])
+    lower[fixed] = upper[fixed] = np.rint(point[fixed])
     model.set_bounds(lower, upper)
     polished = model.solve_lp()
     return replace(found, x=point) if polished is None else replace(polished, proven=found.proven, gap=found.gap)
@@ -240,12 +257,12 @@ def _integer_point(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> np.ndarr
     """``x`` as an integer point when it already has whole packs and every addition at zero or at
     least its minimum (the on/off binaries then follow the masses); None otherwise."""
     packs = x[shape.col_mat][load.packed]
-    if np.any(np.abs(packs - np.round(packs)) > _INTEGRALITY_TOL):
+    if (np.abs(packs - np.rint(packs)) > _INTEGRALITY_TOL).any():
         return None
     switchable = shape.switchable
     kg = x[shape.col_mat][switchable] * shape.scale[switchable]
     on = (kg > _INTEGRALITY_TOL) & load.switched[switchable]
-    if np.any(on & (kg < shape.min_kg[switchable] - _INTEGRALITY_TOL)):
+    if (on & (kg < shape.min_kg[switchable] - _INTEGRALITY_TOL)).any():
         return None
     point = x.copy()
     point[shape.col_switch] = on
@@ -257,7 +274,8 @@ def _closest(model: HotModel, load: HeatLoad, bath_kg: float, deadline: float,
     """Elastic windows on the same hot model: least total violation first (relative to each
     limit), then cost. Returns the closest plan and the least-violation plan it started from."""
     shape = model.shape
-    upper = load.col_upper.copy()
+    # Every usable material open: the dominated ones were shut on the rows with their limits kept.
+    upper = load.col_upper_all.copy()
     upper[shape.col_slack] = np.where(load.active, math.inf, 0.0)
     # Violation weight: kilograms outside a limit relative to the limit's own mass in the bath.
     # The solver minimises it multiplied by the bath: the weights per kg of a 50 t bath are so
@@ -302,8 +320,8 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     duals: Solution | None = solution
     if solution.row_dual is None:
         model.load(load)  # undo anything the closest-plan phases changed
-        lower, upper = load.col_lower.copy(), load.col_upper.copy()
-        lower[fixed] = upper[fixed] = np.round(solution.x[fixed])
+        lower, upper = load.col_lower.copy(), load.col_upper_all.copy()
+        lower[fixed] = upper[fixed] = np.rint(solution.x[fixed])
         model.set_bounds(lower, upper)
         duals = model.solve_lp()
     if duals is None or duals.row_dual is None or duals.col_dual is None:
@@ -311,12 +329,12 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     # HiGHS's duals are d(cost) / d(row bound); loosening a "<=" row raises its bound.
     saving = -duals.row_dual
     bindings: list[Binding] = []
-    for k, row in enumerate(shape.window_rows):
-        # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
-        worth = saving[shape.windows.first + k] * final_kg * 1e-4
-        if worth > 1e-6:
-            bindings.append(Binding(f"{row.element} {row.limit} {row.limit_pct:g} %", worth,
-                                    f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
+    # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
+    limit_worth = saving[shape.windows.span] * final_kg * 1e-4
+    for k in (limit_worth > 1e-6).nonzero()[0]:
+        row = shape.window_rows[k]
+        bindings.append(Binding(f"{row.element} {row.limit} {row.limit_pct:g} %", float(limit_worth[k]),
+                                f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
     capacity = saving[shape.capacity.first] * 1000.0
     if capacity > 1e-6:
         bindings.append(Binding("vessel capacity", capacity, "1 t more free capacity"))
@@ -324,14 +342,14 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     if temperature > 1e-6:
         bindings.append(Binding("temperature drop limit", temperature, "1 °C more allowed drop"))
     upper_saving = -duals.col_dual[shape.col_mat] / shape.scale
-    for j in np.flatnonzero(upper_saving > 1e-6):
+    for j in (upper_saving > 1e-6).nonzero()[0]:
         # A lock is a choice, not a shortage; a pack count fixed for this LP is not the stock.
         if load.col_lower[j] != load.col_upper[j] and not fixed[j]:
             bindings.append(Binding(f"stock of {shape.materials[j].name}", float(upper_saving[j]), "1 kg more in stock"))
-    for t, symbol in enumerate(shape.aim_elements):
-        worth = saving[shape.aims.first + t] * final_kg * 1e-4  # saving from raising the aim by 0.01 %
-        if abs(worth) > 1e-6:
-            bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {'higher' if worth > 0 else 'lower'} aim"))
+    aim_worth = saving[shape.aims.span] * final_kg * 1e-4  # saving from raising each aim by 0.01 %
+    for t in (np.abs(aim_worth) > 1e-6).nonzero()[0]:
+        symbol, worth = shape.aim_elements[t], float(aim_worth[t])
+        bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {'higher' if worth > 0 else 'lower'} aim"))
     return tuple(sorted(bindings, key=lambda b: -b.saving))
 
 
@@ -339,17 +357,18 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
     """The plan's lines from a solver point: masses [kg] (whole packs rounded exactly, locked amounts
     as locked, every minimum held exactly), costs."""
     v = x[shape.col_mat]
-    kg = np.where(v * shape.scale > 1e-6, v * shape.scale, 0.0)
-    kg = np.where(load.packed, np.round(v) * shape.scale, kg)
-    short = load.switched & (kg > 0) & (kg < shape.min_kg)
-    kg = np.where(short, np.where(kg >= shape.min_kg * (1 - _MINIMUM_SNAP), shape.min_kg, 0.0), kg)
+    kg = np.where(load.packed, np.rint(v), v) * shape.scale
+    kg[kg <= 1e-6] = 0.0
+    if load.switched.any():
+        short = load.switched & (kg > 0) & (kg < shape.min_kg)
+        kg[short] = np.where(kg[short] >= shape.min_kg[short] * (1 - _MINIMUM_SNAP), shape.min_kg[short], 0.0)
     kg = np.where(np.isnan(load.locked_kg), kg, load.locked_kg)
     additions = []
     used: list[tuple[Material, float]] = []
-    for j in np.flatnonzero(kg > 0):
-        material = shape.materials[j]
-        additions.append(addition(material, float(kg[j]), float(load.prices[j]), bool(load.packed[j])))
-        used.append((material, float(kg[j])))
+    for j in (kg > 0).nonzero()[0].tolist():
+        material, amount = shape.materials[j], float(kg[j])
+        additions.append(addition(material, amount, float(load.prices[j]), bool(load.packed[j])))
+        used.append((material, amount))
     return additions, used
 
 

@@ -1,0 +1,281 @@
+"""What one heat writes into a model (meltfix.plan.plan_model): bounds, costs, integrality and the few
+coefficients that move with the heat, worked out from the heat, the recipe book and the model's shape.
+
+Read top to bottom: the analysis as the rows see it, the row bounds, each material on this heat,
+the column bounds, the on/off rows, and last the materials no cheapest plan needs (meltfix.plan.dominance),
+shut before solving.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from meltfix.plan.deoxidation import oxygen_notes
+from meltfix.plan.dominance import HeatMaterials, dominated, most_kg
+from meltfix.plan.numbers import degrees_text, mass_text, temperature_text
+from meltfix.plan.plan_model import AIM_PENALTY_PER_KG, ModelShape
+from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg,
+                                    unbound_sulphur_pct)
+from meltfix.shop.heat import Heat
+
+_INF = math.inf
+
+
+@dataclass(frozen=True)
+class HeatLoad:
+    """What one heat writes into a model: bounds, costs, integrality and the few moving coefficients."""
+
+    col_lower: np.ndarray
+    col_upper: np.ndarray
+    """With the dominated materials shut (meltfix.plan.dominance): for the model with its windows kept."""
+    col_upper_all: np.ndarray
+    """Every usable material open: for the closest-plan phases, whose windows are elastic."""
+    cost: np.ndarray
+    row_lower: np.ndarray
+    row_upper: np.ndarray
+    integrality: np.ndarray
+    """1 for an integer column, 0 for a continuous one."""
+    coefficients: tuple[tuple[int, int, float], ...]
+    """(row, column, value) changes on top of the shape's fixed matrix."""
+    packed: np.ndarray
+    """Per material: counted in whole packs on this heat (not locked, not --continuous)."""
+    switched: np.ndarray
+    """Per material: has an on/off choice on this heat (a minimum addition, not locked)."""
+    locked_kg: np.ndarray
+    """Per material: the locked amount [kg], NaN when not locked."""
+    prices: np.ndarray
+    """Per material: this heat's price [currency/kg]."""
+    active: np.ndarray
+    """Per window row: the limit applies on this heat (a 0 % floor applies only to a deoxidation debt)."""
+    can_use: np.ndarray
+    """Per material: this heat may receive it (allowed at the stage, not switched off, not forbidden)."""
+    pruned: np.ndarray
+    """Per material: dominated on this heat, so shut in ``col_upper``."""
+    notes: tuple[str, ...]
+
+    @property
+    def integer(self) -> bool:
+        """Whether this heat has any whole packs or on/off choice at all (else its plan is one LP)."""
+        return bool(self.packed.any() or self.switched.any())
+
+
+@dataclass(frozen=True)
+class _Columns:
+    """One heat's view of the book's materials, one entry per material column."""
+
+    prices: np.ndarray
+    stock: np.ndarray
+    """[kg], inf = unlimited."""
+    locked_kg: np.ndarray
+    """NaN where not locked."""
+    can_use: np.ndarray
+    packed: np.ndarray
+    switched: np.ndarray
+
+
+def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True) -> HeatLoad:
+    """Bounds, costs and moving coefficients for ``heat``; ``prune`` shuts the dominated materials
+    (off only to check that pruning changes no plan's cost)."""
+    notes: list[str] = []
+    now, now_low, owed = _analysis_now(shape, heat, notes)
+    row_lower = np.full(shape.n_rows, -_INF)
+    row_upper = np.full(shape.n_rows, _INF)
+    # Every window row applies but a 0 % floor, which binds only an element in debt.
+    active = np.array([s is None or s in owed for s in shape.floor_symbol], dtype=bool)
+    upper = heat.bath_kg * (shape.window_bounds @ np.concatenate((now_low, now)) + shape.window_constant)
+    row_upper[shape.windows.span] = np.where(active, upper, _INF)
+    coefficients, reheat_max_c, reheat_cost = _row_bounds(shape, heat, now, row_lower, row_upper, notes)
+    columns = _material_load(shape, heat)
+    col_lower, col_upper = _column_bounds(shape, columns, reheat_max_c)
+    switch_most_kg = _switch_rows(shape, heat, columns, row_upper, coefficients)
+    pruned = np.zeros(shape.n_materials, dtype=bool)
+    col_upper_all = col_upper
+    if prune and not shape.pairs.empty:
+        pruned = _dominated(shape, heat, columns, col_upper, row_upper, switch_most_kg)
+        col_upper = col_upper.copy()
+        col_upper[shape.col_mat][pruned] = 0.0
+        col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
+
+    cost = np.zeros(shape.n_cols)
+    cost[shape.col_mat] = columns.prices * shape.scale
+    cost[shape.col_up] = cost[shape.col_down] = AIM_PENALTY_PER_KG * aim_penalty
+    cost[shape.col_reheat] = reheat_cost
+    integrality = np.zeros(shape.n_cols)
+    integrality[shape.col_mat] = columns.packed
+    integrality[shape.col_switch] = 1
+    return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, integrality, tuple(coefficients),
+                    columns.packed, columns.switched, columns.locked_kg, columns.prices, active, columns.can_use,
+                    pruned, tuple(notes))
+
+
+def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.ndarray, np.ndarray, dict[str, float]]:
+    """The analysis over the model's elements as fractions: as read, with below-limit readings at 0,
+    and the contents owed to deoxidation and treatment (notes say what these took)."""
+    pct = heat.analysis.pct
+    now = np.array([pct.get(s, 0.0) / 100.0 for s in shape.elements])
+    # A value below the detection limit is at most the limit: take it at the limit against a
+    # maximum and at zero against a minimum, so the plan is safe whatever the true value.
+    below = heat.analysis.below_limit
+    now_low = np.array([0.0 if s in below else v for s, v in zip(shape.elements, now)])
+    # Aluminium the dissolved oxygen binds, and magnesium the sulphur binds and fade takes, are
+    # gone before any stays in the bath: the row starts lower by them (below 0 % is a debt the
+    # additions pay first), still linear.
+    owed = dict(contents_owed_pct(heat, shape.grade, shape.book.settings))
+    if owed:
+        debt = np.array([owed.get(s, 0.0) / 100.0 for s in shape.elements])
+        now, now_low = now - debt, now_low - debt
+        notes += oxygen_notes(heat, shape.grade, {s: pct for s, pct in owed.items() if s == "Al"}, shape.book.settings.units)
+        if "Mg" in owed:
+            notes.append(_treatment_note(shape, heat))
+    elif heat.dissolved_o_ppm:
+        notes += oxygen_notes(heat, shape.grade, {}, shape.book.settings.units)
+    return now, now_low, owed
+
+
+def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.ndarray, row_upper: np.ndarray,
+                notes: list[str]) -> tuple[list[tuple[int, int, float]], float, float]:
+    """The bounds of every row but the windows and the on/off rows; returns the moving coefficients,
+    the most arc heating [°C] and its cost [currency per °C]."""
+    settings, bath = shape.book.settings, heat.bath_kg
+    if heat.capacity_kg is not None:
+        row_upper[shape.capacity.first] = heat.capacity_kg - bath
+    max_drop = heat.drop_limit_c(settings)
+    if max_drop is not None:
+        row_upper[shape.temperature.first] = max_drop * bath
+    reheat_max_c, reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
+    row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
+    unlisted_now = np.array([heat.analysis.pct.get(s, 0.0) / 100.0 for s in shape.unlisted])
+    row_upper[shape.unlisted_rows.span] = -bath * unlisted_now
+    rise = settings.max_unlisted_rise_pct / 100.0
+    # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
+    # the same heat then gives the same plan to the last digit on a new model and a used one.
+    coefficients = list(zip(shape.unlisted_rows.rows, [shape.col_mass] * len(shape.unlisted),
+                            (-np.maximum(unlisted_now + rise, 1e-8)).tolist()))
+    coefficients += [(shape.temperature.first, shape.col_reheat, -bath),
+                     (shape.superheat.first, shape.col_reheat, bath),
+                     (shape.superheat.first, shape.col_mass, superheat)]
+    for t, symbol in enumerate(shape.aim_elements):
+        k = shape.row_of[symbol]
+        row_lower[shape.aims.first + t] = row_upper[shape.aims.first + t] = \
+            -bath * (now[k] - shape.grade.aim_pct[symbol] / 100.0)
+    return coefficients, reheat_max_c, reheat_cost
+
+
+def _temperature_load(shape: ModelShape, heat: Heat, row_lower: np.ndarray, notes: list[str]
+                      ) -> tuple[float, float, float]:
+    """The heat's arc heating (most [°C], cost [currency per °C]) and the superheat row: its lower
+    bound goes in ``row_lower``; returns also the row's coefficient of M (T0 - S - base)."""
+    settings = shape.book.settings
+    stage = settings.stages.get(heat.stage)
+    reheat_max_c, reheat_cost = 0.0, 0.0
+    if stage is not None and stage.can_reheat:
+        reheat_max_c, reheat_cost = stage.reheat_max_c, stage.reheat_cost_per_c * heat.bath_kg / 1000.0
+    if heat.temperature_c is None:
+        return reheat_max_c, reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
+    superheat = settings.superheat_c
+    # Below-limit readings at 0: the safe end for a liquidus (less solute, a higher liquidus).
+    now_liquidus = shape.liquidus.liquidus_c(heat.analysis.lowest_pct)
+    lower = -heat.bath_kg * (shape.liquidus.base_c - now_liquidus)
+    # A bath already short of liquidus + superheat may not get worse (nor is adding nothing made
+    # impossible): what the heating cannot make up is forgiven, and said.
+    short_c = now_liquidus + superheat - heat.temperature_c - reheat_max_c
+    if short_c > 0:
+        lower -= heat.bath_kg * short_c
+        units = settings.units
+        notes.append(f"the bath is {degrees_text(now_liquidus + superheat - heat.temperature_c, units)} short of "
+                     f"liquidus {temperature_text(now_liquidus, units)} + superheat {degrees_text(superheat, units)} "
+                     "already; the plan may not make it worse")
+    row_lower[shape.superheat.first] = lower
+    coefficient = heat.temperature_c - superheat - shape.liquidus.base_c
+    # Floored away from 0 so HiGHS keeps the matrix's structure (it deletes a 0 coefficient).
+    return reheat_max_c, reheat_cost, coefficient if abs(coefficient) > 1e-8 else 1e-8
+
+
+def _treatment_note(shape: ModelShape, heat: Heat) -> str:
+    """How many kg of magnesium go to MgS and to fade, and what that takes of the richest
+    nodulariser in the book."""
+    settings = shape.book.settings
+    bath = heat.bath_kg
+    s_pct = unbound_sulphur_pct(heat)  # the S the Mg read has bound already is not charged again
+    to_sulphide = bath * magnesium_for_sulphur_pct(s_pct) / 100.0
+    to_fade = bath * magnesium_fade_pct(settings) / 100.0
+    unbound = "" if s_pct == heat.analysis.get("S") else " not yet bound by the Mg read"
+    units = settings.units
+    note = (f"{mass_text(to_sulphide, units)} of Mg goes to MgS (S {s_pct:.4g} %{unbound}) and "
+            f"{mass_text(to_fade, units)} to fade "
+            f"({settings.treatment_to_pour_min:g} min to pour at {settings.mg_fade_pct_per_min:g} % per min) "
+            "before any stays in the bath")
+    carriers = [m for m in shape.materials if m.composition_pct.get("Mg", 0.0) > 0]
+    if carriers:
+        richest = max(carriers, key=lambda m: m.composition_pct["Mg"] * m.recovery.get("Mg", 1.0))
+        note += f"; about {mass_text(nodulariser_kg(to_sulphide + to_fade, richest), units)} of {richest.name} for these"
+    return note
+
+
+def _material_load(shape: ModelShape, heat: Heat) -> _Columns:
+    """This heat's view of every material: the book's values with the heat's overrides."""
+    prices, stock = shape.book_prices.copy(), shape.book_stock.copy()
+    for name, value in heat.price_per_kg.items():
+        prices[shape.column_of[name]] = value
+    for name, value in heat.stock_kg.items():
+        stock[shape.column_of[name]] = value
+    locked_kg = np.full(shape.n_materials, math.nan)
+    for name, value in heat.locked_kg.items():
+        locked_kg[shape.column_of[name]] = value
+    locked = ~np.isnan(locked_kg)
+    # Allowed at the stage, not switched off, and not forbidden by the grade unless locked (a
+    # lock is the user's explicit choice): as meltfix.shop.heat.usable_materials says.
+    can_use = shape.allowed & (~shape.forbidden | locked)
+    for name in heat.switched_off:
+        can_use[shape.column_of[name]] = False
+    return _Columns(prices, stock, locked_kg, can_use, shape.packable & ~locked, (shape.min_kg > 0) & ~locked)
+
+
+def _column_bounds(shape: ModelShape, columns: _Columns, reheat_max_c: float) -> tuple[np.ndarray, np.ndarray]:
+    """Column bounds: materials within stock (whole packs where packed), locks fixed, the on/off
+    binaries free where a minimum applies, slacks shut, arc heating up to the stage's most."""
+    locked = ~np.isnan(columns.locked_kg)
+    col_lower = np.zeros(shape.n_cols)
+    col_upper = np.full(shape.n_cols, _INF)
+    stock = columns.stock / shape.scale
+    col_upper[shape.col_mat] = np.where(locked, columns.locked_kg / shape.scale,
+                                        np.where(columns.can_use, np.where(columns.packed, np.floor(stock + 1e-9), stock),
+                                                 0.0))
+    col_lower[shape.col_mat] = np.where(locked, columns.locked_kg / shape.scale, 0.0)
+    col_upper[shape.col_switch] = np.where(columns.switched[shape.switchable], 1.0, 0.0)
+    col_upper[shape.col_slack] = 0.0
+    col_upper[shape.col_reheat] = reheat_max_c
+    return col_lower, col_upper
+
+
+def _switch_rows(shape: ModelShape, heat: Heat, columns: _Columns, row_upper: np.ndarray,
+                 coefficients: list[tuple[int, int, float]]) -> np.ndarray:
+    """The on/off rows: closed where a minimum applies, and the most each lets in once switched on
+    (returned per material [kg])."""
+    bath = heat.bath_kg
+    # The most of a material with a minimum that could go in: its stock, ten times the bath, or
+    # what the vessel can take.
+    most = np.minimum(columns.stock, 10.0 * bath)
+    if heat.capacity_kg is not None:
+        most = np.minimum(most, (heat.capacity_kg - bath) / np.maximum(shape.g, 1e-9))
+    switch_rows = shape.switch.first + 2 * np.arange(len(shape.switchable))
+    on = switch_rows[columns.switched[shape.switchable]]
+    row_upper[on] = row_upper[on + 1] = 0.0
+    coefficients += zip((switch_rows + 1).tolist(), range(shape.col_switch.start, shape.col_switch.stop),
+                        (-np.maximum(most, shape.min_kg)[shape.switchable]).tolist())
+    return most
+
+
+def _dominated(shape: ModelShape, heat: Heat, columns: _Columns, col_upper: np.ndarray, row_upper: np.ndarray,
+               switch_most_kg: np.ndarray) -> np.ndarray:
+    """Per material: dominated on this heat (meltfix.plan.dominance), judged on the rows that keep
+    their limits: the windows and the vessel's capacity."""
+    coefficients = np.vstack((shape.window_per_kg, shape.g[None, :]))
+    upper = np.append(row_upper[shape.windows.span], row_upper[shape.capacity.first])
+    most = most_kg(coefficients, upper, col_upper[shape.col_mat] * shape.scale)
+    materials = HeatMaterials(columns.prices, columns.stock, columns.can_use, ~np.isnan(columns.locked_kg),
+                              columns.packed, columns.switched, shape.min_kg, shape.pack, most, switch_most_kg)
+    return dominated(shape.pairs, materials)
