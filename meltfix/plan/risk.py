@@ -47,6 +47,8 @@ _SIGMA_ROUNDS = 2
 _ANCHOR_ODDS = 0.95
 # Bindings confirmed by a re-solve each (the largest first): each costs one more solve.
 _MAX_CONFIRMED = 4
+# A saving under a cent is no reason to move a limit.
+_LEAST_SHOWN = 0.005
 
 
 @dataclass(frozen=True)
@@ -169,9 +171,10 @@ class RiskPlanner:
                       f"left out {', '.join(sorted(off))}: none of them moves a missed limit towards its window")
 
     def _confirmed(self, heat: Heat, options: PlanOptions, tried: _Tried) -> _Tried:
-        """Keep only what holds the cost up in real money: each limit's saving from the duals,
-        confirmed by planning again with that limit moved (within 5 %, the re-solve's figure
-        shown); the aims' weights are a penalty, never money, and are left out."""
+        """Keep only what holds the cost up in real money: for the limits the duals rank highest,
+        the change in the additions' cost when the limit moves, planned again with it moved. The
+        re-solve's figure is the one shown: with the aims on, the duals price the aim penalty too and
+        are no money; the aims themselves are a penalty and never shown."""
         plan = tried.plan
         real = checked_grade(heat, self.book.grade(heat.grade))
         grade = tried.planned_to or real
@@ -184,8 +187,9 @@ class RiskPlanner:
             again = Planner(again_book).plan(again_heat, options) if again_book is not self.book \
                 else self.planner.plan(again_heat, options)
             saving = plan.total_cost - again.total_cost
-            if again.status == "optimal" and abs(saving - binding.saving) <= 0.05 * binding.saving:
+            if again.status == "optimal" and saving >= _LEAST_SHOWN:
                 confirmed.append(replace(binding, name=real_name(binding.name, real), saving=saving))
+        confirmed.sort(key=lambda b: -b.saving)
         return replace(tried, plan=replace(plan, binding=tuple(confirmed)))
 
     def _search(self, heat: Heat, target: float, options: PlanOptions, trial: Trial, paper: _Tried) -> _Tried:

@@ -340,14 +340,17 @@ def test_a_trace_of_an_element_does_not_make_a_carrier_of_it() -> None:
     assert any(note.startswith("left out ") and "Nickel" in note for note in risk.plan.notes)
 
 
-def test_what_holds_the_cost_up_is_money_a_re_solve_confirms() -> None:
+@pytest.mark.parametrize("options", [PlanOptions(use_aim=False), PlanOptions()], ids=["cheapest", "aims"])
+def test_what_holds_the_cost_up_is_money_a_re_solve_confirms(options: PlanOptions) -> None:
+    # With the aims on (the default) the duals price the aim penalty too; what is shown is still the
+    # additions' cost saved by 0.01 % more room, as planning again from scratch finds it.
     book = load_recipes(None)
     planner = RiskPlanner(book)
     shown = 0
     for path in DEMO_HEATS:
         heat = load_heat(path, book)
         assert not any(b.name.endswith("aim") for b in planner.plan(heat, draws=300).plan.binding)
-        risk = planner.plan(heat, options=PlanOptions(use_aim=False), draws=300, on_paper=True)
+        risk = planner.plan(heat, options=options, draws=300, on_paper=True)
         grade = book.grade(heat.grade)
         for binding in risk.plan.binding:
             symbol, side, *_ = binding.name.split()
@@ -357,8 +360,9 @@ def test_what_holds_the_cost_up_is_money_a_re_solve_confirms() -> None:
             moved = replace(grade, window_pct=MappingProxyType(
                 {**grade.window_pct, symbol: (low - 0.01, high) if side == "min" else (low, high + 0.01)}))
             again = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: moved}))).plan(
-                heat, PlanOptions(use_aim=False))
+                heat, options)
             # The saving of 0.01 % more room, planned again from scratch, within 5 %.
+            assert binding.saving > 0
             assert risk.plan.total_cost - again.total_cost == pytest.approx(binding.saving, rel=0.05), binding
             shown += 1
-    assert shown >= 3
+    assert shown >= (3 if not options.use_aim else 1)
