@@ -1,4 +1,4 @@
-"""`meltfix report [--from DATE] [--to DATE] [--csv FILE] [--logbook PATH] [--demo]`.
+"""`meltfix report [--from DATE] [--to DATE] [--csv FILE] [--logbook PATH] [--demo] [--recipes DIR]`.
 
 The supervisor's cost report from the logbook: rich tables, with bars for the figures a person
 would rather look at than read (cost per tonne of each heat and grade, each material's share).

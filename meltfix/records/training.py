@@ -10,6 +10,7 @@ from types import MappingProxyType
 
 from meltfix.base.errors import InputError
 from meltfix.plan.massbalance import bath_after, temperature_drop_c
+from meltfix.plan.numbers import degrees_text, mass_text
 from meltfix.plan.result import Plan
 from meltfix.records.replay import ReplayStep, limit_misses
 from meltfix.shop.elements import parse_number
@@ -50,24 +51,27 @@ class TrainingScore:
 
 
 def parse_entry(entry_text: str, book: RecipeBook, source: object = "training entry") -> tuple[tuple[str, float], ...]:
-    """Read a trainee's additions: ``"HC FeMn 180; FeSi 75 40"`` (name, then kg; ``;`` or a new line between).
+    """Read a trainee's additions: ``"HC FeMn 180; FeSi 75 40"`` (name, then the mass in the shop's
+    unit, kg or lb; ``;`` or a new line between), as (material, kg).
 
     A name may be cut short when only one material starts that way ("hc femn 180").
     """
+    units = book.settings.units
+    unit = units.mass_unit
     totals: dict[str, float] = {}
     parts = [p.strip() for p in entry_text.replace("\n", ";").split(";")]
     for n, part in enumerate((p for p in parts if p), start=1):
         where = f"entry {n}"
         words = part.split()
-        if words[-1].lower() == "kg":
+        if words[-1].lower() == unit:
             words = words[:-1]
         if len(words) < 2:
-            raise InputError(source, where, f"'{part}': write the material then the kg, e.g. 'HC FeMn 180'")
-        kg = parse_number(words[-1], source, where)
-        if kg <= 0:
-            raise InputError(source, where, f"'{part}': the kg must be above 0")
+            raise InputError(source, where, f"'{part}': write the material then the {unit}, e.g. 'HC FeMn 180'")
+        amount = parse_number(words[-1], source, where)
+        if amount <= 0:
+            raise InputError(source, where, f"'{part}': the {unit} must be above 0")
         name = _match_material(" ".join(words[:-1]), book, source, where)
-        totals[name] = totals.get(name, 0.0) + kg
+        totals[name] = totals.get(name, 0.0) + units.kg(amount)
     return tuple(totals.items())
 
 
@@ -94,15 +98,18 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
     if step.plan is None and not step.inside:
         raise InputError("replay", f"sample '{step.sample.sample_id}'", f"no plan to compare with: {step.plan_error}")
     grade = book.grade(step.heat.grade)
+    units = book.settings.units  # what the trainee reads
     used = [(stage_material(step.heat, book, name), kg) for name, kg in entry]
     final_kg, predicted = bath_after(step.bath_kg, step.sample.analysis.pct, used)
     breaks = []
     if step.heat.capacity_kg is not None and final_kg > step.heat.capacity_kg * (1 + 1e-9):
-        breaks.append(f"the bath grows to {final_kg:,.0f} kg, above the vessel's {step.heat.capacity_kg:,.0f} kg")
+        breaks.append(f"the bath grows to {mass_text(final_kg, units)}, above the vessel's "
+                      f"{mass_text(step.heat.capacity_kg, units)}")
     max_drop = step.heat.drop_limit_c(book.settings)
     drop = temperature_drop_c(step.bath_kg, used) if used else 0.0
     if max_drop is not None and drop > max_drop + 1e-9:
-        breaks.append(f"the additions chill the bath by {drop:.0f} °C, more than the {max_drop:g} °C allowed")
+        breaks.append(f"the additions chill the bath by {degrees_text(drop, units)}, more than the "
+                      f"{degrees_text(max_drop, units)} allowed")
     for name, kg in entry:
         material = book.material(name)
         if name in grade.forbidden:
@@ -110,7 +117,8 @@ def score_entry(step: ReplayStep, entry: Sequence[tuple[str, float]], book: Reci
         if not material.allowed_at(step.heat.stage):
             breaks.append(f"{name} is not added at the {step.heat.stage}")
         if material.stock_kg is not None and kg > material.stock_kg + 1e-9:
-            breaks.append(f"{kg:g} kg of {name} is more than the {material.stock_kg:g} kg in stock")
+            breaks.append(f"{mass_text(kg, units)} of {name} is more than the {mass_text(material.stock_kg, units)} "
+                          "in stock")
     best_cost = step.planned_cost or 0.0
     entry_cost = math.fsum(book.material(name).price_per_kg * kg for name, kg in entry)
     misses = limit_misses(grade, predicted)

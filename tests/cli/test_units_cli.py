@@ -122,3 +122,12 @@ def test_replay_in_pounds_and_fahrenheit_for_a_us_shop(capsys: pytest.CaptureFix
     assert " kg " not in out and "°C" not in out
     assert main(["replay", str(record), "--recipes", str(us), "--json"]) == 0  # the JSON stays SI
     assert '"bath_kg": 80000' in capsys.readouterr().out.replace(".0,", ",")
+
+
+def test_a_trainee_of_a_us_shop_enters_pounds(tmp_path: Path) -> None:
+    from meltfix.records.training import parse_entry
+
+    book = load_recipes(book_in(tmp_path, 'units = "us"'))
+    # 100 lb = 45.359237 kg (NIST SP 811 Appendix B.8); the unit may be written after the amount.
+    ((name, kg),) = parse_entry("HC FeMn 100 lb", book)
+    assert name == "HC FeMn" and kg == pytest.approx(100 * KG_PER_LB, rel=1e-12)

@@ -110,7 +110,8 @@ class ReplayScreen(Screen[None]):
             # First in the body: the entry and the score show with the analysis right under them.
             with Vertical(id="replay-training") as training:
                 training.border_title = "Training: your additions first"
-                yield Label("Your additions at this sample: material then kg, ';' between "
+                mass = self.book.settings.units.mass_unit
+                yield Label(f"Your additions at this sample: material then {mass}, ';' between "
                             "(e.g. HC FeMn 120; FeSi 75 40). Enter scores them.")
                 yield Input(placeholder="HC FeMn 120; FeSi 75 40", id="replay-entry", compact=True)
                 yield Static(id="replay-score")

@@ -45,7 +45,7 @@ if TYPE_CHECKING:
     from meltfix.plan.risk import RiskPlanner
     from meltfix.readers.samples import ImportResult, SpectroSample
 
-_FIELD_NAMES = {BATH: "bath kg", CAPACITY: "vessel kg", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
+_FIELD_NAMES = {BATH: "bath", CAPACITY: "vessel", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
 MOVING_KEYS = (
     ("Tab / Shift+Tab", "next / previous field, then the plan and the cautions"),
     ("↓ ↑", "next / previous field of the heat and the analysis (scroll in the plan)"),
