@@ -20,6 +20,7 @@ from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, 
 from meltfix.plan.result import Plan, RiskPlan
 from meltfix.present.render import odds_lines
 from meltfix.shop.elements import element_sort_key
+from meltfix.shop.grades import Grade
 from meltfix.shop.recipes import RecipeBook
 
 if TYPE_CHECKING:
@@ -41,7 +42,6 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     their odds and the expected total cost; the temperature; the cautions; and a line for the
     signature of the person who decides. The screen always records the plan first, so its tickets
     carry their plan number (:func:`write_ticket`)."""
-    grade = book.grade(plan.grade)
     units = book.settings.units  # masses and temperatures as the crew reads them; the chemistry is wt %
     mass = units.mass_unit
     lines = [
@@ -54,20 +54,7 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     ]
     if plan.status != "optimal":
         lines += ["*** CLOSEST PLAN: THE GRADE IS NOT MET — see 'Out of reach' below ***", ""]
-    lines.append("ADD, IN THIS ORDER")
-    if plan.additions:
-        lines.append(f"  {'material':<30}{mass:>10}")
-        steps = plan.steps or (None,) * len(plan.additions)
-        for number, (addition, step) in enumerate(zip(plan.additions, steps), start=1):
-            packs = "" if addition.packs is None else (
-                f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of "
-                f"{units.mass(addition.pack_kg or 0.0):.4g} {mass}")
-            lines.append(f"{number:>2} {addition.material:<29}{kg_text(units.mass(addition.kg)):>10}{packs}")
-            if step is not None and (step.metres is not None or len(step.portions_kg) > 1):
-                lines.append(f"{'':<5}{step.text(units)}")
-        lines.append(f"  {'total':<30}{kg_text(units.mass(plan.added_kg)):>10}")
-    else:
-        lines.append("  nothing: the bath is already where it should be")
+    lines += _addition_lines(plan, units)
     lines += ["", f"Cost {money_text(plan.total_cost)} {plan.currency} "
                   f"({money_text(units.per_ton(plan.cost_per_t))} {plan.currency}/{units.ton_unit})   "
                   f"temperature change {units.temperature_change(-plan.temperature_drop_c):+.1f} "
@@ -76,9 +63,45 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
     if risk is not None:
         for line in odds_lines(risk.odds, risk):
             lines += textwrap.wrap(line, _WIDTH, subsequent_indent="  ", break_on_hyphens=False)
-    lines.append("")
-    lines.append("CHEMISTRY (wt %, N O B H in ppm)")
-    lines.append(f"  {'':<4}{'now':>9}{'after':>9}{'min':>9}{'aim':>9}{'max':>9}")
+    lines += ["", *_chemistry_lines(heat, plan, book.grade(plan.grade))]
+    if plan.violations:
+        lines += ["", "OUT OF REACH"]
+        for violation in plan.violations:
+            head = (f"{violation.element} {violation.limit} {limit_text(violation.element, violation.limit_pct)}"
+                    f" {unit_of(violation.element)}: ")
+            lines += _bullet(head + violation.reason)
+    lines += ["", "CAUTIONS"]
+    for caution in plan.cautions:
+        lines += _bullet(caution)
+    lines += ["", "DECIDED BY (name) ____________________   SIGNATURE __________________",
+              "TIME ________",
+              "The tool advises; the person signing decides, under the shop's",
+              "procedures and local codes."]
+    return "\n".join(lines) + "\n"
+
+
+def _addition_lines(plan: "Plan", units: Units) -> list[str]:
+    """The additions in the shop's order, each with its packs and, where it is split, its lots."""
+    mass = units.mass_unit
+    lines = ["ADD, IN THIS ORDER"]
+    if not plan.additions:
+        return lines + ["  nothing: the bath is already where it should be"]
+    lines.append(f"  {'material':<30}{mass:>10}")
+    steps = plan.steps or (None,) * len(plan.additions)
+    for number, (addition, step) in enumerate(zip(plan.additions, steps), start=1):
+        packs = "" if addition.packs is None else (
+            f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of "
+            f"{units.mass(addition.pack_kg or 0.0):.4g} {mass}")
+        lines.append(f"{number:>2} {addition.material:<29}{kg_text(units.mass(addition.kg)):>10}{packs}")
+        if step is not None and (step.metres is not None or len(step.portions_kg) > 1):
+            lines.append(f"{'':<5}{step.text(units)}")
+    lines.append(f"  {'total':<30}{kg_text(units.mass(plan.added_kg)):>10}")
+    return lines
+
+
+def _chemistry_lines(heat: "Heat", plan: "Plan", grade: Grade) -> list[str]:
+    """The grade's elements and every element the plan moves: now, after, min, aim, max."""
+    lines = ["CHEMISTRY (wt %, N O B H in ppm)", f"  {'':<4}{'now':>9}{'after':>9}{'min':>9}{'aim':>9}{'max':>9}"]
     moved = sorted((s for s, after in plan.predicted_pct.items() if s not in grade.window_pct
                     and abs(after - heat.analysis.pct.get(s, 0.0)) >= _MOVED_PCT), key=element_sort_key)
     for symbol in grade.elements + tuple(moved):
@@ -97,20 +120,7 @@ def ticket_text(heat: "Heat", plan: "Plan", book: RecipeBook, written: datetime,
         ]
         flag = "  <- out" if any(v.element == symbol for v in plan.violations) else ""
         lines.append(f"  {symbol:<4}" + "".join(f"{c:>9}" for c in cells) + flag)
-    if plan.violations:
-        lines += ["", "OUT OF REACH"]
-        for violation in plan.violations:
-            head = (f"{violation.element} {violation.limit} {limit_text(violation.element, violation.limit_pct)}"
-                    f" {unit_of(violation.element)}: ")
-            lines += _bullet(head + violation.reason)
-    lines += ["", "CAUTIONS"]
-    for caution in plan.cautions:
-        lines += _bullet(caution)
-    lines += ["", "DECIDED BY (name) ____________________   SIGNATURE __________________",
-              "TIME ________",
-              "The tool advises; the person signing decides, under the shop's",
-              "procedures and local codes."]
-    return "\n".join(lines) + "\n"
+    return lines
 
 
 def _temperature_lines(heat: "Heat", plan: "Plan", units: Units) -> list[str]:
