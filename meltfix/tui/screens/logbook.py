@@ -10,13 +10,10 @@ message; the file is only read, never written.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from rich.table import Table
 from rich.text import Text
 from textual import events, on, work
 from textual.app import ComposeResult
@@ -29,14 +26,12 @@ from textual.widgets.option_list import Option
 from textual.worker import Worker, WorkerState, get_current_worker
 
 from meltfix.base.errors import InputError
-from meltfix.base.units import Units
-from meltfix.plan.numbers import content_text, mass_text, money_text, temperature_text, unit_of
 from meltfix.records.heat_record import record_from_history
-from meltfix.records.logbook import (AdditionsRecord, HeatEvent, HeatHistory, HeatSummary, LineRecord, Logbook,
-                                     PlanRecord, SampleRecord, ServerURL, Shift, default_logbook_path, event_time)
+from meltfix.records.logbook import HeatHistory, HeatSummary, Logbook, ServerURL, Shift, default_logbook_path
 from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.palette import ScreenActions
+from meltfix.tui.screens.logbook_tables import count, events_table, heat_cells, number_cell, shift_totals
 from meltfix.tui.screens.replay import ReplayScreen
 from meltfix.tui.widgets.why_not import WhyNot, key_for, say_why_declined
 
@@ -144,7 +139,7 @@ class LogbookScreen(Screen[None]):
         ton = self.book.settings.units.ton_unit
         for label, key in ((f"Bath {ton}", "bath"), ("Corr.", "corrections"), ("Planned", "planned"),
                            ("Actual", "actual"), (f"per {ton}", "per_t")):
-            table.add_column(_number(label), key=key)
+            table.add_column(number_cell(label), key=key)
         self._show_mode("reading")
         self._title(f"Reading the logbook {self.path} …")
         self._open(self.path, demo=False)
@@ -275,8 +270,8 @@ class LogbookScreen(Screen[None]):
         table.border_title = f"Heats of {message.shift.label} · costs in {currency}"
         table.clear()
         for heat in message.heats:
-            table.add_row(*_heat_cells(heat, self.book.settings.units), key=heat.heat_id)
-        self.query_one("#logbook-totals", Static).update(_totals(message.heats, currency, self.book.settings.units))
+            table.add_row(*heat_cells(heat, self.book.settings.units), key=heat.heat_id)
+        self.query_one("#logbook-totals", Static).update(shift_totals(message.heats, currency, self.book.settings.units))
         self.refresh_bindings()
 
     @on(DataTable.RowSelected, "#logbook-heats")
@@ -295,9 +290,9 @@ class LogbookScreen(Screen[None]):
         units = self.book.settings.units
         bath = "" if history.bath_kg is None else f" · bath {units.tons(history.bath_kg / 1000):,.1f} {units.ton_unit}"
         self._title(f"Heat {history.heat_id} · {history.grade or 'never planned'} · {history.shift.label}{bath} · "
-                    f"{_count(history.corrections, 'correction')}")
+                    f"{count(history.corrections, 'correction')}")
         self.query_one("#logbook-events", Static).update(
-            _events_table(history, self._currency(self.heats), units))
+            events_table(history, self._currency(self.heats), units))
         scroll = self.query_one("#logbook-history", VerticalScroll)
         scroll.scroll_home(animate=False)
         scroll.focus()
@@ -380,98 +375,6 @@ class LogbookScreen(Screen[None]):
 
     def _currency(self, heats: tuple[HeatSummary, ...]) -> str:
         return next((h.currency for h in heats if h.currency), self.book.settings.currency)
-
-
-def _number(text: str) -> Text:
-    return Text(text, justify="right")
-
-
-def _heat_cells(heat: HeatSummary, units: Units) -> tuple[Text | str, ...]:
-    per_t = heat.cost_per_t
-    # A * marks a cost that leaves out additions recorded without a known price.
-    actual = money_text(heat.actual_cost) + ("*" if heat.unpriced_lines else "")
-    return (heat.heat_id, heat.grade or "–",
-            _number("–" if heat.bath_kg is None else f"{units.tons(heat.bath_kg / 1000):,.1f}"),
-            _number(str(heat.corrections)), _number(money_text(heat.planned_cost)), _number(actual),
-            _number("–" if per_t is None else money_text(units.per_ton(per_t))))
-
-
-def _totals(heats: tuple[HeatSummary, ...], currency: str, units: Units) -> Text:
-    """The shift in one line: heats, corrections, planned and actual cost, cost per tonne."""
-    if not heats:
-        return Text("No heat in this shift.", style="dim")
-    actual = math.fsum(h.actual_cost for h in heats)
-    weighed_t = math.fsum(h.bath_kg for h in heats if h.bath_kg) / 1000.0
-    weighed_cost = math.fsum(h.actual_cost for h in heats if h.bath_kg)
-    per_t = (f" · {money_text(units.per_ton(weighed_cost / weighed_t))} {currency}/{units.ton_unit}"
-             if weighed_t > 0 else "")
-    repeated = sum(1 for h in heats if h.corrections > 1)
-    text = Text.assemble(
-        f"{_count(len(heats), 'heat')} · {_count(sum(h.corrections for h in heats), 'correction')} · "
-        f"{_count(repeated, 'heat')} corrected more than once\n"
-        f"Planned {money_text(math.fsum(h.planned_cost for h in heats))} · ",
-        (f"actual {money_text(actual)} {currency}", "bold"), per_t)
-    if any(h.unpriced_lines for h in heats):
-        text.append("\n* leaves out additions recorded without a known price", style="dim")
-    return text
-
-
-def _count(n: int, noun: str) -> str:
-    return f"{n} {noun}{'' if n == 1 else 's'}"
-
-
-def _clock(when: datetime, start: datetime) -> str:
-    return f"{when:%H:%M}" if when.date() == start.date() else f"{when:%d %b %H:%M}"
-
-
-def _lines_text(lines: tuple[LineRecord, ...], units: Units) -> str:
-    """One material a line, as on a ticket, so a plan and the additions made from it compare line by line."""
-    return "\n".join(f"{line.material} {mass_text(line.kg, units)}" for line in lines)
-
-
-def _event_row(event: HeatEvent, units: Units) -> tuple[str, str, Text]:
-    """What happened, what it cost (plans and additions), and its details in words."""
-    if isinstance(event, SampleRecord):
-        # "C=0.155" holds together when a narrow screen wraps the line.
-        values = "  ".join(
-            f"{symbol}={'<' if symbol in event.analysis.below_limit else ''}{content_text(symbol, pct)}"
-            f"{'ppm' if unit_of(symbol) == 'ppm' else ''}" for symbol, pct in event.analysis.pct.items())
-        detail = Text(values)
-        heading = [temperature_text(event.temperature_c, units)] if event.temperature_c is not None else []
-        if event.burns:
-            left_out = ", ".join(str(k) for k in sorted(event.rejected_burns))
-            heading.append(f"{len(event.burns)} burns" + (f", left out: {left_out}" if left_out else ""))
-        if heading:
-            detail = Text.assemble((" · ".join(heading), "bold"), "  ", detail)
-        for flag in event.flags:
-            detail.append(f"\n{flag}", style="italic")
-        return f"Sample {event.sample_id}", "", detail
-    if isinstance(event, PlanRecord):
-        detail = Text(_lines_text(event.lines, units) or "nothing to add")
-        if event.status != "optimal":
-            detail.append("\nclosest plan: the grade is NOT met", style="bold")
-        return f"Plan {event.plan_id}", money_text(event.total_cost), detail
-    assert isinstance(event, AdditionsRecord)
-    detail = Text(_lines_text(event.lines, units))
-    unpriced = sum(1 for line in event.lines if line.cost is None)
-    if unpriced:
-        detail.append(f"\n{unpriced} without a known price, left out of the cost", style="bold")
-    detail.append("\nwithout a plan" if event.plan_id is None else f"\nfrom plan {event.plan_id}", style="italic")
-    return "Added", money_text(event.total_cost), detail
-
-
-def _events_table(history: HeatHistory, currency: str, units: Units) -> Table:
-    table = Table(expand=True, box=None, show_edge=False, pad_edge=False, header_style="bold")
-    table.add_column("Time", no_wrap=True)
-    table.add_column("What", no_wrap=True)
-    table.add_column(currency, justify="right", no_wrap=True)
-    table.add_column("Details", ratio=1, overflow="fold")
-    for event in history.events:
-        what, cost, detail = _event_row(event, units)
-        table.add_row(_clock(event_time(event), history.started_at), what, cost, detail)
-    if not history.events:
-        table.add_row("", "", "", Text("Nothing recorded for this heat.", style="dim"))
-    return table
 
 
 def make_screen(app: Any) -> LogbookScreen:
