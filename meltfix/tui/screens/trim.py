@@ -4,6 +4,11 @@ Every change of an input bumps ``revision`` and asks a thread worker for a new p
 that comes back for an older revision is dropped, so the panel only ever calls current a plan
 made from exactly the inputs on screen. The dialogs are imported when first opened and the solver
 in the first plan's worker, after the first frame: neither delays the screen's start-up.
+
+Long because: every action of the main screen (open a heat, read an export, accept, ticket, the
+materials, add an element, revert) reads and changes the one heat on screen and the plan shown for
+it, the screen's own state; its widgets, dialogs and the accept and ticket flows already live in
+modules of their own. Moving the file actions (open a heat, read an export) out is the next split.
 """
 
 from __future__ import annotations
