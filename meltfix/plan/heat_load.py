@@ -15,7 +15,7 @@ import numpy as np
 
 from meltfix.plan.deoxidation import oxygen_notes
 from meltfix.plan.dominance import HeatMaterials, dominated, most_kg
-from meltfix.plan.numbers import degrees_text, mass_text, temperature_text
+from meltfix.plan.numbers import content_text, degrees_text, mass_text, temperature_text
 from meltfix.plan.plan_model import AIM_PENALTY_PER_KG, ModelShape
 from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg,
                                     unbound_sulphur_pct)
@@ -204,7 +204,7 @@ def _treatment_note(shape: ModelShape, heat: Heat) -> str:
     to_fade = bath * magnesium_fade_pct(settings) / 100.0
     unbound = "" if s_pct == heat.analysis.get("S") else " not yet bound by the Mg read"
     units = settings.units
-    note = (f"{mass_text(to_sulphide, units)} of Mg goes to MgS (S {s_pct:.4g} %{unbound}) and "
+    note = (f"{mass_text(to_sulphide, units)} of Mg goes to MgS (S {content_text('S', s_pct)} %{unbound}) and "
             f"{mass_text(to_fade, units)} to fade "
             f"({settings.treatment_to_pour_min:g} min to pour at {settings.mg_fade_pct_per_min:g} % per min) "
             "before any stays in the bath")

@@ -117,11 +117,16 @@ def degrees_text(delta_c: float, units: Units = Units()) -> str:
     return f"{units.temperature_change(delta_c):.0f} {units.temperature_unit}"
 
 
+def pack_mass_text(pack_kg: float, units: Units = Units()) -> str:
+    """One pack's mass in the shop's mass unit, as its label gives it ("25", "55.12")."""
+    return f"{units.mass(pack_kg):.4g}"
+
+
 def packs_text(addition: Addition, units: Units = Units()) -> str:
     """Whole packs as "count×pack mass" in the shop's mass unit ("2×25"), or "" for a loose addition."""
     if addition.packs is None or addition.pack_kg is None:
         return ""
-    return f"{addition.packs}×{units.mass(addition.pack_kg):.4g}"
+    return f"{addition.packs}×{pack_mass_text(addition.pack_kg, units)}"
 
 
 def money_text(amount: float, places: int = 2, signed: bool = False) -> str:

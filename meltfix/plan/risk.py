@@ -15,7 +15,6 @@ simulation found for the last plan) only says which inset to try next, so that f
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, replace
 from types import MappingProxyType
 

@@ -9,7 +9,8 @@ from rich.text import Text
 
 from meltfix.base.outputs import markup_safe, visible
 from meltfix.base.units import Units
-from meltfix.plan.numbers import content_text, kg_text, limit_text, margin_text, miss_text, money_text, unit_of
+from meltfix.plan.numbers import (content_text, kg_text, limit_text, margin_text, miss_text, money_text, pack_mass_text,
+                                  unit_of)
 from meltfix.plan.result import Odds, Plan, RiskPlan, is_outside
 
 
@@ -86,7 +87,7 @@ def _additions_table(plan: Plan, units: Units) -> Table:
     adds.add_column("how (in this order)")
     hows = [step.text(units) for step in plan.steps] if plan.steps else [""] * len(plan.additions)
     for a, how in zip(plan.additions, hows):
-        packs = "" if a.packs is None or a.pack_kg is None else f"{a.packs} × {units.mass(a.pack_kg):.4g} {mass}"
+        packs = "" if a.packs is None or a.pack_kg is None else f"{a.packs} × {pack_mass_text(a.pack_kg, units)} {mass}"
         adds.add_row(Text(visible(a.material)), kg_text(units.mass(a.kg)), packs,
                      money_text(a.cost), how)
     if not plan.additions:

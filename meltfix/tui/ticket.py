@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING
 
 from meltfix.base.outputs import write_atomic
 from meltfix.base.units import Units
-from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, unit_of
+from meltfix.plan.numbers import content_text, kg_text, limit_text, money_text, pack_mass_text, unit_of
 from meltfix.plan.result import Plan, RiskPlan
 from meltfix.present.render import odds_lines
 from meltfix.shop.elements import element_sort_key
@@ -91,7 +91,7 @@ def _addition_lines(plan: "Plan", units: Units) -> list[str]:
     for number, (addition, step) in enumerate(zip(plan.additions, steps), start=1):
         packs = "" if addition.packs is None else (
             f"  = {addition.packs} pack{'s' if addition.packs != 1 else ''} of "
-            f"{units.mass(addition.pack_kg or 0.0):.4g} {mass}")
+            f"{pack_mass_text(addition.pack_kg or 0.0, units)} {mass}")
         lines.append(f"{number:>2} {addition.material:<29}{kg_text(units.mass(addition.kg)):>10}{packs}")
         if step is not None and (step.metres is not None or len(step.portions_kg) > 1):
             lines.append(f"{'':<5}{step.text(units)}")
