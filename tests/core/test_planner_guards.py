@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import pytest
-
 from meltfix.plan.planner import plan_heat
 from meltfix.plan.result import PlanOptions
 from tests.core.test_planner import book, heat, kg_of

@@ -15,7 +15,7 @@ import pytest
 
 from meltfix.base.paths import demo_dir
 from meltfix.plan.planner import Planner
-from meltfix.plan.result import Plan, PlanOptions
+from meltfix.plan.result import PlanOptions
 from meltfix.shop.analysis import Analysis
 from meltfix.shop.heat import Heat, load_heat
 from meltfix.shop.recipes import load_recipes

@@ -9,7 +9,6 @@ of it equally often.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
