@@ -13,7 +13,7 @@ No Textual, NumPy or solver here: the ticket and the screen's first paint use it
 from __future__ import annotations
 
 from meltfix.base.units import Units
-from meltfix.plan.result import LIMIT_TOL_PCT, Addition
+from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Binding
 from meltfix.shop.elements import PPM_ELEMENTS, PPM_PER_PCT, SYMBOLS
 
 # Decimals of a limit as the heat-analysis tables of the standards write it: C, Mn, Si, Cr, Ni, Mo,
@@ -138,3 +138,15 @@ def money_text(amount: float, places: int = 2, signed: bool = False) -> str:
 def recovery_text(fraction: float | None) -> str:
     """A recovery (the recipe book's fraction 0-1) as per cent with one decimal: "90.0 %"."""
     return "–" if fraction is None else f"{100 * fraction:.1f} %"
+
+
+def binding_text(binding: Binding, units: Units = Units()) -> tuple[str, str]:
+    """What loosening a binding saves and per what, in the shop's units: ("12.50", "1 lb more in stock")."""
+    saving, unit = binding.saving, binding.unit
+    if units.us and binding.per == "kg":
+        saving, unit = units.per_mass(saving), f"1 {units.mass_unit} more in stock"
+    elif units.us and binding.per == "t":
+        saving, unit = units.per_ton(saving), f"1 {units.ton_unit} more free capacity"
+    elif units.us and binding.per == "degC":
+        saving, unit = saving / units.temperature_change(1.0), f"1 {units.temperature_unit} more allowed drop"
+    return money_text(saving), unit

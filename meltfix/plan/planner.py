@@ -337,15 +337,16 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
                                 f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
     capacity = saving[shape.capacity.first] * 1000.0
     if capacity > 1e-6:
-        bindings.append(Binding("vessel capacity", capacity, "1 t more free capacity"))
+        bindings.append(Binding("vessel capacity", capacity, "1 t more free capacity", "t"))
     temperature = saving[shape.temperature.first] * bath_kg  # the row is multiplied by the bath
     if temperature > 1e-6:
-        bindings.append(Binding("temperature drop limit", temperature, "1 °C more allowed drop"))
+        bindings.append(Binding("temperature drop limit", temperature, "1 °C more allowed drop", "degC"))
     upper_saving = -duals.col_dual[shape.col_mat] / shape.scale
     for j in (upper_saving > 1e-6).nonzero()[0]:
         # A lock is a choice, not a shortage; a pack count fixed for this LP is not the stock.
         if load.col_lower[j] != load.col_upper[j] and not fixed[j]:
-            bindings.append(Binding(f"stock of {shape.materials[j].name}", float(upper_saving[j]), "1 kg more in stock"))
+            bindings.append(Binding(f"stock of {shape.materials[j].name}", float(upper_saving[j]), "1 kg more in stock",
+                                    "kg"))
     aim_worth = saving[shape.aims.span] * final_kg * 1e-4  # saving from raising each aim by 0.01 %
     for t in (np.abs(aim_worth) > 1e-6).nonzero()[0]:
         symbol, worth = shape.aim_elements[t], float(aim_worth[t])

@@ -98,6 +98,9 @@ class Binding:
     """Saving [currency] from one more ``unit``."""
     unit: str
     """The unit of loosening, in words ("1 t more free capacity")."""
+    per: str = "pct"
+    """What ``unit`` loosens by: "pct" (a limit or aim, 0.01 %), "kg" (stock), "t" (capacity) or
+    "degC" (the drop); the shop's units rewrite the last three (plan/numbers.binding_text)."""
 
 
 @dataclass(frozen=True)

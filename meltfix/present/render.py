@@ -9,8 +9,8 @@ from rich.text import Text
 
 from meltfix.base.outputs import markup_safe, visible
 from meltfix.base.units import Units
-from meltfix.plan.numbers import (content_text, kg_text, limit_text, margin_text, miss_text, money_text, pack_mass_text,
-                                  unit_of)
+from meltfix.plan.numbers import (binding_text, content_text, kg_text, limit_text, margin_text, miss_text, money_text,
+                                  pack_mass_text, unit_of)
 from meltfix.plan.result import Odds, Plan, RiskPlan, is_outside
 
 
@@ -67,7 +67,7 @@ def plan_renderable(plan: Plan, odds: Odds | None = None, risk: RiskPlan | None 
         bind.add_column(f"saves {plan.currency}", justify="right")
         bind.add_column("per")
         for b in plan.binding:
-            bind.add_row(Text(visible(b.name)), money_text(b.saving), b.unit)
+            bind.add_row(Text(visible(b.name)), *binding_text(b, units))
         parts.append(bind)
     if plan.notes:
         parts.append(Text(visible("Notes: " + " ".join(plan.notes)), style="dim"))

@@ -6,10 +6,12 @@ import io
 
 from rich.console import Console
 
-from meltfix.plan.numbers import content_text, limit_text, margin_text, miss_text, recovery_text, unit_of, with_unit
+from meltfix.base.units import Units
+from meltfix.plan.numbers import (binding_text, content_text, limit_text, margin_text, miss_text, recovery_text,
+                                  unit_of, with_unit)
 from meltfix.plan.result import LIMIT_TOL_PCT
 from meltfix.plan.result import LIMIT_TOL_PCT as PLANNER_TOL
-from meltfix.plan.result import is_outside
+from meltfix.plan.result import Binding, is_outside
 
 
 def test_limits_keep_the_decimals_their_standard_writes() -> None:
@@ -72,3 +74,17 @@ def test_plan_table_marks_a_miss_that_rounds_to_zero_in_red() -> None:
     console.print(plan_renderable(plan))
     row = next(line for line in console.export_text(styles=True).splitlines() if "-0.000" in line)
     assert f"\x1b[31m{check.element} " in row and "\x1b[31m -0.000" in row  # the whole row red
+
+
+def test_what_holds_the_cost_up_is_priced_per_the_shops_unit() -> None:
+    # NIST SP 811 (2008), Appendix B: 1 lb = 0.45359237 kg and 1 short ton = 907.18474 kg exactly;
+    # a temperature interval of 1 °F is 5/9 K.
+    us = Units("us")
+    assert binding_text(Binding("stock of FeV 80", 10.0, "1 kg more in stock", "kg"), us) == \
+        ("4.54", "1 lb more in stock")
+    assert binding_text(Binding("vessel capacity", 100.0, "1 t more free capacity", "t"), us) == \
+        ("90.72", "1 short ton more free capacity")
+    assert binding_text(Binding("temperature drop limit", 9.0, "1 °C more allowed drop", "degC"), us) == \
+        ("5.00", "1 °F more allowed drop")
+    limit = Binding("Mn min 0.6 %", 3.0, "0.01 % lower limit")
+    assert binding_text(limit, us) == binding_text(limit) == ("3.00", "0.01 % lower limit")
