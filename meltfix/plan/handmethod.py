@@ -29,8 +29,7 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
-from meltfix.plan.massbalance import bath_after, single_addition_kg, temperature_drop_c
-from meltfix.plan.planner import recheck
+from meltfix.plan.massbalance import bath_after, recheck, single_addition_kg, temperature_drop_c
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition, LimitCheck, addition
 from meltfix.plan.treatment import contents_owed_pct
 from meltfix.shop.elements import element_sort_key

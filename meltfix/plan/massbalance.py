@@ -7,10 +7,15 @@ with arithmetic that shares nothing with the LP's matrices.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 
+from meltfix.plan.result import LimitCheck, limit_checks
+from meltfix.plan.treatment import contents_owed_pct
 from meltfix.shop.elements import element_sort_key
+from meltfix.shop.grades import Grade
+from meltfix.shop.heat import Heat
 from meltfix.shop.materials import Material
+from meltfix.shop.settings import ShopSettings
 
 
 def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],
@@ -52,3 +57,18 @@ def single_addition_kg(bath_kg: float, now_pct: float, aim_pct: float, content_p
     """
     denominator = recovery * content_pct / 100.0 - mass_yield * aim_pct / 100.0
     return bath_kg * (aim_pct - now_pct) / 100.0 / denominator
+
+
+def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings
+            ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
+    """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
+    by the plain mass balance: the plan's own re-check, also against a grade other than the one
+    planned for (meltfix.plan.risk plans to tightened windows and reports against the real ones)."""
+    owed = contents_owed_pct(heat, grade, settings)
+    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
+    # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
+    # closest plan reports the shortfall it was planned against.
+    lowest = predicted
+    if heat.analysis.below_limit:
+        lowest = bath_after(heat.bath_kg, heat.analysis.lowest_pct, used, owed)[1]
+    return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))

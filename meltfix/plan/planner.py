@@ -17,6 +17,7 @@ import time
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
+from typing import cast
 
 import numpy as np
 
@@ -24,19 +25,15 @@ from meltfix.base.errors import InputError
 from meltfix.plan.cautions import BathState, plan_cautions
 from meltfix.plan.heat_load import HeatLoad, load_of
 from meltfix.plan.hot_model import HotModel, Solution
-from meltfix.plan.massbalance import bath_after, temperature_drop_c
+from meltfix.plan.massbalance import recheck, temperature_drop_c
 from meltfix.plan.numbers import degrees_text, temperature_text
 from meltfix.plan.plan_model import ModelShape
 from meltfix.plan.reasons import explain_violation
-from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition,
-                                 limit_checks)
+from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition
 from meltfix.plan.sequence import sequence_additions
-from meltfix.plan.treatment import contents_owed_pct
-from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
-from meltfix.shop.settings import ShopSettings
 
 # A relaxed solution this close to whole packs (and to zero or the minimum) counts as integer,
 # as HiGHS's own MIP feasibility tolerance does.
@@ -88,6 +85,14 @@ class Planner:
 
     def plan(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan:
         """Plan one heat. Raises InputError when the heat does not fit the recipe book."""
+        return cast(Plan, self._plan(heat, options, closest=True))  # a closest plan always exists
+
+    def plan_inside(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan | None:
+        """The plan when the solver finds one inside every window; None, without the closest-plan
+        phases, when it finds none (the odds search asks this of windows it has moved in)."""
+        return self._plan(heat, options, closest=False)
+
+    def _plan(self, heat: Heat, options: PlanOptions, closest: bool) -> Plan | None:
         validate_heat(heat, self.book)
         settings = self.book.settings
         penalty = options.aim_penalty if options.aim_penalty is not None else settings.aim_penalty
@@ -97,6 +102,8 @@ class Planner:
             load = load_of(model.shape, heat, penalty, self.prune)
             model.load(load)
             solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options)
+            if solution is None and not closest:
+                return None
             least = None
             if solution is None:
                 solution, least = _closest(model, load, heat.bath_kg, deadline, options)
@@ -122,8 +129,7 @@ class Planner:
         temperature = _temperature(heat, book, shape, solution.x, drop, predicted)
         if temperature.reheat_c > 0:
             notes = (f"arc heating about {degrees_text(temperature.reheat_c, units)} ({temperature.reheat_min:.0f} min) "
-                     f"at the "
-                     f"{heat.stage}, {temperature.reheat_cost:,.2f} {book.settings.currency}",) + notes
+                     f"at the {heat.stage}, {temperature.reheat_cost:,.2f} {book.settings.currency}",) + notes
         if temperature.short_c > 0.5 and temperature.after_c is not None:
             notes += (f"temperature after about {temperature_text(temperature.after_c, units)} is "
                       f"{degrees_text(temperature.short_c, units)} short of liquidus "
@@ -371,21 +377,6 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
         additions.append(addition(material, amount, float(load.prices[j]), bool(load.packed[j])))
         used.append((material, amount))
     return additions, used
-
-
-def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], settings: ShopSettings
-            ) -> tuple[float, dict[str, float], tuple[LimitCheck, ...]]:
-    """Final bath [kg], predicted analysis [wt %] and the grade's checks after ``used`` (material, kg),
-    by the plain mass balance: the plan's own re-check, also against a grade other than the one
-    planned for (meltfix.plan.risk plans to tightened windows and reports against the real ones)."""
-    owed = contents_owed_pct(heat, grade, settings)
-    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
-    # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
-    # closest plan reports the shortfall it was planned against.
-    lowest = predicted
-    if heat.analysis.below_limit:
-        lowest = bath_after(heat.bath_kg, heat.analysis.lowest_pct, used, owed)[1]
-    return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))
 
 
 def plan_heat(heat: Heat, book: RecipeBook, options: PlanOptions = PlanOptions()) -> Plan:

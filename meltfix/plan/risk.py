@@ -21,8 +21,9 @@ from types import MappingProxyType
 import numpy as np
 
 from meltfix.plan.closed_form import closed_form_odds, heat_odds_by_inset, limit_sigma_pct, normal_quantile
+from meltfix.plan.massbalance import recheck
 from meltfix.plan.moved_limits import loosened, real_name, tightened
-from meltfix.plan.planner import Planner, recheck
+from meltfix.plan.planner import Planner
 from meltfix.plan.result import LIMIT_TOL_PCT, Odds, Plan, PlanOptions, RiskPlan
 from meltfix.plan.uncertainty import Trial, judge
 from meltfix.shop.grades import Grade
@@ -193,30 +194,25 @@ class RiskPlanner:
 
     def _search(self, heat: Heat, target: float, options: PlanOptions, trial: Trial, paper: _Tried) -> _Tried:
         """The least inset (on the grid of _Z_STEP sigmas) whose plan the simulation finds at or
-        above the target, by a bracket that only narrows: each inset tried is the closed form's
-        guess when it falls inside the bracket, else a step from the bound just moved that doubles
-        while the guesses stay outside (whole packs make the odds jump where no closed form sees it).
+        above the target.
 
-        The plan at a given inset does not depend on the target, and a deeper inset never makes a
-        plan cheaper nor less likely inside, so the least inset gives a higher target a plan at
-        least as costly and at least as safe, whichever insets were tried on the way.
+        Packs make a plan a branch and bound, several times dearer than the same plan with loose
+        amounts, so the insets are first searched with loose amounts (a ladder of LPs), and the
+        plans in whole packs then start from the least loose inset that reaches the target and go
+        deeper only while they fall short. Both ladders are the target's own only through where
+        they start, and a deeper inset never makes a plan cheaper nor less likely inside, so a
+        higher target still gets a plan at least as costly and at least as safe.
         """
-        ladder = _Ladder(self, heat, options, trial, paper)
-        low, high = 0, _Z_STEPS + 1  # the paper plan is short; past the grid counts as reached
-        guess, stride, reached = _least_inset(paper, target), 1, False
-        while high - low > 1:
-            if guess is not None and low < guess < high:
-                k, stride = guess, 1
-            elif guess is None or (high in ladder.plans and ladder.plans[high] is None):
-                k = (low + high) // 2  # where the windows stop closing, the closed form says nothing
-            else:
-                k = max(high - stride, low + 1) if reached else min(low + stride, high - 1)
-                stride *= 2
-            tried = ladder.at(k)
-            # Reached, or the windows cannot close this far: deeper is no better.
-            reached = tried is None or (tried.odds.heat >= target and tried.odds.resolves(target))
-            low, high = (low, k) if reached else (k, high)
-            guess = None if tried is None else _least_inset(tried, target)
+        start = 0
+        sigma = None
+        if not options.continuous:
+            loose = _Ladder(self, heat, replace(options, continuous=True), trial, paper)
+            reached = _least_reaching(loose, target, 0, _least_inset(paper, target))
+            start = reached if reached <= _Z_STEPS and loose.plans.get(reached) is not None else 0
+            sigma = loose.sigma
+        ladder = _Ladder(self, heat, options, trial, paper, sigma)
+        guess = start if start > 0 else _least_inset(paper, target)
+        high = _least_reaching(ladder, target, max(start - 1, 0), guess)
         best = ladder.plans.get(high)
         if best is not None and best.odds.heat >= target and best.odds.resolves(target):
             return _noted(best, f"planned to {target:.0%} odds: each limit kept {best.z:.2f} standard "
@@ -247,15 +243,19 @@ class _Ladder:
     so every target walks the same ladder of plans, each deeper one no cheaper than the last.
     """
 
-    def __init__(self, risk: RiskPlanner, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried) -> None:
+    def __init__(self, risk: RiskPlanner, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried,
+                 sigma: np.ndarray | None = None) -> None:
         self.risk, self.heat, self.options, self.trial, self.paper = risk, heat, options, trial, paper
         self.grade = checked_grade(heat, risk.book.grade(heat.grade))
         self.labels = [f"{c.element} {c.limit}" for c in paper.plan.checks]
         self.plans: dict[int, _Tried | None] = {0: paper}
+        self.sigma = paper.sigma if sigma is None else sigma
+        """Each limit's sigma [wt %] every inset is planned with: the fixed point at the anchor, or
+        the one given (a loose ladder's, for the ladder in whole packs that follows it)."""
+        if sigma is not None:
+            return
         anchor = _least_inset(paper, _ANCHOR_ODDS)
         anchor = (_Z_STEPS + 1) // 2 if anchor is None else min(max(anchor, 1), _Z_STEPS)
-        self.sigma = paper.sigma
-        """Each limit's sigma [wt %] every inset is planned with: the fixed point at the anchor."""
         for round_ in range(_SIGMA_ROUNDS):  # the fixed point, from the paper plan's sigma
             tried = self.plans[anchor] = self._solved(anchor * _Z_STEP)
             if tried is None or round_ == _SIGMA_ROUNDS - 1:
@@ -273,14 +273,37 @@ class _Ladder:
         """The plan with every limit moved in by z sigma; None when the tightened grade cannot be met."""
         book, heat, grade = self.risk.book, self.heat, self.grade
         tight = tightened(grade, dict(zip(self.labels, z * self.sigma)))
-        candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan(
+        candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan_inside(
             heat, self.options)
-        if candidate.status != "optimal":
+        if candidate is None or candidate.status != "optimal":
             return None
         used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
         candidate = replace(candidate, checks=recheck(heat, grade, used, book.settings)[2])
         return replace(self.risk._judged(heat, candidate, self.trial), z=z, planned_to=tight)
 
+
+
+def _least_reaching(ladder: _Ladder, target: float, low: int, guess: int | None) -> int:
+    """The least grid step above ``low`` whose plan on ``ladder`` reaches ``target`` (past the grid:
+    _Z_STEPS + 1), by a bracket that only narrows: each inset tried is the closed form's guess when it
+    falls inside the bracket, else a step from the bound just moved that doubles while the guesses
+    stay outside (whole packs make the odds jump where no closed form sees it)."""
+    high = _Z_STEPS + 1
+    stride, reached = 1, False
+    while high - low > 1:
+        if guess is not None and low < guess < high:
+            k, stride = guess, 1
+        elif guess is None or (high in ladder.plans and ladder.plans[high] is None):
+            k = (low + high) // 2  # where the windows stop closing, the closed form says nothing
+        else:
+            k = max(high - stride, low + 1) if reached else min(low + stride, high - 1)
+            stride *= 2
+        tried = ladder.at(k)
+        # Reached, or the windows cannot close this far: deeper is no better.
+        reached = tried is None or (tried.odds.heat >= target and tried.odds.resolves(target))
+        low, high = (low, k) if reached else (k, high)
+        guess = None if tried is None else _least_inset(tried, target)
+    return high
 
 def _least_inset(tried: _Tried, target: float) -> int | None:
     """The closed form's guess at the least grid step whose plan reaches ``target``, from one plan:
