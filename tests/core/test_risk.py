@@ -122,6 +122,18 @@ def test_a_higher_target_never_lowers_the_odds_nor_the_cost(first: float, second
     assert b.odds.heat >= a.odds.heat
 
 
+@pytest.mark.parametrize("heat_id", ["KB-24104", "KB-24106", "KB-24107"])
+def test_in_whole_packs_a_higher_target_never_lowers_the_odds_nor_the_cost(heat_id: str) -> None:
+    # The demo book's packs: the search runs on loose amounts first, then in packs from where that
+    # search stopped, which depends on the target; the property must hold all the same.
+    book = load_recipes(None)
+    planner, heat = RiskPlanner(book), load_heat(heat_path(heat_id), book)
+    plans = [planner.plan(heat, target, draws=1000, seed=3) for target in (0.6, 0.8, 0.9, 0.95, 0.97)]
+    for lower, higher in zip(plans, plans[1:]):
+        assert higher.plan.total_cost >= lower.plan.total_cost - 1e-9
+        assert higher.odds.heat >= lower.odds.heat
+
+
 def test_a_target_out_of_reach_gives_the_best_odds_and_says_why() -> None:
     # A window 0.01 % wide: the scatter of 400 kg of FeMn alone is wider than that.
     book = mn_book([0.80, 0.81])
