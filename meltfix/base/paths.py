@@ -32,3 +32,13 @@ def cache_dir() -> Path:
     xdg = os.environ.get("XDG_CACHE_HOME", "").strip()
     base = Path(xdg) if xdg and Path(xdg).is_absolute() else Path.home() / ".cache"
     return base / "meltfix"
+
+
+def user_data_dir() -> Path:
+    """meltfix's folder in the user's data folder: $XDG_DATA_HOME (when set to an absolute path), else
+    ~/.local/share; on Windows %LOCALAPPDATA%."""
+    if os.name == "nt" and os.environ.get("LOCALAPPDATA"):
+        return Path(os.environ["LOCALAPPDATA"]) / "meltfix"
+    xdg = os.environ.get("XDG_DATA_HOME", "").strip()
+    base = Path(xdg) if xdg and Path(xdg).is_absolute() else Path.home() / ".local" / "share"
+    return base / "meltfix"

@@ -23,7 +23,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--recipes", metavar="DIR", help="recipes folder (default: the built-in demo shop)")
     parser.add_argument("--logbook", metavar="PATH|URL", help="the " + LOGBOOK_HELP + " for accepted plans (on the built-in demo "
                         "shop: a demo logbook of its own)")
-    parser.add_argument("--tickets", metavar="DIR", type=Path, help="folder for crew tickets (default: here)")
+    parser.add_argument("--tickets", metavar="DIR", type=Path, help="folder for crew tickets (default: shop.toml ticket_dir, else tickets/ in "
+                        "the user's meltfix data folder)")
     parser.add_argument("--light", action="store_true", help="colours for a light terminal")
 
 

@@ -18,6 +18,7 @@ from textual.notifications import SeverityLevel
 from textual.screen import Screen
 
 from meltfix.base.errors import visible
+from meltfix.base.paths import user_data_dir
 from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook
@@ -48,8 +49,10 @@ class MeltfixApp(App[None]):
         self.heat_path = heat_path
         self.logbook_path = logbook_path
         """The logbook file; None = the logbook module's own default (its environment variable)."""
-        # --tickets, else the shop's ticket_dir, else here.
-        self.tickets_dir = tickets_dir if tickets_dir is not None else Path(book.settings.ticket_dir or Path.cwd())
+        # --tickets, else the shop's ticket_dir, else a folder of the user's data, never wherever
+        # the program happened to be started.
+        self.tickets_dir = tickets_dir if tickets_dir is not None else (
+            Path(book.settings.ticket_dir) if book.settings.ticket_dir else user_data_dir() / "tickets")
         self.light = light
 
     def notify(self, message: str, *, title: str = "", severity: SeverityLevel = "information",

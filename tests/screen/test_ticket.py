@@ -5,6 +5,7 @@ to the shop's ticket folder and sent to a printer command where the machine has 
 from __future__ import annotations
 
 import sys
+from dataclasses import replace
 from datetime import datetime
 from pathlib import Path
 
@@ -79,12 +80,24 @@ async def test_f7_records_the_plan_and_prints_its_number_and_odds(demo_book, dem
         await pilot.press("f7")  # a second ticket of the same plan keeps its number
         await settle(pilot)
         assert screen.accepted is not None
-        number, risk = screen.accepted[0], screen.current_risk
+        number, _, sample, risk = *screen.accepted, screen.current_risk
     with Logbook(logbook_path, create=False) as logbook:
-        assert [p.plan_id for p in logbook.heat_history(demo_heat.heat_id).plans] == [number]
+        history = logbook.heat_history(demo_heat.heat_id)
+        assert [p.plan_id for p in history.plans] == [number]
+        assert [s.sample_id for s in history.samples] == [sample]
     tickets = sorted((tmp_path / "tickets").glob("*.txt"))
     assert len(tickets) == 2
     for ticket in tickets:
         text = ticket.read_text(encoding="utf-8")
         assert f"plan #{number}" in text and "not accepted yet" not in text
+        assert f"sample {sample}   plan #{number}" in text  # the sample the logbook recorded, as the toast says
         assert f"In-spec odds {100 * risk.odds.heat:.1f} %" in text and f"target {100 * risk.target:g} %" in text
+
+
+def test_tickets_go_to_the_shops_folder_never_where_the_program_was_started(demo_book, demo_heat, tmp_path,
+                                                                             monkeypatch) -> None:
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "data"))
+    monkeypatch.chdir(tmp_path)
+    assert make_app(demo_book, demo_heat).tickets_dir == tmp_path / "data" / "meltfix" / "tickets"
+    shop = replace(demo_book, settings=replace(demo_book.settings, ticket_dir=str(tmp_path / "crew")))
+    assert make_app(shop, demo_heat).tickets_dir == tmp_path / "crew"

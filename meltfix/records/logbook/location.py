@@ -14,6 +14,7 @@ from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
 from meltfix.base.errors import InputError
+from meltfix.base.paths import user_data_dir
 
 ENV_VAR = "MELTFIX_LOGBOOK"
 _SERVER_SCHEMES = ("postgresql", "postgres")
@@ -85,9 +86,4 @@ def default_logbook_path() -> LogbookLocation:
     configured = os.environ.get(ENV_VAR, "").strip()
     if configured:
         return logbook_location(configured)
-    if os.name == "nt" and os.environ.get("LOCALAPPDATA"):
-        base = Path(os.environ["LOCALAPPDATA"])
-    else:
-        xdg = os.environ.get("XDG_DATA_HOME", "").strip()
-        base = Path(xdg) if xdg and Path(xdg).is_absolute() else Path.home() / ".local" / "share"
-    return base / "meltfix" / "logbook.sqlite"
+    return user_data_dir() / "logbook.sqlite"

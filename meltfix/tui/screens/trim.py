@@ -109,8 +109,8 @@ class TrimScreen(Screen[None]):
         """The heat and plan for exactly the inputs on screen, once the worker has made it."""
         self.current_risk: RiskPlan | None = None
         """The current plan's odds against the shop's target."""
-        self.accepted: tuple[int, Plan] | None = None
-        """The logbook's id of the plan accepted for this heat, and that plan."""
+        self.accepted: tuple[int, Plan, str] | None = None
+        """The logbook's id of the plan accepted for this heat, that plan and the sample it answers."""
         self.imported: tuple[SpectroSample, dict[str, str]] | None = None
         """The spectrometer sample last read into the analysis, and the cells it filled."""
         self.plannable = False
@@ -441,7 +441,7 @@ class TrimScreen(Screen[None]):
         except Exception as exc:  # a logbook fault is reported; the plan on screen stays as it is
             self.notify(str(exc), title="Not recorded", severity="error")
             return None
-        self.accepted = (accepted.plan_id, plan)
+        self.accepted = (accepted.plan_id, plan, accepted.sample_id)
         self._sync_bindings()
         sample = f"sample {accepted.sample_id}" + ("" if accepted.sample_is_new else " (already in the logbook)")
         closest = " — closest plan: the grade is NOT met" if plan.status != "optimal" else ""
@@ -459,7 +459,7 @@ class TrimScreen(Screen[None]):
 
         if self.accepted is None:
             return
-        plan_id, plan = self.accepted
+        plan_id, plan, _ = self.accepted
 
         def recorded(made: list[tuple[str, float]] | None) -> None:
             if made is None:
@@ -484,17 +484,18 @@ class TrimScreen(Screen[None]):
         heat, plan = self.current
         # A ticket always carries its plan number, so what the crew signs can be traced in the
         # logbook: a plan not accepted yet is recorded first, as Accept would.
-        if self.accepted is not None and self.accepted[1] is plan:
-            number, recorded = self.accepted[0], ""
-        else:
+        recorded = ""
+        if self.accepted is None or self.accepted[1] is not plan:
             made = self._record(heat, plan)
             if made is None:
                 return
-            number, recorded = made
+            recorded = made[1]
+        assert self.accepted is not None  # recorded just now, or before
+        number, _, sample = self.accepted
         try:
+            # The sample as the logbook has it, the same the plan number answers.
             path = write_ticket(self.tickets_dir, heat, plan, self.book, datetime.now(),
-                                sample=None if self.imported is None else self.imported[0].sample_id,
-                                plan_number=number, risk=self.current_risk)
+                                sample=sample, plan_number=number, risk=self.current_risk)
         except OSError as exc:
             self.notify(f"{exc.filename}: {exc.strerror}", title="Ticket not written", severity="error")
             return
