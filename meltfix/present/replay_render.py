@@ -5,7 +5,6 @@ Kept out of the domain objects (meltfix.records.replay) as meltfix.present.rende
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 
 from rich.console import Console, Group, RenderableType
@@ -16,7 +15,7 @@ from rich.text import Text
 from meltfix.base.units import Units
 from meltfix.plan.numbers import (content_text, kg_text, limit_text, margin_text, mass_text, money_text, recovery_text,
                                   temperature_text)
-from meltfix.plan.result import LIMIT_TOL_PCT, Addition
+from meltfix.plan.result import Addition, is_outside
 from meltfix.records.replay import ActualAddition, ElementPath, ReplayStep, summarise
 from meltfix.records.training import TrainingScore
 from meltfix.shop.elements import element_sort_key
@@ -40,8 +39,7 @@ def _window(symbol: str, low: float, high: float) -> str:
 
 
 def _outside(value: float, low: float, high: float | None) -> bool:
-    top = math.inf if high is None else high
-    return not low - LIMIT_TOL_PCT <= value <= top + LIMIT_TOL_PCT
+    return is_outside(value - low) or (high is not None and is_outside(high - value))
 
 
 def sample_mark(index: int) -> str:

@@ -7,11 +7,10 @@ import io
 from rich.console import Console
 
 from meltfix.base.units import Units
+from meltfix.plan import planner
 from meltfix.plan.numbers import (binding_text, content_text, limit_text, margin_text, miss_text, recovery_text,
                                   unit_of, with_unit)
-from meltfix.plan.result import LIMIT_TOL_PCT
-from meltfix.plan.result import LIMIT_TOL_PCT as PLANNER_TOL
-from meltfix.plan.result import Binding, is_outside
+from meltfix.plan.result import LIMIT_TOL_PCT, Binding, is_outside
 
 
 def test_limits_keep_the_decimals_their_standard_writes() -> None:
@@ -38,7 +37,7 @@ def test_contents_carry_one_decimal_more_than_their_limits_and_ppm_for_the_gases
 
 
 def test_a_miss_keeps_its_minus_and_float_noise_does_not() -> None:
-    assert LIMIT_TOL_PCT == PLANNER_TOL  # the planner judges limits with the same tolerance
+    assert planner.LIMIT_TOL_PCT is LIMIT_TOL_PCT  # the planner judges limits with the same tolerance
     assert margin_text("C", -0.00004) == "-0.000" and is_outside(-0.00004)
     assert margin_text("C", -LIMIT_TOL_PCT / 2) == "+0.000" and not is_outside(-LIMIT_TOL_PCT / 2)
     assert margin_text("N", -0.00001) == "-0.1"
