@@ -9,6 +9,7 @@ shut before solving.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,8 +18,10 @@ from meltfix.plan.deoxidation import oxygen_notes
 from meltfix.plan.dominance import HeatMaterials, dominated, most_kg
 from meltfix.plan.numbers import content_text, degrees_text, mass_text, temperature_text
 from meltfix.plan.plan_model import AIM_PENALTY_PER_KG, ModelShape
+from meltfix.plan.result import Addition
 from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magnesium_for_sulphur_pct, nodulariser_kg,
                                     unbound_sulphur_pct)
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
 
 _INF = math.inf
@@ -54,6 +57,12 @@ class HeatLoad:
     """Per material: this heat may receive it (allowed at the stage, not switched off, not forbidden)."""
     pruned: np.ndarray
     """Per material: dominated on this heat, so shut in ``col_upper``."""
+    grade: Grade
+    """The grade planned to: the model's own, or one with its limits moved (the odds search's insets)."""
+    limit_pct: np.ndarray
+    """Per window row: the limit in ``grade``."""
+    mass_coefficients: np.ndarray
+    """Per window row: its coefficient of the final bath mass M, the limit as a fraction (signed)."""
     notes: tuple[str, ...]
 
     @property
@@ -76,16 +85,24 @@ class _Columns:
     switched: np.ndarray
 
 
-def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True) -> HeatLoad:
-    """Bounds, costs and moving coefficients for ``heat``; ``prune`` shuts the dominated materials
-    (off only to check that pruning changes no plan's cost)."""
+def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True,
+            grade: Grade | None = None) -> HeatLoad:
+    """Bounds, costs and moving coefficients for ``heat``, planned to ``grade`` (the model's own when
+    None; else one with the same limits moved); ``prune`` shuts the dominated materials (off only to
+    check that pruning changes no plan's cost)."""
     notes: list[str] = []
     now, now_low, owed = _analysis_now(shape, heat, notes)
+    if grade is None:
+        grade, limit_pct = shape.grade, shape.limit_pct
+    else:
+        limit_pct = shape.limits_pct(grade)
+    mass_coefficients = shape.mass_coefficients(limit_pct)
     row_lower = np.full(shape.n_rows, -_INF)
     row_upper = np.full(shape.n_rows, _INF)
     # Every window row applies but a 0 % floor, which binds only an element in debt.
-    active = np.array([s is None or s in owed for s in shape.floor_symbol], dtype=bool)
-    upper = heat.bath_kg * (shape.window_bounds @ np.concatenate((now_low, now)) + shape.window_constant)
+    floor = shape.element_min & (limit_pct <= 0)
+    active = ~floor | np.array([row.element in owed for row in shape.window_rows], dtype=bool) if owed else ~floor
+    upper = heat.bath_kg * (shape.window_bounds @ np.concatenate((now_low, now)))
     row_upper[shape.windows.span] = np.where(active, upper, _INF)
     coefficients, reheat_max_c, reheat_cost = _row_bounds(shape, heat, now, row_lower, row_upper, notes)
     columns = _material_load(shape, heat)
@@ -94,7 +111,10 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     pruned = np.zeros(shape.n_materials, dtype=bool)
     col_upper_all = col_upper
     if prune and not shape.pairs.empty:
-        pruned = _dominated(shape, heat, columns, col_upper, row_upper, switch_most_kg)
+        # The room left on each window row, per the rows' coefficients with M's growth counted in.
+        room = row_upper[shape.windows.span] - heat.bath_kg * mass_coefficients
+        pruned = _dominated(shape, heat, columns, col_upper, shape.window_per_kg(mass_coefficients), room,
+                            row_upper[shape.capacity.first], switch_most_kg)
         col_upper = col_upper.copy()
         col_upper[shape.col_mat][pruned] = 0.0
         col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
@@ -108,7 +128,7 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     integrality[shape.col_switch] = 1
     return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, integrality, tuple(coefficients),
                     columns.packed, columns.switched, columns.locked_kg, columns.prices, active, columns.can_use,
-                    pruned, tuple(notes))
+                    pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
 
 def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.ndarray, np.ndarray, dict[str, float]]:
@@ -269,13 +289,25 @@ def _switch_rows(shape: ModelShape, heat: Heat, columns: _Columns, row_upper: np
     return most
 
 
-def _dominated(shape: ModelShape, heat: Heat, columns: _Columns, col_upper: np.ndarray, row_upper: np.ndarray,
-               switch_most_kg: np.ndarray) -> np.ndarray:
+def _dominated(shape: ModelShape, heat: Heat, columns: _Columns, col_upper: np.ndarray, window_per_kg: np.ndarray,
+               window_room: np.ndarray, capacity_room: float, switch_most_kg: np.ndarray) -> np.ndarray:
     """Per material: dominated on this heat (meltfix.plan.dominance), judged on the rows that keep
-    their limits: the windows and the vessel's capacity."""
-    coefficients = np.vstack((shape.window_per_kg, shape.g[None, :]))
-    upper = np.append(row_upper[shape.windows.span], row_upper[shape.capacity.first])
+    their limits: the windows (their change per kg and the room left on each) and the vessel's capacity."""
+    coefficients = np.vstack((window_per_kg, shape.g[None, :]))
+    upper = np.append(window_room, capacity_room)
     most = most_kg(coefficients, upper, col_upper[shape.col_mat] * shape.scale)
     materials = HeatMaterials(columns.prices, columns.stock, columns.can_use, ~np.isnan(columns.locked_kg),
                               columns.packed, columns.switched, shape.min_kg, shape.pack, most, switch_most_kg)
     return dominated(shape.pairs, materials)
+
+
+def integer_choices(shape: ModelShape, load: HeatLoad, additions: Sequence[Addition]) -> np.ndarray:
+    """A plan's packs and on/off choices as values of the model's integer columns (the others 0):
+    where branch and bound may start when that plan is known to stay feasible."""
+    kg = np.zeros(shape.n_materials)
+    for a in additions:
+        kg[shape.column_of[a.material]] = a.kg
+    values = np.zeros(shape.n_cols)
+    values[shape.col_mat] = np.where(load.packed, np.rint(kg / shape.scale), 0.0)
+    values[shape.col_switch] = (kg[shape.switchable] > 0) & load.switched[shape.switchable]
+    return values

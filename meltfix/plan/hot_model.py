@@ -80,6 +80,7 @@ class HotModel:
         self.highs.passModel(lp)
         self._all_cols = np.arange(shape.n_cols, dtype=np.int32)
         self._all_rows = np.arange(shape.n_rows, dtype=np.int32)
+        self._mass_coefficients = shape.mass_coefficients(shape.limit_pct)  # as passed
         self._continuous = np.zeros(shape.n_cols, dtype=np.uint8)
         self._integrality = self._continuous  # as passed: no integrality at all
 
@@ -92,6 +93,13 @@ class HotModel:
         highs.changeRowsBounds(self.shape.n_rows, self._all_rows, heat.row_lower, heat.row_upper)  # type: ignore[attr-defined]
         for row, col, value in heat.coefficients:
             highs.changeCoeff(row, col, value)
+        # The window rows' limits, written only where they differ from the last heat's (a heat
+        # planned to its own grade changes none; an inset of the odds search changes a few).
+        moved = np.flatnonzero(heat.mass_coefficients != self._mass_coefficients)
+        for k in moved.tolist():
+            highs.changeCoeff(self.shape.windows.first + k, self.shape.col_mass, float(heat.mass_coefficients[k]))
+        if moved.size:
+            self._mass_coefficients = heat.mass_coefficients
 
     def set_bounds(self, lower: np.ndarray, upper: np.ndarray) -> None:
         self.highs.changeColsBounds(self.shape.n_cols, self._all_cols, lower, upper)
@@ -110,14 +118,16 @@ class HotModel:
         solution = self.highs.getSolution()
         return Solution(np.array(solution.col_value), np.array(solution.row_dual), np.array(solution.col_dual))
 
-    def solve_mip(self, time_limit_s: float, rel_gap: float, integer: np.ndarray) -> tuple[Solution | None, bool]:
+    def solve_mip(self, time_limit_s: float, rel_gap: float, integer: np.ndarray,
+                  hint: np.ndarray | None = None) -> tuple[Solution | None, bool]:
         """Branch and bound on the columns marked in ``integer`` within ``time_limit_s``: (the best
-        integer point or None, whether the time ran out)."""
+        integer point or None, whether the time ran out). ``hint``: values of the integer columns
+        a feasible point is known to have (HiGHS completes it and starts from it)."""
         self._integers(integer)
         highs = self.highs
         highs.setOptionValue("time_limit", max(time_limit_s, 1e-3))
         highs.setOptionValue("mip_rel_gap", rel_gap)
-        self._run()
+        self._run(None if hint is None else np.flatnonzero(integer).astype(np.int32), hint)
         highs.setOptionValue("time_limit", _INF)  # the LPs have no budget of their own
         status = highs.getModelStatus()
         info = highs.getInfo()
@@ -136,9 +146,12 @@ class HotModel:
             self.highs.changeColsIntegrality(self.shape.n_cols, self._all_cols, values)
             self._integrality = values
 
-    def _run(self) -> bool:
+    def _run(self, columns: np.ndarray | None = None, hint: np.ndarray | None = None) -> bool:
         # Each solve starts from no basis, so a heat's plan never depends on the heats planned
-        # before it on this model (ties between equally cheap plans break the same way every time).
+        # before it on this model (ties between equally cheap plans break the same way every time);
+        # only a hint given for this solve carries over.
         self.highs.clearSolver()
+        if columns is not None and hint is not None:
+            self.highs.setSolution(len(columns), columns, hint[columns])
         self.highs.run()
         return self.highs.getModelStatus() == highspy.HighsModelStatus.kOptimal

@@ -35,34 +35,26 @@ def tightened(grade: Grade, inset_pct: Mapping[str, float]) -> Grade:
 _LIMIT_NAME = re.compile(r"^(?P<label>\S+ (?:min|max)) (?P<pct>[-0-9.e+]+) %$")
 
 
-def loosened(heat: Heat, book: RecipeBook, grade: Grade, name: str) -> tuple[Heat, RecipeBook] | None:
-    """The heat and book with the limit or resource ``name`` (a Binding's name) loosened by the
-    binding's unit: a limit by 0.01 %, the capacity by 1 t, the drop by 1 °C, a stock by 1 kg."""
+def loosened(heat: Heat, book: RecipeBook, grade: Grade, name: str) -> tuple[Heat, Grade] | None:
+    """The heat, and the grade to plan it to, with the limit or resource
+    ``name`` (a Binding's name) of ``grade`` loosened by the binding's unit: a limit by 0.01 %, the
+    capacity by 1 t, the drop by 1 °C, a stock by 1 kg."""
     match = _LIMIT_NAME.match(name)
     if match:
-        label = match["label"]
-        symbol, side = label.rsplit(" ", 1)
-        return heat, replace(book, grades=MappingProxyType(
-            {**book.grades, heat.grade: _moved(grade, symbol, side, 0.01)}))
+        symbol, side = match["label"].rsplit(" ", 1)
+        return heat, _moved(grade, symbol, side, 0.01)
     if name == "vessel capacity" and heat.capacity_kg is not None:
-        return heat.with_changes(capacity_kg=heat.capacity_kg + 1000.0), _with(book, grade, heat)
+        return heat.with_changes(capacity_kg=heat.capacity_kg + 1000.0), grade
     if name == "temperature drop limit":
         limit = heat.drop_limit_c(book.settings)
-        return (None if limit is None else (heat.with_changes(max_temp_drop_c=limit + 1.0), _with(book, grade, heat)))
+        return None if limit is None else (heat.with_changes(max_temp_drop_c=limit + 1.0), grade)
     if name.startswith("stock of "):
         material = book.material(name.removeprefix("stock of "))
         stock = heat.material_stock_kg(material)
         if stock is None:
             return None
-        return heat.with_changes(stock_kg={**heat.stock_kg, material.name: stock + 1.0}), _with(book, grade, heat)
+        return heat.with_changes(stock_kg={**heat.stock_kg, material.name: stock + 1.0}), grade
     return None
-
-
-def _with(book: RecipeBook, grade: Grade, heat: Heat) -> RecipeBook:
-    """The book with ``grade`` in place of the heat's (the same book when it is the book's own)."""
-    if book.grade(heat.grade) is grade:
-        return book
-    return replace(book, grades=MappingProxyType({**book.grades, heat.grade: grade}))
 
 
 def _moved(grade: Grade, symbol: str, side: str, by_pct: float) -> Grade:

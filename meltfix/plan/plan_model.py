@@ -44,13 +44,12 @@ _LEAST_LIMIT_PCT = 1e-3
 
 @dataclass(frozen=True)
 class WindowRow:
-    """One limit row of the model: label and limit, for reading duals and violations back."""
+    """One limit row of the model: its label, for reading duals and violations back."""
 
     element: str
     """Element symbol, or an index name such as "CEV"."""
     limit: str
     """"min" or "max"."""
-    limit_pct: float
 
 
 @dataclass(frozen=True)
@@ -79,7 +78,8 @@ class Rows:
 class ModelShape:
     """The fixed part of the model for one grade, stage and mode: columns, rows and their coefficients."""
 
-    def __init__(self, book: RecipeBook, grade: Grade, stage: str, continuous: bool, use_aim: bool) -> None:
+    def __init__(self, book: RecipeBook, grade: Grade, stage: str, continuous: bool, use_aim: bool,
+                 minimums: bool = True) -> None:
         self.book, self.grade = book, grade
         # Every material of the book, as it behaves at this stage (its recoveries there); a heat
         # bounds the ones it may not use at 0.
@@ -97,7 +97,7 @@ class ModelShape:
         self.packable = (self.pack > 0) & (not continuous)
         self.scale = np.where(self.packable, self.pack, 1.0)
         """kg per unit of each material column (pack mass, or 1)."""
-        self.min_kg = np.array([m.min_kg for m in materials])
+        self.min_kg = np.array([m.min_kg if minimums else 0.0 for m in materials])
         self.switchable = np.flatnonzero(self.min_kg > 0)
         """Materials with a minimum addition, in the order of their on/off columns."""
         self.chill = np.array([m.chill_per_kg_t for m in materials])
@@ -165,21 +165,16 @@ class ModelShape:
         self.book_prices = np.array([m.price_per_kg for m in book.materials], dtype=float)
         self.book_stock = np.array([_or_inf(m.stock_kg) for m in book.materials], dtype=float)
         # Row r's bound per kg of bath: low[r] . (analysis, below-limit readings at 0)
-        # + now[r] . (analysis) + constant[r], all as fractions; low and now side by side.
+        # + now[r] . (analysis), as fractions; low and now side by side (the limit is M's coefficient).
         n_el = len(self.elements)
         low, now = np.zeros((self.n_window, n_el)), np.zeros((self.n_window, n_el))
-        constant = np.zeros(self.n_window)
-        self.floor_symbol: list[str | None] = []
-        """Per window row: the element whose 0 % floor is a row only when deoxidation leaves it in debt."""
         r = 0
-        for symbol, (lowest, highest) in grade.window_pct.items():
+        for symbol, (_, highest) in grade.window_pct.items():
             k = self.row_of[symbol]
-            low[r, k], constant[r] = 1.0, -lowest / 100.0
-            self.floor_symbol.append(symbol if lowest <= 0 else None)
+            low[r, k] = 1.0
             r += 1
             if highest < 100:
-                now[r, k], constant[r] = -1.0, highest / 100.0
-                self.floor_symbol.append(None)
+                now[r, k] = -1.0
                 r += 1
         for index in grade.indices:
             weights = np.array([index.terms.get(s, 0.0) for s in self.elements])
@@ -189,10 +184,11 @@ class ModelShape:
             for bound, sign in ((index.min_value, 1.0), (index.max_value, -1.0)):
                 if bound is not None:
                     low[r], now[r] = (positive, negative) if sign > 0 else (-negative, -positive)
-                    constant[r] = -sign * bound / 100.0
-                    self.floor_symbol.append(None)
                     r += 1
-        self.window_bounds, self.window_constant = np.hstack((low, now)), constant
+        self.window_bounds = np.hstack((low, now))
+        self.element_min = np.array([row.limit == "min" and row.element in grade.window_pct
+                                     for row in self.window_rows], dtype=bool)
+        """Per window row: an element's minimum (at 0 % a row only when deoxidation leaves it in debt)."""
 
     # -- row families -----------------------------------------------------------------------------
     def _material_block(self, coefficients: np.ndarray) -> np.ndarray:
@@ -207,31 +203,65 @@ class ModelShape:
                 + sum((i.min_value is not None) + (i.max_value is not None) for i in grade.indices))
 
     def _window_rows(self) -> Rows:
-        """lo M <= m_i <= hi M per window, and a linear index likewise, each with its elastic slack.
+        """lo M - m_i <= 0 and m_i - hi M <= 0 per window, and a linear index likewise, each with its
+        elastic slack. The limit is the coefficient of M alone, so a grade with its limits moved
+        (the odds search's insets) is the same model with one coefficient per row changed.
 
         Every element gets its minimum row (a 0 % floor binds only an element in debt to
         deoxidation; on other heats it is left open); a maximum of 100 % is no row."""
-        coefficients = []
-        for symbol, (low, high) in self.grade.window_pct.items():
+        y_part, sign = [], []
+        for symbol, (_, high) in self.grade.window_pct.items():
             y = self.yields[self.row_of[symbol]]
-            coefficients.append(-(y - low / 100.0 * self.g))
-            self.window_rows.append(WindowRow(symbol, "min", low))
+            y_part.append(-y)
+            sign.append(1.0)
+            self.window_rows.append(WindowRow(symbol, "min"))
             if high < 100:
-                coefficients.append(y - high / 100.0 * self.g)
-                self.window_rows.append(WindowRow(symbol, "max", high))
+                y_part.append(y)
+                sign.append(-1.0)
+                self.window_rows.append(WindowRow(symbol, "max"))
         for index in self.grade.indices:
             weights = np.array([index.terms.get(s, 0.0) for s in self.elements])
-            if index.min_value is not None:
-                coefficients.append(-(weights @ self.yields - index.min_value / 100.0 * self.g))
-                self.window_rows.append(WindowRow(index.name, "min", index.min_value))
-            if index.max_value is not None:
-                coefficients.append(weights @ self.yields - index.max_value / 100.0 * self.g)
-                self.window_rows.append(WindowRow(index.name, "max", index.max_value))
-        self.window_per_kg = np.array(coefficients).reshape(len(coefficients), self.n_materials)
-        """The window rows' coefficients per kg of each material (what meltfix.plan.dominance reads)."""
-        block = self._material_block(self.window_per_kg)
+            for bound, side, direction in ((index.min_value, "min", -1.0), (index.max_value, "max", 1.0)):
+                if bound is not None:
+                    y_part.append(direction * (weights @ self.yields))
+                    sign.append(-direction)
+                    self.window_rows.append(WindowRow(index.name, side))
+        self.window_y_per_kg = np.array(y_part).reshape(len(y_part), self.n_materials)
+        """The window rows' coefficients per kg of each material, the limit's part aside."""
+        self.window_sign = np.array(sign)
+        """Per window row: +1 for a minimum (the coefficient of M is the limit), -1 for a maximum."""
+        self.limit_pct = self.limits_pct(self.grade)
+        """The model's own grade's limit of each window row [wt %, or the index's unit]."""
+        block = self._material_block(self.window_y_per_kg)
+        block[:, self.col_mass] = self.mass_coefficients(self.limit_pct)
         block[np.arange(self.n_window), self.col_slack.start + np.arange(self.n_window)] = -1.0
         return Rows(block)
+
+    def limits_pct(self, grade: Grade) -> np.ndarray:
+        """The limit of each window row in ``grade``, a grade with this model's rows (its own, or
+        one with its limits moved)."""
+        limits = []
+        for row in self.window_rows:
+            if row.element in grade.window_pct:
+                limits.append(grade.window_pct[row.element][0 if row.limit == "min" else 1])
+            else:
+                index = next(ix for ix in grade.indices if ix.name == row.element)
+                value = index.min_value if row.limit == "min" else index.max_value
+                assert value is not None, f"{grade.name}: {row.element} {row.limit} has no limit"
+                limits.append(value)
+        return np.array(limits, dtype=float)
+
+    def mass_coefficients(self, limit_pct: np.ndarray) -> np.ndarray:
+        """The window rows' coefficients of M for these limits: the limit as a fraction, signed,
+        never 0 (HiGHS deletes a coefficient set to 0, and the matrix's structure must not move
+        with a heat: 1e-12 of M tightens a limit of 0 by 1e-10 wt %, under LIMIT_TOL_PCT)."""
+        coefficients = self.window_sign * limit_pct / 100.0
+        return np.where(np.abs(coefficients) < 1e-12, 1e-12, coefficients)
+
+    def window_per_kg(self, mass_coefficients: np.ndarray) -> np.ndarray:
+        """Each window row's change per kg of each material, M's growth included (what
+        meltfix.plan.dominance reads), for the rows' coefficients of M."""
+        return self.window_y_per_kg + mass_coefficients[:, None] * self.g[None, :]
 
     def _capacity_row(self) -> Rows:
         """M - W <= free capacity."""
@@ -302,7 +332,7 @@ class ModelShape:
 
     def limit_fraction(self) -> np.ndarray:
         """Each window row's limit as a fraction, floored (the violation weights' scale)."""
-        return np.array([max(row.limit_pct, _LEAST_LIMIT_PCT) / 100.0 for row in self.window_rows])
+        return np.maximum(self.limit_pct, _LEAST_LIMIT_PCT) / 100.0
 
 
 def _yields(materials: Sequence[Material], elements: Sequence[str]) -> np.ndarray:

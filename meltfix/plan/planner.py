@@ -23,7 +23,7 @@ import numpy as np
 
 from meltfix.base.errors import InputError
 from meltfix.plan.cautions import BathState, plan_cautions
-from meltfix.plan.heat_load import HeatLoad, load_of
+from meltfix.plan.heat_load import HeatLoad, integer_choices, load_of
 from meltfix.plan.hot_model import HotModel, Solution
 from meltfix.plan.massbalance import recheck, temperature_drop_c
 from meltfix.plan.numbers import degrees_text, temperature_text
@@ -31,6 +31,7 @@ from meltfix.plan.plan_model import ModelShape
 from meltfix.plan.reasons import explain_violation
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition
 from meltfix.plan.sequence import sequence_additions
+from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.shop.materials import Material
 from meltfix.shop.recipes import RecipeBook
@@ -51,7 +52,7 @@ _SEARCH_SHARE = 0.8
 class Planner:
     """Plans heats against one recipe book. Build once, plan many heats, from any number of threads.
 
-    Each (grade, stage, continuous, use_aim) has one model shape; each thread planning at a time takes a
+    Each (grade, stage, mode) has one model shape; each thread planning at a time takes a
     hot HiGHS model of that shape from a pool (building one when all are busy) and gives it back.
     """
 
@@ -62,17 +63,18 @@ class Planner:
         in the test that pruning changes no plan's cost."""
         self._lock = threading.Lock()
         # Keyed by grade, stage, mode and the elements declared not measured (their limits are no rows).
-        self._shapes: dict[tuple[str, str, bool, bool, frozenset[str]], ModelShape] = {}
-        self._idle: dict[tuple[str, str, bool, bool, frozenset[str]], list[HotModel]] = {}
+        self._shapes: dict[tuple[str, str, bool, bool, bool, frozenset[str]], ModelShape] = {}
+        self._idle: dict[tuple[str, str, bool, bool, bool, frozenset[str]], list[HotModel]] = {}
 
     @contextmanager
     def _model(self, heat: Heat, options: PlanOptions) -> Iterator[HotModel]:
-        key = (heat.grade, heat.stage, options.continuous, options.use_aim, heat.not_measured)
+        key = (heat.grade, heat.stage, options.continuous, options.use_aim, options.relaxed, heat.not_measured)
         with self._lock:
             shape = self._shapes.get(key)
             if shape is None:
                 shape = self._shapes[key] = ModelShape(self.book, checked_grade(heat, self.book.grade(heat.grade)),
-                                                       heat.stage, options.continuous, options.use_aim)
+                                                       heat.stage, options.continuous or options.relaxed,
+                                                       options.use_aim, minimums=not options.relaxed)
             idle = self._idle.setdefault(key, [])
             model = idle.pop() if idle else None
         if model is None:
@@ -83,25 +85,33 @@ class Planner:
             with self._lock:
                 self._idle[key].append(model)
 
-    def plan(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan:
-        """Plan one heat. Raises InputError when the heat does not fit the recipe book."""
-        return cast(Plan, self._plan(heat, options, closest=True))  # a closest plan always exists
+    def plan(self, heat: Heat, options: PlanOptions = PlanOptions(), grade: Grade | None = None,
+             start: Plan | None = None) -> Plan:
+        """Plan one heat. Raises InputError when the heat does not fit the recipe book.
 
-    def plan_inside(self, heat: Heat, options: PlanOptions = PlanOptions()) -> Plan | None:
+        ``grade``: plan to the heat's grade with its limits moved (the same limits of the same
+        elements, each at another value) instead of the book's; the hot model is the same.
+        ``start``: a plan of this heat that still meets these windows (one planned before a limit
+        was loosened): branch and bound starts from its packs and on/off choices."""
+        return cast(Plan, self._plan(heat, options, True, grade, start))  # a closest plan always exists
+
+    def plan_inside(self, heat: Heat, options: PlanOptions = PlanOptions(), grade: Grade | None = None) -> Plan | None:
         """The plan when the solver finds one inside every window; None, without the closest-plan
         phases, when it finds none (the odds search asks this of windows it has moved in)."""
-        return self._plan(heat, options, closest=False)
+        return self._plan(heat, options, False, grade)
 
-    def _plan(self, heat: Heat, options: PlanOptions, closest: bool) -> Plan | None:
+    def _plan(self, heat: Heat, options: PlanOptions, closest: bool, grade: Grade | None,
+              start: Plan | None = None) -> Plan | None:
         validate_heat(heat, self.book)
         settings = self.book.settings
         penalty = options.aim_penalty if options.aim_penalty is not None else settings.aim_penalty
         budget_s = options.time_limit_s if options.time_limit_s is not None else settings.plan_time_limit_s
         deadline = time.monotonic() + _SEARCH_SHARE * budget_s
         with self._model(heat, options) as model:
-            load = load_of(model.shape, heat, penalty, self.prune)
+            load = load_of(model.shape, heat, penalty, self.prune, grade)
             model.load(load)
-            solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options)
+            hint = None if start is None else integer_choices(model.shape, load, start.additions)
+            solution = _solve(model, load, load.col_lower, load.col_upper, deadline, options, hint)
             if solution is None and not closest:
                 return None
             least = None
@@ -112,7 +122,7 @@ class Planner:
     def _result(self, heat: Heat, model: HotModel, load: HeatLoad, solution: Solution,
                 least: Solution | None, budget_s: float) -> Plan:
         book, shape = self.book, model.shape
-        grade = shape.grade
+        grade = load.grade
         additions, used = _additions(shape, load, solution.x)
         steps = sequence_additions(used, book.settings)
         by_name = {a.material: a for a in additions}
@@ -178,7 +188,7 @@ class Planner:
             return []
         book = self.book
         least_used = _additions(shape, load, least_x)[1] if least_x is not None else used
-        least_final_kg = recheck(heat, shape.grade, least_used, book.settings)[0]
+        least_final_kg = recheck(heat, load.grade, least_used, book.settings)[0]
         least_drop = temperature_drop_c(heat.bath_kg, least_used) if least_used else 0.0
         usable = tuple(shape.materials[j] for j in load.can_use.nonzero()[0])
         violations = []
@@ -216,7 +226,7 @@ def _temperature(heat: Heat, book: RecipeBook, shape: ModelShape, x: np.ndarray,
 
 
 def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray, deadline: float,
-           options: PlanOptions) -> Solution | None:
+           options: PlanOptions, hint: np.ndarray | None = None) -> Solution | None:
     """Solve the loaded problem (or its elastic version) within the column bounds ``lower`` and
     ``upper``: None = infeasible.
 
@@ -242,7 +252,7 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     if point is not None:
         return replace(relaxed, x=point)
     fixed = load.integrality > 0
-    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed)
+    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed, hint)
     if found is None:
         if not timed_out:
             return None
@@ -335,11 +345,11 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     # HiGHS's duals are d(cost) / d(row bound); loosening a "<=" row raises its bound.
     saving = -duals.row_dual
     bindings: list[Binding] = []
-    # Loosening a limit by 0.01 wt % moves its right-hand side by final mass x 1e-4.
+    # Loosening a limit by 0.01 wt % moves its coefficient of M by 1e-4: its right-hand side by final mass x 1e-4.
     limit_worth = saving[shape.windows.span] * final_kg * 1e-4
     for k in (limit_worth > 1e-6).nonzero()[0]:
         row = shape.window_rows[k]
-        bindings.append(Binding(f"{row.element} {row.limit} {row.limit_pct:g} %", float(limit_worth[k]),
+        bindings.append(Binding(f"{row.element} {row.limit} {load.limit_pct[k]:g} %", float(limit_worth[k]),
                                 f"0.01 % {'higher' if row.limit == 'max' else 'lower'} limit"))
     capacity = saving[shape.capacity.first] * 1000.0
     if capacity > 1e-6:

@@ -35,6 +35,9 @@ class PlanOptions:
     """Pull the heat towards the grade's aims; False gives the cheapest plan inside the windows."""
     continuous: bool = False
     """Treat materials sold in packs as loose (any amount)."""
+    relaxed: bool = False
+    """Loose amounts and no minimum additions either: the linear relaxation alone, a quick first look
+    (the odds search walks its insets on it before it plans any in whole packs)."""
     aim_penalty: float | None = None
     """Aim weight [currency per 0.01 wt % off aim per tonne of bath]; None = the shop's setting."""
     mip_rel_gap: float = 1e-6

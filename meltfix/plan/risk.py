@@ -16,7 +16,6 @@ simulation found for the last plan) only says which inset to try next, so that f
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
-from types import MappingProxyType
 
 import numpy as np
 
@@ -183,9 +182,8 @@ class RiskPlanner:
             moved = loosened(heat, self.book, grade, binding.name)
             if moved is None:
                 continue
-            again_heat, again_book = moved
-            again = Planner(again_book).plan(again_heat, options) if again_book is not self.book \
-                else self.planner.plan(again_heat, options)
+            again_heat, again_grade = moved
+            again = self.planner.plan(again_heat, options, again_grade, start=plan)
             saving = plan.total_cost - again.total_cost
             if again.status == "optimal" and saving >= _LEAST_SHOWN:
                 confirmed.append(replace(binding, name=real_name(binding.name, real), saving=saving))
@@ -196,29 +194,42 @@ class RiskPlanner:
         """The least inset (on the grid of _Z_STEP sigmas) whose plan the simulation finds at or
         above the target.
 
-        Packs make a plan a branch and bound, several times dearer than the same plan with loose
-        amounts, so the insets are first searched with loose amounts (a ladder of LPs), and the
-        plans in whole packs then start from the least loose inset that reaches the target and go
-        deeper only while they fall short. Both ladders are the target's own only through where
-        they start, and a deeper inset never makes a plan cheaper nor less likely inside, so a
-        higher target still gets a plan at least as costly and at least as safe.
+        Packs and minimum additions make a plan a branch and bound, many times dearer than its
+        linear relaxation, so the insets are first searched on the relaxation (a ladder of LPs: loose
+        amounts, no minimums), and the plans as the shop adds them then start from the least relaxed
+        inset that reaches the target and go deeper only while they fall short. An inset whose
+        relaxation cannot be met cannot be met in whole packs either. Where no relaxed plan reaches
+        the target, the plans as added start at the relaxed plan with the best odds and go deeper
+        while the odds still rise (unless that plan in packs reaches it after all). Both ladders are
+        the target's own only through where they start, and a deeper inset never makes a plan
+        cheaper nor less likely inside, so a higher target still gets a plan at least as costly and
+        at least as safe.
         """
-        start = 0
-        sigma = None
-        if not options.continuous:
-            loose = _Ladder(self, heat, replace(options, continuous=True), trial, paper)
+        start, sigma, closed, best_relaxed = 0, None, None, None
+        if not options.relaxed:
+            loose = _Ladder(self, heat, replace(options, relaxed=True), trial, paper)
             reached = _least_reaching(loose, target, 0, _least_inset(paper, target))
-            start = reached if reached <= _Z_STEPS and loose.plans.get(reached) is not None else 0
             sigma = loose.sigma
-        ladder = _Ladder(self, heat, options, trial, paper, sigma)
+            closed = min((k for k, t in loose.plans.items() if t is None), default=None)
+            if reached <= _Z_STEPS and loose.plans.get(reached) is not None:
+                start = reached
+            else:
+                best_relaxed = max((t.odds.heat, -k) for k, t in loose.plans.items() if t is not None)[1] * -1
+        ladder = _Ladder(self, heat, options, trial, paper, sigma, closed)
+        if best_relaxed is not None and not _reaches(ladder.at(best_relaxed), target):
+            _deeper_while_rising(ladder, best_relaxed)
+            return self._short(ladder, target, trial)
         guess = start if start > 0 else _least_inset(paper, target)
         high = _least_reaching(ladder, target, max(start - 1, 0), guess)
         best = ladder.plans.get(high)
-        if best is not None and best.odds.heat >= target and best.odds.resolves(target):
+        if best is not None and _reaches(best, target):
             return _noted(best, f"planned to {target:.0%} odds: each limit kept {best.z:.2f} standard "
                                 "deviations of its scatter inside")
-        best = max([t for t in ladder.plans.values() if t is not None],
-                   key=lambda t: (t.odds.heat, -t.plan.total_cost))
+        return self._short(ladder, target, trial)
+
+    def _short(self, ladder: _Ladder, target: float, trial: Trial) -> _Tried:
+        """The plan with the best odds the ladder found, and why it falls short of the target."""
+        best = max([t for t in ladder.plans.values() if t is not None], key=lambda t: (t.odds.heat, -t.plan.total_cost))
         if not best.odds.resolves(target):
             return _noted(best, f"a {target:.4%} target cannot be told from certainty with {trial.draws:,} draws "
                                 f"(--draws); best odds {best.odds.heat:.1%}")
@@ -244,11 +255,13 @@ class _Ladder:
     """
 
     def __init__(self, risk: RiskPlanner, heat: Heat, options: PlanOptions, trial: Trial, paper: _Tried,
-                 sigma: np.ndarray | None = None) -> None:
+                 sigma: np.ndarray | None = None, closed: int | None = None) -> None:
         self.risk, self.heat, self.options, self.trial, self.paper = risk, heat, options, trial, paper
         self.grade = checked_grade(heat, risk.book.grade(heat.grade))
         self.labels = [f"{c.element} {c.limit}" for c in paper.plan.checks]
         self.plans: dict[int, _Tried | None] = {0: paper}
+        if closed is not None:  # the windows closed there on the relaxation: in whole packs too
+            self.plans[closed] = None
         self.sigma = paper.sigma if sigma is None else sigma
         """Each limit's sigma [wt %] every inset is planned with: the fixed point at the anchor, or
         the one given (a loose ladder's, for the ladder in whole packs that follows it)."""
@@ -273,8 +286,7 @@ class _Ladder:
         """The plan with every limit moved in by z sigma; None when the tightened grade cannot be met."""
         book, heat, grade = self.risk.book, self.heat, self.grade
         tight = tightened(grade, dict(zip(self.labels, z * self.sigma)))
-        candidate = Planner(replace(book, grades=MappingProxyType({**book.grades, grade.name: tight}))).plan_inside(
-            heat, self.options)
+        candidate = self.risk.planner.plan_inside(heat, self.options, tight)
         if candidate is None or candidate.status != "optimal":
             return None
         used = [(stage_material(heat, book, a.material), a.kg) for a in candidate.additions]
@@ -283,12 +295,27 @@ class _Ladder:
 
 
 
+def _reaches(tried: _Tried | None, target: float) -> bool:
+    return tried is not None and tried.odds.heat >= target and tried.odds.resolves(target)
+
+
+def _deeper_while_rising(ladder: _Ladder, k: int) -> None:
+    """Plan ``ladder`` one inset deeper than ``k`` at a time while the odds rise and the windows close."""
+    last = ladder.at(k)
+    while k < _Z_STEPS and last is not None:
+        k += 1
+        deeper = ladder.at(k)
+        if deeper is None or deeper.odds.heat <= last.odds.heat:
+            return
+        last = deeper
+
+
 def _least_reaching(ladder: _Ladder, target: float, low: int, guess: int | None) -> int:
     """The least grid step above ``low`` whose plan on ``ladder`` reaches ``target`` (past the grid:
     _Z_STEPS + 1), by a bracket that only narrows: each inset tried is the closed form's guess when it
     falls inside the bracket, else a step from the bound just moved that doubles while the guesses
     stay outside (whole packs make the odds jump where no closed form sees it)."""
-    high = _Z_STEPS + 1
+    high = min((k for k, t in ladder.plans.items() if t is None and k > low), default=_Z_STEPS + 1)
     stride, reached = 1, False
     while high - low > 1:
         if guess is not None and low < guess < high:
@@ -300,7 +327,7 @@ def _least_reaching(ladder: _Ladder, target: float, low: int, guess: int | None)
             stride *= 2
         tried = ladder.at(k)
         # Reached, or the windows cannot close this far: deeper is no better.
-        reached = tried is None or (tried.odds.heat >= target and tried.odds.resolves(target))
+        reached = tried is None or _reaches(tried, target)
         low, high = (low, k) if reached else (k, high)
         guess = None if tried is None else _least_inset(tried, target)
     return high
