@@ -65,9 +65,7 @@ def plan_cautions(additions: Sequence[tuple[Material, float]], bath_kg: float, t
         )
     cautions += _temperature(temperature_c, temperature_drop_c, bath, settings)
     materials = [m for m, _ in additions]
-    hot = sorted({m.name for m in materials
-                  if any(m.composition_pct.get(s, 0.0) >= pct for s, pct in _EXOTHERMIC_PCT.items())
-                  or m.chill_per_kg_t < 0})
+    hot = sorted({m.name for m in materials if m.chill_per_kg_t < 0 or _bearing(m, _EXOTHERMIC_PCT)})
     if hot:
         cautions.append(f"{', '.join(hot)}: reacts exothermically (aluminium, silicon, calcium or magnesium "
                         "bearing) — expect flare and spatter; add through the shop's chute or wire, never by hand, "
@@ -108,8 +106,7 @@ def _reactions(materials: Sequence[Material], bath: BathState) -> list[str]:
                         f"{with_unit('O', content_text('O', bath.dissolved_o_ppm / PPM_PER_PCT))} "
                         "dissolved oxygen; carbon and oxygen react to CO at once and the bath can boil over violently. "
                         "Deoxidise first, add carbon slowly in small lots, keep the freeboard and stand clear.")
-    fume = sorted({f"{m.name} ({'/'.join(s for s, pct in _FUME_PCT.items() if m.composition_pct.get(s, 0.0) >= pct)})"
-                   for m in materials if any(m.composition_pct.get(s, 0.0) >= pct for s, pct in _FUME_PCT.items())})
+    fume = sorted({f"{m.name} ({'/'.join(fumes)})" for m in materials if (fumes := _bearing(m, _FUME_PCT))})
     if fume:
         cautions.append(f"Fume: {', '.join(fume)} give off manganese or chromium fume as they dissolve; run the fume "
                         "extraction and wear the respiratory protection the shop's rules require.")
@@ -137,3 +134,10 @@ def _handling(additions: Sequence[tuple[Material, float]], bath: BathState, unit
             cautions.append(f"Freeboard: the bath will be within {mass_text(free, units)} of the vessel's capacity; leave room "
                             "for slag and a boil, and add slowly.")
     return cautions
+
+
+def _bearing(material: Material, least_pct: dict[str, float]) -> list[str]:
+    """The elements of ``least_pct`` that ``material`` holds at least that much of [wt %], in its order
+    (every plan asks this of each material it uses: one list, not an any() over a generator per element)."""
+    composition = material.composition_pct
+    return [symbol for symbol, pct in least_pct.items() if composition.get(symbol, 0.0) >= pct]

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable, Mapping, Sequence
+from functools import lru_cache
 
 from meltfix.plan.result import LimitCheck, limit_checks
 from meltfix.plan.treatment import contents_owed_pct
@@ -29,18 +30,39 @@ def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],
     binds (meltfix.plan.deoxidation), so a content can come out below 0 % when the debt is not paid.
     The bath mass is left as it is: the alumina leaving takes under 0.1 % of it at 400 ppm O.
     """
-    element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in analysis_pct.items()}
-    for symbol, pct in (owed_pct or {}).items():
-        element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
+    final_kg, (predicted,) = _baths_after(bath_kg, (analysis_pct,), additions, owed_pct or {})
+    return final_kg, predicted
+
+
+def _baths_after(bath_kg: float, starts_pct: Sequence[Mapping[str, float]],
+                 additions: Iterable[tuple[Material, float]], owed_pct: Mapping[str, float]
+                 ) -> tuple[float, list[dict[str, float]]]:
+    """bath_after from each of ``starts_pct`` with the same additions: the bath mass after does not
+    depend on the start, and what each addition dissolves is worked out once."""
     final_kg = bath_kg
+    dissolved_kg = []  # (symbol, kg) in the order of the additions and their compositions
     for material, kg in additions:
+        recovery = material.recovery
         for symbol, pct in material.composition_pct.items():
-            dissolved = kg * pct / 100.0 * material.recovery.get(symbol, 1.0)
+            dissolved = kg * pct / 100.0 * recovery.get(symbol, 1.0)
             final_kg += dissolved
             if symbol != "Fe":
-                element_kg[symbol] = element_kg.get(symbol, 0.0) + dissolved
-    predicted = {s: 100.0 * m / final_kg for s, m in sorted(element_kg.items(), key=lambda i: element_sort_key(i[0]))}
-    return final_kg, predicted
+                dissolved_kg.append((symbol, dissolved))
+    analyses = []
+    for start_pct in starts_pct:
+        element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in start_pct.items()}
+        for symbol, pct in owed_pct.items():
+            element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
+        for symbol, dissolved in dissolved_kg:
+            element_kg[symbol] = element_kg.get(symbol, 0.0) + dissolved
+        analyses.append({s: 100.0 * element_kg[s] / final_kg for s in _sheet_order(tuple(element_kg))})
+    return final_kg, analyses
+
+
+@lru_cache(maxsize=256)
+def _sheet_order(symbols: tuple[str, ...]) -> tuple[str, ...]:
+    """``symbols`` as an analysis sheet lists them; a bath's elements come back the same heat after heat."""
+    return tuple(sorted(symbols, key=element_sort_key))
 
 
 def temperature_drop_c(bath_kg: float, additions: Iterable[tuple[Material, float]]) -> float:
@@ -65,10 +87,9 @@ def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], se
     by the plain mass balance: the plan's own re-check, also against a grade other than the one
     planned for (meltfix.plan.risk plans to tightened windows and reports against the real ones)."""
     owed = contents_owed_pct(heat, grade, settings)
-    final_kg, predicted = bath_after(heat.bath_kg, heat.analysis.pct, used, owed)
     # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
     # closest plan reports the shortfall it was planned against.
-    lowest = predicted
-    if heat.analysis.below_limit:
-        lowest = bath_after(heat.bath_kg, heat.analysis.lowest_pct, used, owed)[1]
+    starts = (heat.analysis.pct, heat.analysis.lowest_pct) if heat.analysis.below_limit else (heat.analysis.pct,)
+    final_kg, analyses = _baths_after(heat.bath_kg, starts, used, owed)
+    predicted, lowest = analyses[0], analyses[-1]
     return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))

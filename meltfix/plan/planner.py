@@ -332,9 +332,9 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     packs and the on/off choices fixed at the plan's values.
     """
     shape = model.shape
-    fixed = load.integrality > 0
     duals: Solution | None = solution
     if solution.row_dual is None:
+        fixed = load.integrality > 0
         model.load(load)  # undo anything the closest-plan phases changed
         lower, upper = load.col_lower.copy(), load.col_upper_all.copy()
         lower[fixed] = upper[fixed] = np.rint(solution.x[fixed])
@@ -360,13 +360,13 @@ def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: 
     upper_saving = -duals.col_dual[shape.col_mat] / shape.scale
     for j in (upper_saving > 1e-6).nonzero()[0]:
         # A lock is a choice, not a shortage; a pack count fixed for this LP is not the stock.
-        if load.col_lower[j] != load.col_upper[j] and not fixed[j]:
+        if load.col_lower[j] != load.col_upper[j] and not load.integrality[j] > 0:
             bindings.append(Binding(f"stock of {shape.materials[j].name}", float(upper_saving[j]), "1 kg more in stock",
                                     "kg"))
     aim_worth = saving[shape.aims.span] * final_kg * 1e-4  # saving from raising each aim by 0.01 %
-    for t in (np.abs(aim_worth) > 1e-6).nonzero()[0]:
-        symbol, worth = shape.aim_elements[t], float(aim_worth[t])
-        bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {'higher' if worth > 0 else 'lower'} aim"))
+    for symbol, worth in zip(shape.aim_elements, aim_worth.tolist()):
+        if abs(worth) > 1e-6:
+            bindings.append(Binding(f"{symbol} aim", abs(worth), f"0.01 % {'higher' if worth > 0 else 'lower'} aim"))
     return tuple(sorted(bindings, key=lambda b: -b.saving))
 
 
@@ -382,9 +382,10 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
     kg = np.where(np.isnan(load.locked_kg), kg, load.locked_kg)
     additions = []
     used: list[tuple[Material, float]] = []
+    amounts, prices, packed = kg.tolist(), load.prices.tolist(), load.packed.tolist()
     for j in (kg > 0).nonzero()[0].tolist():
-        material, amount = shape.materials[j], float(kg[j])
-        additions.append(addition(material, amount, float(load.prices[j]), bool(load.packed[j])))
+        material, amount = shape.materials[j], amounts[j]
+        additions.append(addition(material, amount, prices[j], packed[j]))
         used.append((material, amount))
     return additions, used
 

@@ -69,9 +69,9 @@ def portions_kg(material: Material, kg: float, max_portion_kg: float | None) -> 
 def sequence_additions(additions: Sequence[tuple[Material, float]], settings: ShopSettings) -> tuple[AdditionStep, ...]:
     """The additions (material, kg) in the shop's order of classes (the given order within a class),
     each split into its lots; wire in metres from the material's ``kg_per_m``."""
-    ordered = sorted(enumerate(additions), key=lambda item: (class_rank(settings, item[1][0].addition_class), item[0]))
+    ordered = sorted(additions, key=lambda item: class_rank(settings, item[0].addition_class))  # stable: given order kept
     steps = []
-    for _, (material, kg) in ordered:
+    for material, kg in ordered:
         lots = portions_kg(material, kg, settings.max_portion_kg)
         metres = None if material.kg_per_m is None else kg / material.kg_per_m
         steps.append(AdditionStep(material.name, material.addition_class, kg, lots,

@@ -30,7 +30,7 @@ class LiquidusFormula:
 
     def liquidus_c(self, pct: Mapping[str, float]) -> float:
         """Liquidus of an analysis [°C] (contents in wt %; elements not listed count as 0)."""
-        return self.base_c - math.fsum(k * pct.get(s, 0.0) for s, k in self.slope_c_per_pct.items())
+        return self.base_c - math.fsum([k * pct.get(s, 0.0) for s, k in self.slope_c_per_pct.items()])
 
 
 STEEL = LiquidusFormula("steel, linear (1536 - sum k_i wt %_i)", 1536.0, {
