@@ -199,8 +199,9 @@ class RiskPlanner:
         amounts, no minimums), and the plans as the shop adds them then start from the least relaxed
         inset that reaches the target and go deeper only while they fall short. An inset whose
         relaxation cannot be met cannot be met in whole packs either. Where no relaxed plan reaches
-        the target, the plans as added start at the relaxed plan with the best odds and go deeper
-        while the odds still rise (unless that plan in packs reaches it after all). Both ladders are
+        the target, the plans as added start at the relaxed plan with the best odds (or, where its
+        windows cannot be met in packs, at the deepest inset where they can) and go deeper while the
+        odds still rise (unless that plan in packs reaches it after all). Both ladders are
         the target's own only through where they start, and a deeper inset never makes a plan
         cheaper nor less likely inside, so a higher target still gets a plan at least as costly and
         at least as safe.
@@ -217,7 +218,7 @@ class RiskPlanner:
                 best_relaxed = max((t.odds.heat, -k) for k, t in loose.plans.items() if t is not None)[1] * -1
         ladder = _Ladder(self, heat, options, trial, paper, sigma, closed)
         if best_relaxed is not None and not _reaches(ladder.at(best_relaxed), target):
-            _deeper_while_rising(ladder, best_relaxed)
+            _deeper_while_rising(ladder, best_relaxed if ladder.at(best_relaxed) else _deepest_open(ladder, best_relaxed))
             return self._short(ladder, target, trial)
         guess = start if start > 0 else _least_inset(paper, target)
         high = _least_reaching(ladder, target, max(start - 1, 0), guess)
@@ -225,6 +226,8 @@ class RiskPlanner:
         if best is not None and _reaches(best, target):
             return _noted(best, f"planned to {target:.0%} odds: each limit kept {best.z:.2f} standard "
                                 "deviations of its scatter inside")
+        if best is None:  # the windows closed in packs before the odds reached the target
+            _deepest_open(ladder, high)
         return self._short(ladder, target, trial)
 
     def _short(self, ladder: _Ladder, target: float, trial: Trial) -> _Tried:
@@ -297,6 +300,17 @@ class _Ladder:
 
 def _reaches(tried: _Tried | None, target: float) -> bool:
     return tried is not None and tried.odds.heat >= target and tried.odds.resolves(target)
+
+
+def _deepest_open(ladder: _Ladder, closed: int) -> int:
+    """The deepest inset above 0 and below ``closed`` whose windows can still be met on ``ladder``
+    (0 when none), by bisection from the deepest known to be open: an inset that cannot be met makes
+    every deeper one so."""
+    low, high = max(k for k, t in ladder.plans.items() if t is not None and k < closed), closed
+    while high - low > 1:
+        k = (low + high) // 2
+        low, high = (k, high) if ladder.at(k) is not None else (low, k)
+    return low
 
 
 def _deeper_while_rising(ladder: _Ladder, k: int) -> None:
