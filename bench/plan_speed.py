@@ -35,8 +35,9 @@ from types import MappingProxyType
 import numpy as np
 
 from meltfix.base.paths import demo_dir
+from meltfix.plan.elastic import elastic_phases
 from meltfix.plan.heat_load import load_of
-from meltfix.plan.hot_model import HotModel
+from meltfix.plan.hot_model import HotModel, Solution
 from meltfix.plan.plan_model import ModelShape
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import PlanOptions
@@ -100,10 +101,15 @@ class Floor:
         load = load_of(model.shape, heat, penalty, prune=False)
         start = time.perf_counter()
         model.load(load)
-        if integers and load.integrality.any():
-            model.solve_mip(60.0, options.mip_rel_gap, load.integrality > 0)
-        else:
-            model.solve_lp()
+
+        def solve(upper: np.ndarray) -> Solution | None:
+            model.set_bounds(load.col_lower, upper)
+            if integers and load.integrality.any():
+                return model.solve_mip(60.0, options.mip_rel_gap, load.integrality > 0)[0]
+            return model.solve_lp()
+
+        if solve(load.col_upper) is None:  # no plan inside: the closest plan's two problems
+            elastic_phases(model, load, heat.bath_kg, options.closest_tolerance, solve)
         return time.perf_counter() - start
 
 

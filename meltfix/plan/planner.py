@@ -23,6 +23,7 @@ import numpy as np
 
 from meltfix.base.errors import InputError
 from meltfix.plan.cautions import BathState, plan_cautions
+from meltfix.plan.elastic import elastic_phases
 from meltfix.plan.heat_load import HeatLoad, integer_choices, load_of
 from meltfix.plan.hot_model import HotModel, Solution
 from meltfix.plan.massbalance import recheck, temperature_drop_c
@@ -289,35 +290,12 @@ def _closest(model: HotModel, load: HeatLoad, bath_kg: float, deadline: float,
              options: PlanOptions) -> tuple[Solution, Solution]:
     """Elastic windows on the same hot model: least total violation first (relative to each
     limit), then cost. Returns the closest plan and the least-violation plan it started from."""
-    shape = model.shape
-    # Every usable material open: the dominated ones were shut on the rows with their limits kept.
-    upper = load.col_upper_all.copy()
-    upper[shape.col_slack] = np.where(load.active, math.inf, 0.0)
-    # Violation weight: kilograms outside a limit relative to the limit's own mass in the bath.
-    # The solver minimises it multiplied by the bath: the weights per kg of a 50 t bath are so
-    # small (1e-5) that reduced costs would fall under HiGHS's dual tolerance and stop it early.
-    weights = 1.0 / (shape.limit_fraction() * bath_kg)
-    first = np.zeros(shape.n_cols)
-    first[shape.col_slack] = weights * bath_kg
-    model.set_cost(first)
-    phase1 = _solve(model, load, load.col_lower, upper, deadline, options)
+    phase1, phase2 = elastic_phases(model, load, bath_kg, options.closest_tolerance,
+                                    lambda upper: _solve(model, load, load.col_lower, upper, deadline, options))
     if phase1 is None:
         raise InputError("heat", "lock_kg",
                          "no plan is possible at all: the locked amounts alone break the vessel "
                          "capacity or the temperature limit")
-    violation = weights * phase1.x[shape.col_slack]
-    least = float(violation.sum())
-    # Slack on the least violation keeps phase 2 from buying alloys and scrap by the tonne only
-    # to shave a hopeless excess (S at 0.56 % against 0.050 %) by a hundredth of a per cent:
-    # the closest plan may miss by options.closest_tolerance more than the least possible
-    # (plus 1e-4 = 0.01 % of a limit's mass, so a near-zero least is not chased either).
-    # The cap row is the weighted sum multiplied by the bath, so its coefficients stay fixed.
-    model.set_row_upper(shape.violation_cap.first, bath_kg * (least * (1 + options.closest_tolerance) + 1e-4))
-    # The hair is for the limits that cannot be met: one that phase 1 met stays met, or the
-    # cheaper plan would miss it by a hair and blame it on a reason that is not true.
-    upper[shape.col_slack] = np.where(violation <= 1e-9, 0.0, upper[shape.col_slack])
-    model.set_cost(load.cost)
-    phase2 = _solve(model, load, load.col_lower, upper, deadline, options)
     # The duals of an elastic model are not the plan's: a closest plan that meets every window
     # after all has its duals from the plain model (see _sensitivity).
     return replace(phase2 if phase2 is not None else phase1, row_dual=None, col_dual=None), phase1
