@@ -135,17 +135,19 @@ def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.n
     """The analysis over the model's elements as fractions: as read, with below-limit readings at 0,
     and the contents owed to deoxidation and treatment (notes say what these took)."""
     pct = heat.analysis.pct
-    now = np.array([pct.get(s, 0.0) / 100.0 for s in shape.elements])
+    now = np.array([pct.get(s, 0.0) for s in shape.elements]) / 100.0
     # A value below the detection limit is at most the limit: take it at the limit against a
     # maximum and at zero against a minimum, so the plan is safe whatever the true value.
-    below = heat.analysis.below_limit
-    now_low = np.array([0.0 if s in below else v for s, v in zip(shape.elements, now)])
+    now_low = now.copy()
+    for symbol in heat.analysis.below_limit:
+        if symbol in shape.row_of:
+            now_low[shape.row_of[symbol]] = 0.0
     # Aluminium the dissolved oxygen binds, and magnesium the sulphur binds and fade takes, are
     # gone before any stays in the bath: the row starts lower by them (below 0 % is a debt the
     # additions pay first), still linear.
     owed = dict(contents_owed_pct(heat, shape.grade, shape.book.settings))
     if owed:
-        debt = np.array([owed.get(s, 0.0) / 100.0 for s in shape.elements])
+        debt = np.array([owed.get(s, 0.0) for s in shape.elements]) / 100.0
         now, now_low = now - debt, now_low - debt
         notes += oxygen_notes(heat, shape.grade, {s: pct for s, pct in owed.items() if s == "Al"}, shape.book.settings.units)
         if "Mg" in owed:
@@ -167,7 +169,7 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.nd
         row_upper[shape.temperature.first] = max_drop * bath
     reheat_max_c, reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
     row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
-    unlisted_now = np.array([heat.analysis.pct.get(s, 0.0) / 100.0 for s in shape.unlisted])
+    unlisted_now = np.array([heat.analysis.pct.get(s, 0.0) for s in shape.unlisted]) / 100.0
     row_upper[shape.unlisted_rows.span] = -bath * unlisted_now
     rise = settings.max_unlisted_rise_pct / 100.0
     # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
@@ -197,7 +199,8 @@ def _temperature_load(shape: ModelShape, heat: Heat, row_lower: np.ndarray, note
         return reheat_max_c, reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
     superheat = settings.superheat_c
     # Below-limit readings at 0: the safe end for a liquidus (less solute, a higher liquidus).
-    now_liquidus = shape.liquidus.liquidus_c(heat.analysis.lowest_pct)
+    analysis = heat.analysis
+    now_liquidus = shape.liquidus.liquidus_c(analysis.lowest_pct if analysis.below_limit else analysis.pct)
     lower = -heat.bath_kg * (shape.liquidus.base_c - now_liquidus)
     # A bath already short of liquidus + superheat may not get worse (nor is adding nothing made
     # impossible): what the heating cannot make up is forgiven, and said.
@@ -243,15 +246,19 @@ def _material_load(shape: ModelShape, heat: Heat) -> _Columns:
     for name, value in heat.stock_kg.items():
         stock[shape.column_of[name]] = value
     locked_kg = np.full(shape.n_materials, math.nan)
-    for name, value in heat.locked_kg.items():
-        locked_kg[shape.column_of[name]] = value
-    locked = ~np.isnan(locked_kg)
     # Allowed at the stage, not switched off, and not forbidden by the grade unless locked (a
     # lock is the user's explicit choice): as meltfix.shop.heat.usable_materials says.
-    can_use = shape.allowed & (~shape.forbidden | locked)
+    if heat.locked_kg:
+        for name, value in heat.locked_kg.items():
+            locked_kg[shape.column_of[name]] = value
+        locked = ~np.isnan(locked_kg)
+        can_use, packed, switched = shape.allowed & (~shape.forbidden | locked), shape.packable & ~locked, \
+            (shape.min_kg > 0) & ~locked
+    else:  # most heats lock nothing
+        can_use, packed, switched = shape.allowed & ~shape.forbidden, shape.packable.copy(), shape.min_kg > 0
     for name in heat.switched_off:
         can_use[shape.column_of[name]] = False
-    return _Columns(prices, stock, locked_kg, can_use, shape.packable & ~locked, (shape.min_kg > 0) & ~locked)
+    return _Columns(prices, stock, locked_kg, can_use, packed, switched)
 
 
 def _column_bounds(shape: ModelShape, columns: _Columns, reheat_max_c: float) -> tuple[np.ndarray, np.ndarray]:
@@ -261,10 +268,12 @@ def _column_bounds(shape: ModelShape, columns: _Columns, reheat_max_c: float) ->
     col_lower = np.zeros(shape.n_cols)
     col_upper = np.full(shape.n_cols, _INF)
     stock = columns.stock / shape.scale
-    col_upper[shape.col_mat] = np.where(locked, columns.locked_kg / shape.scale,
-                                        np.where(columns.can_use, np.where(columns.packed, np.floor(stock + 1e-9), stock),
-                                                 0.0))
-    col_lower[shape.col_mat] = np.where(locked, columns.locked_kg / shape.scale, 0.0)
+    usable = np.where(columns.can_use, np.where(columns.packed, np.floor(stock + 1e-9), stock), 0.0)
+    if locked.any():  # most heats lock nothing
+        fixed = columns.locked_kg / shape.scale
+        usable = np.where(locked, fixed, usable)
+        col_lower[shape.col_mat] = np.where(locked, fixed, 0.0)
+    col_upper[shape.col_mat] = usable
     col_upper[shape.col_switch] = np.where(columns.switched[shape.switchable], 1.0, 0.0)
     col_upper[shape.col_slack] = 0.0
     col_upper[shape.col_reheat] = reheat_max_c

@@ -352,7 +352,7 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
     """The plan's lines from a solver point: masses [kg] (whole packs rounded exactly, locked amounts
     as locked, every minimum held exactly), costs."""
     v = x[shape.col_mat]
-    kg = np.where(load.packed, np.rint(v), v) * shape.scale
+    kg = (np.where(load.packed, np.rint(v), v) if load.packed.any() else v) * shape.scale
     kg[kg <= 1e-6] = 0.0
     if load.switched.any():
         short = load.switched & (kg > 0) & (kg < shape.min_kg)
