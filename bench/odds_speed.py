@@ -20,7 +20,7 @@ from meltfix.base.paths import demo_dir
 from meltfix.plan.planner import Planner
 from meltfix.plan.risk import RiskPlanner
 from meltfix.shop.heat import load_heat
-from meltfix.shop.recipes import load_recipes
+from meltfix.shop.recipes import RecipeBook, load_recipes
 
 
 def timed_ms(run: Callable[[], object]) -> float:
@@ -29,12 +29,9 @@ def timed_ms(run: Callable[[], object]) -> float:
     return (time.perf_counter() - start) * 1000.0
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--repeat", type=int, default=5)
-    parser.add_argument("--draws", type=int, default=2000)
-    args = parser.parse_args()
-    book = load_recipes(None)
+def odds_figures(book: RecipeBook, repeat: int, draws: int) -> None:
+    """Print the table: per demo heat, the three times and the ratios; then the median ratio and
+    the ratio of the sums."""
     planner = Planner(book)
     risk = RiskPlanner(book, planner)
     heats = [load_heat(path, book) for path in sorted((demo_dir() / "heats").glob("*.toml"))]
@@ -44,12 +41,12 @@ def main() -> None:
     totals = [0.0, 0.0]
     for heat in heats:
         runs: list[tuple[float, float, float]] = []
-        for _ in range(args.repeat):  # interleaved, so a burst of load on a shared machine hits all three alike
+        for _ in range(repeat):  # interleaved, so a burst of load on a shared machine hits all three alike
             runs.append((timed_ms(lambda: planner.plan(heat)),
-                         timed_ms(lambda: risk.plan(heat, draws=args.draws, on_paper=True)),
-                         timed_ms(lambda: risk.plan(heat, draws=args.draws))))
+                         timed_ms(lambda: risk.plan(heat, draws=draws, on_paper=True)),
+                         timed_ms(lambda: risk.plan(heat, draws=draws))))
         paper, judged, to_target = (statistics.median(run[k] for run in runs) for k in range(3))
-        odds = risk.plan(heat, draws=args.draws).odds.heat
+        odds = risk.plan(heat, draws=draws).odds.heat
         ratios.append(to_target / paper)
         totals[0] += paper
         totals[1] += to_target
@@ -57,6 +54,14 @@ def main() -> None:
               f"{to_target / judged:>9.1f}  {100 * odds:.1f} %")
     print(f"median ratio to the plan on paper: {statistics.median(ratios):.1f}x (goal: at most 3x); "
           f"all heats together: {totals[1] / totals[0]:.1f}x")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--repeat", type=int, default=5)
+    parser.add_argument("--draws", type=int, default=2000)
+    args = parser.parse_args()
+    odds_figures(load_recipes(None), args.repeat, args.draws)
 
 
 if __name__ == "__main__":

@@ -1,11 +1,13 @@
 """How fast the planner is, as ratios to floors measured in the same run: prints figures, asserts nothing.
 
     python3 bench/plan_speed.py [--heats 1000] [--repeat 10] [--seed 7] [--sizes 25,100,200,400] [--no-processes]
+                               [--odds-repeat 5]
 
 1. Per plan on each demo heat, as an LP (loose amounts, minimum additions left out) and with whole
    packs: the planner's time against the floor, HiGHS itself solving the same problem on a hot model
    of its own (the heat's bounds and costs written, one run: the MIP when the problem has integers,
-   else the LP), every material open: the planner's pruning of dominated materials is its own. Heats that cannot be brought in cost the planner two more phases (the closest plan).
+   else the LP), every material open: the planner's pruning of dominated materials is its own. A heat
+   no plan brings inside costs both two more problems (the closest plan's, meltfix.plan.elastic).
 2. A batch of varied heats (each demo heat with its bath and analysis shaken, seeded; some cannot
    be brought in and get closest plans), with packs: one process, and `meltfix solve` with --jobs 1
    and 2 on the same heats written as files (plans alone with --on-paper --draws 1, and as by
@@ -13,6 +15,8 @@
 3. Plan time with packs at 25, 100, 200 and 400 materials (the demo book's materials repeated with
    shaken prices and contents), against the floor on the same heats and the time budget per plan
    (shop.toml plan_time_limit_s).
+4. The plan to the shop's target odds on each demo heat beside its plan on paper (bench/odds_speed.py's
+   table; goal of issue 11: at most 3x).
 
 Goals (issue 14): LP <= 1.5x its floor, packs <= 1.2x, the batch <= 1.2x the floor's time, p90 under
 300 ms at 200 materials and every plan inside its budget at 400. On a shared machine the wall-clock
@@ -33,6 +37,8 @@ from pathlib import Path
 from types import MappingProxyType
 
 import numpy as np
+
+from odds_speed import odds_figures
 
 from meltfix.base.paths import demo_dir
 from meltfix.plan.elastic import elastic_phases
@@ -84,7 +90,8 @@ def bigger_book(book: RecipeBook, count: int, seed: int) -> RecipeBook:
 
 
 class Floor:
-    """HiGHS alone on hot models of the same problems: per heat only the writes and one run."""
+    """HiGHS alone on hot models of the same problems: per heat only the writes and one run, or,
+    for a heat no plan brings inside, the three the planner must solve (meltfix.plan.elastic)."""
 
     def __init__(self, book: RecipeBook) -> None:
         self.book = book
@@ -207,6 +214,7 @@ def main() -> None:
     parser.add_argument("--sizes", default="25,100,200,400", help="recipe-book sizes for part 3")
     parser.add_argument("--size-heats", type=int, default=40, help="heats per size in part 3")
     parser.add_argument("--recipes", type=Path, default=None)
+    parser.add_argument("--odds-repeat", type=int, default=5, help="runs per demo heat for part 4")
     parser.add_argument("--no-processes", action="store_true",
                         help="leave out the meltfix solve runs of part 2 (minutes with the odds on)")
     args = parser.parse_args()
@@ -215,6 +223,8 @@ def main() -> None:
     per_plan(book, args.repeat)
     batch(book, args.heats, args.seed, not args.no_processes)
     sizes(book, [int(n) for n in args.sizes.split(",")], args.size_heats, args.seed)
+    print("4. the plan to the shop's target odds beside the plan on paper (bench/odds_speed.py)")
+    odds_figures(book, args.odds_repeat, 2000)
 
 
 if __name__ == "__main__":
