@@ -25,6 +25,7 @@ within the planner's stated hair.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from types import MappingProxyType
 
 import numpy as np
@@ -32,6 +33,7 @@ import pulp
 import pytest
 
 from meltfix.base.errors import InputError
+from meltfix.plan.moved_limits import tightened
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import Plan, PlanOptions
 from meltfix.shop.analysis import Analysis
@@ -277,3 +279,37 @@ def test_random_books_are_valid_recipe_books() -> None:
     assert isinstance(book.grade("G"), Grade)
     assert all(isinstance(m, Material) and math.isclose(sum(m.composition_pct.values()), 100.0)
                for m in book.materials)
+
+
+def test_a_grade_with_moved_limits_on_the_hot_model_equals_cbc() -> None:
+    # The odds search plans to grades with their limits moved in, on the planner's hot model built
+    # for the book's own limits (one coefficient per window row rewritten); CBC solves each moved
+    # grade from scratch, as its own model written from the contract above.
+    rng = np.random.default_rng(7331)
+    counts = {"planned": 0, "closed": 0}
+    for k in range(80):
+        packs = bool(k % 2)
+        book = random_book(rng, packs)
+        heat = random_heat(rng, book, k)
+        options = PlanOptions(use_aim=False, continuous=not packs)
+        planner = Planner(book)
+        try:  # the model is hot with the book's own limits first
+            if planner.plan(heat, options).status != "optimal":
+                continue
+        except InputError:
+            continue
+        grade = book.grade(heat.grade)
+        moved = tightened(grade, {f"{s} {side}": float(rng.uniform(0.0, 0.2)) * (high - low)
+                                  for s, (low, high) in grade.window_pct.items() for side in ("min", "max")})
+        plan = planner.plan_inside(heat, options, moved)
+        moved_book = replace(book, grades=MappingProxyType({**book.grades, grade.name: moved}))
+        status, objective = cbc_model(moved_book, heat, False, continuous=not packs, elastic=False)
+        where = f"heat {k} (CBC {status})"
+        if plan is None:
+            assert status == "Infeasible", where
+            counts["closed"] += 1
+            continue
+        assert status == "Optimal" and plan.status == "optimal", where
+        assert plan.total_cost == pytest.approx(objective, rel=1e-5, abs=1e-6), where
+        counts["planned"] += 1
+    assert counts["planned"] >= 15 and counts["closed"] >= 2, counts

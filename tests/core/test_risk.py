@@ -164,6 +164,18 @@ def test_the_economic_target_has_the_least_expected_total_cost() -> None:
     assert "economic target" in best.plan.notes[-1]
 
 
+@pytest.mark.parametrize("name", ["KB-24104", "KB-24105", "KB-24106"])
+def test_each_economic_level_gets_the_plan_that_target_gets_alone(name: str) -> None:
+    # The economic target's levels share one heat's plan on paper, ladders and re-solves; the level
+    # it chooses must still get exactly the plan, odds and bindings it gets when asked for alone.
+    book = load_recipes(None)
+    heat = load_heat(next(p for p in DEMO_HEATS if p.stem == name), book)
+    best = RiskPlanner(book).plan(heat, "economic", draws=300)
+    alone = RiskPlanner(book).plan(heat, best.target, draws=300)
+    assert best.plan.additions == alone.plan.additions and best.plan.binding == alone.plan.binding
+    assert best.odds.heat == alone.odds.heat and dict(best.odds.limits) == dict(alone.odds.limits)
+
+
 # --------------------------------------------------------------------------------------------
 # Stated odds against a simulation of our own
 
