@@ -32,8 +32,19 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Callable
 
 CLI = "import sys; from meltfix.cli import main; sys.exit(main())"
+
+
+async def _until(done: Callable[[], bool], what: str) -> None:
+    """Wait for ``done``; a child that never gets there (a worker that failed) stops with a message
+    rather than hanging the benchmark."""
+    deadline = time.monotonic() + 60
+    while not done():
+        if time.monotonic() > deadline:
+            raise SystemExit(f"{what}: not painted within 60 s")
+        await asyncio.sleep(0.002)
 
 
 async def _screen_child() -> None:
@@ -44,8 +55,8 @@ async def _screen_child() -> None:
 
     app = build_app(_argparse.Namespace(heat=None, recipes=None, logbook=None, tickets=None, light=False))
     async with app.run_test(size=(100, 32)) as pilot:
-        while not (app.screen.query(PlanView) and app.screen.query_one(PlanView).is_current):
-            await asyncio.sleep(0.002)
+        await _until(lambda: bool(app.screen.query(PlanView)) and app.screen.query_one(PlanView).is_current,
+                     "the screen's plan")
         await pilot.pause()  # the refresh that paints it
         painted = time.time()
     print(repr(painted))
@@ -68,14 +79,16 @@ async def _bare_child() -> None:
         @work(thread=True)
         def solve(self) -> None:
             from meltfix.commands.screen import first_demo_heat
-            from meltfix.plan.plan_model import HotModel, ModelShape
+            from meltfix.plan.heat_load import load_of
+            from meltfix.plan.hot_model import HotModel
+            from meltfix.plan.plan_model import ModelShape
             from meltfix.shop.heat import load_heat
             from meltfix.shop.recipes import load_recipes
 
             book = load_recipes()
             heat = load_heat(first_demo_heat(), book)
             model = HotModel(ModelShape(book, book.grade(heat.grade), heat.stage, False, True))
-            load = model.shape.load(heat, book.settings.aim_penalty)
+            load = load_of(model.shape, heat, book.settings.aim_penalty)
             model.load(load)
             found = model.solve_mip(60.0, 1e-6, load.integrality > 0)[0] if load.integrality.any() else model.solve_lp()
             cost = float(load.cost @ found.x) if found is not None else float("nan")
@@ -84,8 +97,7 @@ async def _bare_child() -> None:
 
     app = Bare()
     async with app.run_test(size=(100, 32)) as pilot:
-        while not app.solved:
-            await asyncio.sleep(0.002)
+        await _until(lambda: app.solved, "the bare app's cost")
         await pilot.pause()
         painted = time.time()
     print(repr(painted))
