@@ -11,6 +11,7 @@ from __future__ import annotations
 import importlib
 from collections.abc import Iterator
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from textual.app import App, SystemCommand
 from textual.binding import Binding
@@ -19,12 +20,14 @@ from textual.screen import Screen
 
 from meltfix.base.errors import visible
 from meltfix.base.paths import user_data_dir
-from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook
 from meltfix.tui.keys import key_name
 from meltfix.tui.screens.trim import TrimScreen
 from meltfix.tui.toast_text import fit_paths
+
+if TYPE_CHECKING:
+    from meltfix.records.logbook.location import LogbookLocation
 
 EXTRA_SCREENS = {
     "replay": "meltfix.tui.screens.replay",

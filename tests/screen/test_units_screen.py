@@ -7,7 +7,7 @@ import shutil
 from pathlib import Path
 
 import pytest
-from textual.widgets import DataTable, Input, Label
+from textual.widgets import DataTable, Input
 
 from meltfix.shop.heat import load_heat
 from meltfix.shop.recipes import load_recipes
@@ -40,7 +40,7 @@ async def test_a_us_shop_types_and_reads_pounds_and_fahrenheit(us_book, demo_hea
         await settle(pilot)
         screen = app.screen
         assert isinstance(screen, TrimScreen)
-        labels = _texts(screen, Label)
+        labels = _texts(screen, ".form-row")  # each field's row draws its own label
         assert "Bath lb" in labels and "Vessel lb" in labels and "Temp °F" in labels
         assert screen.query_one("#bath", Input).value == f"{heat.bath_kg / KG_PER_LB:g}"
         # The heat as shown plans as the file says: not 80,000 kg read back from a rounded lb figure.

@@ -23,25 +23,24 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, VerticalScroll
 from textual.content import Content
+from textual.message import Message
 from textual.screen import Screen
 from textual.widget import Widget
-from textual.widgets import Footer, Input, Static
+from textual.widgets import Input, Static
 from textual.worker import Worker, WorkerState, get_current_worker
 
 from meltfix.base.errors import InputError
 from meltfix.base.paths import demo_dir
 from meltfix.plan.numbers import cell_text, mass_text, temperature_text
 from meltfix.plan.result import Plan, RiskPlan
-from meltfix.records.logbook.location import LogbookLocation
 from meltfix.shop.elements import element_sort_key, normalise_symbol
 from meltfix.shop.heat import Heat, load_heat
 from meltfix.shop.recipes import RecipeBook
-from meltfix.tui.accept import record_accepted
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, MATERIALS, HeatInputs, build_heat, mass_field, temperature_field
 from meltfix.tui.messages import PlanFailed, PlanReady
 from meltfix.tui.palette import ScreenActions
-from meltfix.tui.ticket import print_ticket, write_ticket
 from meltfix.tui.widgets.analysis_grid import AnalysisGrid, CellSpec, window_hint
+from meltfix.tui.widgets.footer import KeysFooter
 from meltfix.tui.widgets.heat_form import CycleField, GradeField, HeatForm
 from meltfix.tui.widgets.plan_view import PlanView
 from meltfix.tui.widgets.why_not import key_for, say_why_declined
@@ -49,6 +48,7 @@ from meltfix.tui.widgets.why_not import key_for, say_why_declined
 if TYPE_CHECKING:
     from meltfix.plan.risk import RiskPlanner
     from meltfix.readers.samples import ImportResult, SpectroSample
+    from meltfix.records.logbook.location import LogbookLocation
 
 _FIELD_NAMES = {BATH: "bath", CAPACITY: "vessel", GRADE: "grade", "analysis": "analysis", MATERIALS: "materials"}
 MOVING_KEYS = (
@@ -118,9 +118,23 @@ class TrimScreen(Screen[None]):
         self._planner: RiskPlanner | None = None
         self._inputs: HeatInputs | None = None
         self._binding_state: tuple[bool, bool] | None = None
+        self._resumed = False
+
+    def post_message(self, message: Message) -> bool:
+        if isinstance(message, events.ScreenResume) and not self._resumed:
+            # Pushing the screen resumes it with a restyle of every widget, each styled as it
+            # mounted a moment before: once is enough (a later resume restyles as Textual decides).
+            self._resumed = True
+            message.refresh_styles = False
+        return super().post_message(message)
 
     # -- layout ---------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
+        # The breakpoint class the first resize would set, set before any widget is styled: that
+        # resize then finds it in place instead of restyling every widget of the screen.
+        height = self.app.size.height
+        self.add_class(next(name for at, name in sorted(self.VERTICAL_BREAKPOINTS, reverse=True) if height >= at),
+                       update=False)
         heat = self.base
         yield Static(id="banner")
         with Horizontal(id="body"):
@@ -130,7 +144,7 @@ class TrimScreen(Screen[None]):
                                stages=tuple(self.book.settings.stages), units=self.book.settings.units, id="form")
                 yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
             yield PlanView(id="plan")
-        yield Footer(compact=True, show_command_palette=False)
+        yield KeysFooter(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
         self._update_banner()
@@ -434,6 +448,7 @@ class TrimScreen(Screen[None]):
         """Record the plan (and the sample it answers) in the logbook: its plan number and what was
         recorded in words, or None when the logbook refused (said on screen)."""
         from meltfix.records.logbook import Logbook
+        from meltfix.tui.accept import record_accepted
 
         try:
             with Logbook(self.logbook_path, book=self.book) as records:
@@ -478,6 +493,8 @@ class TrimScreen(Screen[None]):
         self.app.push_screen(AddedDialog(plan, self.book.settings.units), recorded)
 
     def action_ticket(self) -> None:
+        from meltfix.tui.ticket import print_ticket, write_ticket
+
         if self.current is None:
             self.notify("The plan is being brought up to date; try again in a moment.", title="Ticket")
             return

@@ -6,14 +6,18 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 from textual.app import ComposeResult
-from textual.containers import Horizontal, Vertical
+from textual.containers import Vertical
 from textual.content import Content
-from textual.widgets import Input, Label, Static
+from textual.widgets import Input, Static
 
 from meltfix.plan.numbers import limit_text, unit_of
 from meltfix.shop.grades import Grade
 from meltfix.tui.draft import cell_key
+from meltfix.tui.widgets.labelled import LabelledLine
 from meltfix.tui.widgets.reason import ReasonLine
+
+_SYMBOL = 3  # columns of the element's symbol before its cell (trim.tcss: .cell's margin)
+_CELL = 11  # columns of the cell (trim.tcss: .cell's width)
 
 
 @dataclass(frozen=True)
@@ -35,24 +39,18 @@ def window_hint(grade: Grade, symbol: str) -> str:
     return f"{limit_text(symbol, low)}–{limit_text(symbol, high)}"
 
 
-class CellRow(Vertical):
+class CellRow(LabelledLine):
     """One element: symbol, cell, then unit and window; the reason line appears under it."""
 
     def __init__(self, spec: CellSpec) -> None:
-        super().__init__(classes="cell-row", id=f"row-{spec.symbol}")
+        super().__init__(f"{spec.symbol:<{_SYMBOL}}", Input(spec.text, id=f"cell-{spec.symbol}", compact=True, classes="cell"),
+                         ReasonLine(), gap=_CELL + 1, hint=f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-row",
+                         id=f"row-{spec.symbol}")
         self.spec = spec
 
     @property
     def symbol(self) -> str:
         return self.spec.symbol
-
-    def compose(self) -> ComposeResult:
-        spec = self.spec
-        with Horizontal(classes="cell-line"):
-            yield Label(spec.symbol, classes="cell-symbol")
-            yield Input(spec.text, id=f"cell-{spec.symbol}", compact=True, classes="cell")
-            yield Label(f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-hint")
-        yield ReasonLine()
 
     def show_reason(self, reason: str | None) -> None:
         self.query_one(Input).set_class(reason is not None, "-bad")

@@ -7,13 +7,15 @@ from dataclasses import dataclass
 
 from textual import events
 from textual.app import ComposeResult
-from textual.containers import Horizontal, Vertical
+from textual.containers import Vertical
 from textual.content import Content
 from textual.message import Message
-from textual.widgets import Input, Label, Static
+from textual.widget import Widget
+from textual.widgets import Input, Static
 
 from meltfix.base.units import Units
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, TEMPERATURE
+from meltfix.tui.widgets.labelled import LabelledLine
 from meltfix.tui.widgets.reason import ReasonLine
 
 
@@ -25,8 +27,8 @@ class GradeField(Static, can_focus=True):
         typed: str
         """What the user had started typing: the picker's first filter text."""
 
-    def __init__(self, grade: str, *, id: str | None = None) -> None:
-        super().__init__(id=id)
+    def __init__(self, grade: str, *, id: str | None = None, classes: str | None = None) -> None:
+        super().__init__(id=id, classes=classes)
         self.grade = grade
 
     def set_grade(self, grade: str) -> None:
@@ -55,8 +57,8 @@ class CycleField(Static, can_focus=True):
         field: "CycleField"
         value: str
 
-    def __init__(self, choices: Sequence[str], value: str, *, id: str | None = None) -> None:
-        super().__init__(id=id)
+    def __init__(self, choices: Sequence[str], value: str, *, id: str | None = None, classes: str | None = None) -> None:
+        super().__init__(id=id, classes=classes)
         self.choices = tuple(choices) if value in choices else (*choices, value)
         self.value = value
 
@@ -73,6 +75,13 @@ class CycleField(Static, can_focus=True):
         self.post_message(self.Changed(self, self.value))
 
 
+_LABEL = 10  # columns of a field's label (trim.tcss: .form-field's margin)
+
+
+def _row(label: str, field: Widget) -> LabelledLine:
+    return LabelledLine(f"{label:<{_LABEL}}", field, classes="form-row")
+
+
 class HeatForm(Vertical):
     """Grade, bath, capacity, stage and temperature; typing posts Input.Changed, the screen does the rest."""
 
@@ -87,26 +96,19 @@ class HeatForm(Vertical):
 
     def compose(self) -> ComposeResult:
         grade, bath_text, capacity_text, stage, temperature_text = self._initial
-        with Horizontal(classes="form-row"):
-            yield Label("Grade", classes="form-label")
-            yield GradeField(grade, id="grade")
+        yield _row("Grade", GradeField(grade, id="grade", classes="form-field"))
         yield ReasonLine(id="reason-grade")
-        with Horizontal(classes="form-row"):
-            yield Label(f"Bath {self._units.mass_unit}", classes="form-label")
-            yield Input(bath_text, id="bath", compact=True, classes="form-input")
+        yield _row(f"Bath {self._units.mass_unit}",
+                   Input(bath_text, id="bath", compact=True, classes="form-field form-input"))
         yield ReasonLine(id="reason-bath")
-        with Horizontal(classes="form-row"):
-            yield Label(f"Vessel {self._units.mass_unit}", classes="form-label")
-            yield Input(capacity_text, id="capacity", compact=True, classes="form-input",
-                        placeholder="not limited")
+        yield _row(f"Vessel {self._units.mass_unit}",
+                   Input(capacity_text, id="capacity", compact=True, classes="form-field form-input",
+                         placeholder="not limited"))
         yield ReasonLine(id="reason-capacity")
-        with Horizontal(classes="form-row"):
-            yield Label("Stage", classes="form-label")
-            yield CycleField(self._stages, stage, id="stage")
-        with Horizontal(classes="form-row"):
-            yield Label(f"Temp {self._units.temperature_unit}", classes="form-label")
-            yield Input(temperature_text, id="temperature", compact=True, classes="form-input",
-                        placeholder="no reading")
+        yield _row("Stage", CycleField(self._stages, stage, id="stage", classes="form-field"))
+        yield _row(f"Temp {self._units.temperature_unit}",
+                   Input(temperature_text, id="temperature", compact=True, classes="form-field form-input",
+                         placeholder="no reading"))
         yield ReasonLine(id="reason-temperature")
 
     @property
