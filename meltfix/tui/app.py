@@ -36,7 +36,9 @@ EXTRA_SCREENS = {
 
 
 class MeltfixApp(App[None]):
-    CSS_PATH = "app.tcss"
+    # The trim screen's CSS is read with the app's, at start: as the screen's own CSS_PATH it had
+    # Textual parse every stylesheet again, its own defaults included, when the screen was pushed.
+    CSS_PATH = ["app.tcss", "screens/trim.tcss"]
     TITLE = "meltfix"
     # Keys that mean the same on every screen (with the framework's Ctrl+Q quit and Ctrl+P palette).
     BINDINGS = [
@@ -72,7 +74,6 @@ class MeltfixApp(App[None]):
     def on_mount(self) -> None:
         if self.light:  # set only when asked: a theme change restyles every widget
             self.theme = "textual-light"
-        # Pushed rather than returned by get_default_screen, which would skip the screen's CSS_PATH.
         self.push_screen(TrimScreen(self.book, self.heat, heat_path=self.heat_path, logbook_path=self.logbook_path,
                                     tickets_dir=self.tickets_dir))
 

@@ -100,9 +100,11 @@ async def test_everything_reachable_at_80_by_24(demo_book, demo_heat, tmp_path, 
     app = make_app(demo_book, demo_heat, tickets_dir=tmp_path)
     async with app.run_test(size=(120, 40)) as pilot:
         await settle(pilot)
+        assert app.screen.has_class("-tall") and not app.screen.has_class("-short")
         await pilot.resize_terminal(80, 24)
         await settle(pilot)
         screen = app.screen
+        assert screen.has_class("-short") and not screen.has_class("-tall")  # the layout for a short terminal
         wanted = {"grade", "bath", "capacity", "stage", "plan-body", "plan-cautions"}
         wanted |= {f"cell-{symbol}" for symbol in demo_heat.analysis.pct}
         reached: set[str] = set()

@@ -63,7 +63,7 @@ MOVING_KEYS = (
 
 
 class TrimScreen(Screen[None]):
-    CSS_PATH = "trim.tcss"
+    # trim.tcss beside this file is read by the app itself (MeltfixApp.CSS_PATH), before the first frame.
     VERTICAL_BREAKPOINTS = [(0, "-short"), (30, "-tall")]
     AUTO_FOCUS = ".cell"  # the analysis is what changes most between two plans
     COMMANDS = {ScreenActions}
@@ -126,6 +126,10 @@ class TrimScreen(Screen[None]):
             # mounted a moment before: once is enough (a later resume restyles as Textual decides).
             self._resumed = True
             message.refresh_styles = False
+        elif isinstance(message, events.Resize) and message.size == self.outer_size:
+            # Textual tells the screen the size it already has (after its first layout, and again
+            # for the terminal's first size), each time laying out every widget anew to no effect.
+            return True
         return super().post_message(message)
 
     # -- layout ---------------------------------------------------------------------------

@@ -13,7 +13,7 @@ from textual.widgets import Input, Static
 from meltfix.plan.numbers import limit_text, unit_of
 from meltfix.shop.grades import Grade
 from meltfix.tui.draft import cell_key
-from meltfix.tui.widgets.labelled import LabelledLine
+from meltfix.tui.widgets.labelled import CompactInput, LabelledLine
 from meltfix.tui.widgets.reason import ReasonLine
 
 _SYMBOL = 3  # columns of the element's symbol before its cell (trim.tcss: .cell's margin)
@@ -43,7 +43,7 @@ class CellRow(LabelledLine):
     """One element: symbol, cell, then unit and window; the reason line appears under it."""
 
     def __init__(self, spec: CellSpec) -> None:
-        super().__init__(f"{spec.symbol:<{_SYMBOL}}", Input(spec.text, id=f"cell-{spec.symbol}", compact=True, classes="cell"),
+        super().__init__(f"{spec.symbol:<{_SYMBOL}}", CompactInput(spec.text, id=f"cell-{spec.symbol}", classes="cell"),
                          ReasonLine(), gap=_CELL + 1, hint=f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-row",
                          id=f"row-{spec.symbol}")
         self.spec = spec

@@ -15,7 +15,7 @@ from textual.widgets import Input, Static
 
 from meltfix.base.units import Units
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, TEMPERATURE
-from meltfix.tui.widgets.labelled import LabelledLine
+from meltfix.tui.widgets.labelled import CompactInput, LabelledLine
 from meltfix.tui.widgets.reason import ReasonLine
 
 
@@ -99,16 +99,16 @@ class HeatForm(Vertical):
         yield _row("Grade", GradeField(grade, id="grade", classes="form-field"))
         yield ReasonLine(id="reason-grade")
         yield _row(f"Bath {self._units.mass_unit}",
-                   Input(bath_text, id="bath", compact=True, classes="form-field form-input"))
+                   CompactInput(bath_text, id="bath", classes="form-field form-input"))
         yield ReasonLine(id="reason-bath")
         yield _row(f"Vessel {self._units.mass_unit}",
-                   Input(capacity_text, id="capacity", compact=True, classes="form-field form-input",
-                         placeholder="not limited"))
+                   CompactInput(capacity_text, id="capacity", classes="form-field form-input",
+                                 placeholder="not limited"))
         yield ReasonLine(id="reason-capacity")
         yield _row("Stage", CycleField(self._stages, stage, id="stage", classes="form-field"))
         yield _row(f"Temp {self._units.temperature_unit}",
-                   Input(temperature_text, id="temperature", compact=True, classes="form-field form-input",
-                         placeholder="no reading"))
+                   CompactInput(temperature_text, id="temperature", classes="form-field form-input",
+                                 placeholder="no reading"))
         yield ReasonLine(id="reason-temperature")
 
     @property

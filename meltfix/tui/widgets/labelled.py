@@ -9,7 +9,9 @@ words take their styles from the row's component classes, so the stylesheet stil
 from __future__ import annotations
 
 from rich.text import Text
+from textual.reactive import reactive
 from textual.widget import Widget
+from textual.widgets import Input
 
 
 class LabelledLine(Widget):
@@ -37,3 +39,14 @@ class LabelledLine(Widget):
         return Text.assemble((self.label, self.get_component_rich_style("labelled-line--label")),
                              " " * self.gap,
                              (self.hint, self.get_component_rich_style("labelled-line--hint")))
+
+
+class CompactInput(Input):
+    """A compact Input born with the state classes its constructor would add one at a time (compact,
+    valid): each add restyles the new Input and its four parts, before it is even mounted."""
+
+    compact = reactive(True, toggle_class="-textual-compact")
+
+    def __init__(self, value: str, *, id: str, classes: str, placeholder: str = "") -> None:
+        super().__init__(value, id=id, compact=True, classes=f"{classes} -textual-compact -valid",
+                         placeholder=placeholder)
