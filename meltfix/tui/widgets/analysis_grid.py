@@ -14,7 +14,7 @@ from meltfix.plan.numbers import limit_text, unit_of
 from meltfix.shop.grades import Grade
 from meltfix.tui.draft import cell_key
 from meltfix.tui.widgets.labelled import CompactInput, LabelledLine
-from meltfix.tui.widgets.reason import ReasonLine
+from meltfix.tui.widgets.reason import ReasonLine, show_reason
 
 _SYMBOL = 3  # columns of the element's symbol before its cell (trim.tcss: .cell's margin)
 _CELL = 11  # columns of the cell (trim.tcss: .cell's width)
@@ -44,7 +44,7 @@ class CellRow(LabelledLine):
 
     def __init__(self, spec: CellSpec) -> None:
         super().__init__(f"{spec.symbol:<{_SYMBOL}}", CompactInput(spec.text, id=f"cell-{spec.symbol}", classes="cell"),
-                         ReasonLine(), gap=_CELL + 1, hint=f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-row",
+                         gap=_CELL + 1, hint=f"{unit_of(spec.symbol):<4}{spec.hint}", classes="cell-row",
                          id=f"row-{spec.symbol}")
         self.spec = spec
 
@@ -54,7 +54,7 @@ class CellRow(LabelledLine):
 
     def show_reason(self, reason: str | None) -> None:
         self.query_one(Input).set_class(reason is not None, "-bad")
-        self.query_one(ReasonLine).show(reason)
+        show_reason(self, f"reason-{self.symbol}", reason)
 
 
 class AnalysisGrid(Vertical):

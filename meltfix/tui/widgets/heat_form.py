@@ -16,7 +16,7 @@ from textual.widgets import Input, Static
 from meltfix.base.units import Units
 from meltfix.tui.draft import BATH, CAPACITY, GRADE, TEMPERATURE
 from meltfix.tui.widgets.labelled import CompactInput, LabelledLine
-from meltfix.tui.widgets.reason import ReasonLine
+from meltfix.tui.widgets.reason import show_reason
 
 
 class GradeField(Static, can_focus=True):
@@ -79,7 +79,7 @@ _LABEL = 10  # columns of a field's label (trim.tcss: .form-field's margin)
 
 
 def _row(label: str, field: Widget) -> LabelledLine:
-    return LabelledLine(f"{label:<{_LABEL}}", field, classes="form-row")
+    return LabelledLine(f"{label:<{_LABEL}}", field, classes="form-row", id=f"row-{field.id}")
 
 
 class HeatForm(Vertical):
@@ -97,19 +97,15 @@ class HeatForm(Vertical):
     def compose(self) -> ComposeResult:
         grade, bath_text, capacity_text, stage, temperature_text = self._initial
         yield _row("Grade", GradeField(grade, id="grade", classes="form-field"))
-        yield ReasonLine(id="reason-grade")
         yield _row(f"Bath {self._units.mass_unit}",
                    CompactInput(bath_text, id="bath", classes="form-field form-input"))
-        yield ReasonLine(id="reason-bath")
         yield _row(f"Vessel {self._units.mass_unit}",
                    CompactInput(capacity_text, id="capacity", classes="form-field form-input",
                                  placeholder="not limited"))
-        yield ReasonLine(id="reason-capacity")
         yield _row("Stage", CycleField(self._stages, stage, id="stage", classes="form-field"))
         yield _row(f"Temp {self._units.temperature_unit}",
                    CompactInput(temperature_text, id="temperature", classes="form-field form-input",
                                  placeholder="no reading"))
-        yield ReasonLine(id="reason-temperature")
 
     @property
     def grade(self) -> str:
@@ -152,4 +148,4 @@ class HeatForm(Vertical):
         for key, widget_id in ((GRADE, "grade"), (BATH, "bath"), (CAPACITY, "capacity"), (TEMPERATURE, "temperature")):
             reason = errors.get(key)
             self.query_one(f"#{widget_id}").set_class(reason is not None, "-bad")
-            self.query_one(f"#reason-{widget_id}", ReasonLine).show(reason)
+            show_reason(self, f"reason-{widget_id}", reason, after=f"#row-{widget_id}")

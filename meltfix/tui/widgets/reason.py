@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from textual.content import Content
+from textual.widget import Widget
 from textual.widgets import Static
 
 
@@ -23,3 +24,16 @@ class ReasonLine(Static):
         self.reason = reason
         self.update(Content.styled(("↑ " if self.pointer else "") + reason, "$text-error") if reason else "")
         self.display = reason is not None
+
+
+def show_reason(parent: Widget, line_id: str, reason: str | None, *, after: str | None = None) -> None:
+    """Show ``reason`` on ``parent``'s line ``line_id`` (None hides it), mounting the line (``after`` the
+    child this selects, else last) the first time there is a reason: most fields never have one, and a hidden
+    line still costs its styling and mounting when the screen starts."""
+    found = parent.query_children(f"#{line_id}")
+    if found:
+        found.first(ReasonLine).show(reason)
+    elif reason is not None:
+        line = ReasonLine(id=line_id)
+        parent.mount(line, after=after)
+        line.show(reason)
