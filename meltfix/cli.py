@@ -42,9 +42,12 @@ class _OneLineParser(argparse.ArgumentParser):
         raise InputError("command line", self.prog, f"{message} ({self.prog} --help lists the options)")
 
 
-def build_parser(detailed: Collection[str] = tuple(COMMANDS)) -> argparse.ArgumentParser:
-    """The command line's parser. Only the commands in ``detailed`` get their options, which imports
-    their modules: `meltfix --help` lists the commands from their summaries and imports none."""
+def build_parser(detailed: Collection[str] = tuple(COMMANDS), listed: Collection[str] = tuple(COMMANDS)
+                 ) -> argparse.ArgumentParser:
+    """The command line's parser, with the commands in ``listed``. Only those in ``detailed`` get their
+    options, which imports their modules: `meltfix --help` lists the commands from their summaries and
+    imports none; a run of one command needs only that command (each parser costs argparse a few
+    translation and terminal-size look-ups)."""
     parser = _OneLineParser(
         prog="meltfix",
         description="Plan the cheapest additions that bring a heat of steel or iron into its grade. "
@@ -54,6 +57,8 @@ def build_parser(detailed: Collection[str] = tuple(COMMANDS)) -> argparse.Argume
     parser.add_argument("--version", action="version", version=f"meltfix {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module_name, summary) in COMMANDS.items():
+        if name not in listed:
+            continue
         command = sub.add_parser(name, help=summary, description=summary[0].upper() + summary[1:] + ".")
         if name in detailed:
             importlib.import_module(f"meltfix.commands.{module_name}").add_arguments(command)
@@ -75,7 +80,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         args_list.insert(0, "screen")
     columns = os.environ.get("COLUMNS")
     try:
-        args = build_parser(detailed=args_list[:1]).parse_args(args_list)
+        listed = args_list[:1] if args_list[0] in COMMANDS else tuple(COMMANDS)  # else --help or --version
+        args = build_parser(detailed=args_list[:1], listed=listed).parse_args(args_list)
         module = importlib.import_module(f"meltfix.commands.{COMMANDS[args.command][0]}")
         width = getattr(args, "width", None)
         if width is not None:
