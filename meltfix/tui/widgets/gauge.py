@@ -11,6 +11,8 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from itertools import groupby
+from operator import itemgetter
 
 from textual.content import Content
 from textual.geometry import Size
@@ -107,11 +109,13 @@ def gauge_line(row: GaugeRow, rail_cells: int, labels: bool = True, name_width: 
         (f"{row.symbol:<{name_width}}", "bold"), f"{now:>6}", (" → " if after else "   ", "$foreground-muted"),
         (f"{after:<6}", after_style), " ",
     ]
+    # The rail as runs of one style, not a span per cell: each span is styled on every paint.
+    runs = [("".join(mark for mark, _ in cells), style) for style, cells in groupby(rail, key=itemgetter(1))]
     if labels:
-        parts += [(f"{low_label:>{_LABEL}} ", "$foreground-muted"), *rail,
+        parts += [(f"{low_label:>{_LABEL}} ", "$foreground-muted"), *runs,
                   (f" {limit_text(row.symbol, high):<{_LABEL}}", "$foreground-muted")]
     else:
-        parts += rail
+        parts += runs
     if _doubtful(row):
         parts.append((f"{100 * row.odds:>{_ODDS - 1}.0f}%", "bold $text-warning"))  # type: ignore[operator]
     return Content.assemble(*parts)
