@@ -7,9 +7,11 @@ coils. Windows are linear once multiplied out by the final bath mass, so the opt
 
 Every row is written so that its coefficients depend on the recipe book and the grade only; what a
 heat changes (the bath W, the analysis c, prices, stock, locks, the vessel) lands in bounds and costs,
-plus one coefficient per row for the few families noted below. So the model is built once per
-(book, grade, mode) and kept hot in HiGHS (meltfix.plan.hot_model); a heat only overwrites bounds and
-costs (meltfix.plan.heat_load says what it writes).
+plus one coefficient per row for the few families noted below. A window's limit is the coefficient
+of M in its row, so a grade with its limits moved (the odds search's insets) is the same model with
+those coefficients rewritten. So the model is built once per (book, grade, mode) and kept hot in HiGHS
+(meltfix.plan.hot_model); a heat only overwrites bounds and costs (meltfix.plan.heat_load says what it
+writes).
 
 Columns, in this order: the materials (kg, or packs), the aim deviations d+ and d-, one on/off
 binary per material with a minimum addition, one elastic slack per window row (fixed at 0 except in
