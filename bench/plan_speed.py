@@ -37,7 +37,6 @@ from pathlib import Path
 from types import MappingProxyType
 
 import numpy as np
-
 from odds_speed import odds_figures
 
 from meltfix.base.paths import demo_dir

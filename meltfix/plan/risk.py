@@ -19,7 +19,7 @@ from dataclasses import replace
 
 from meltfix.plan.massbalance import recheck
 from meltfix.plan.moved_limits import loosened, real_name
-from meltfix.plan.odds_ladder import (Z_STEPS, Ladder, Tried, deepest_open, deeper_while_rising, judged, least_inset,
+from meltfix.plan.odds_ladder import (Z_STEPS, Ladder, Tried, deeper_while_rising, deepest_open, judged, least_inset,
                                       least_reaching, reaches)
 from meltfix.plan.planner import Planner
 from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Binding, PlanOptions, RiskPlan
