@@ -93,10 +93,10 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     notes: list[str] = []
     now, now_low, owed = _analysis_now(shape, heat, notes)
     if grade is None:
-        grade, limit_pct = shape.grade, shape.limit_pct
+        grade, limit_pct, mass_coefficients = shape.grade, shape.limit_pct, shape.own_mass_coefficients
     else:
         limit_pct = shape.limits_pct(grade)
-    mass_coefficients = shape.mass_coefficients(limit_pct)
+        mass_coefficients = shape.mass_coefficients(limit_pct)
     row_lower = np.full(shape.n_rows, -_INF)
     row_upper = np.full(shape.n_rows, _INF)
     # Every window row applies but a 0 % floor, which binds only an element in debt.

@@ -80,7 +80,7 @@ class HotModel:
         self.highs.passModel(lp)
         self._all_cols = np.arange(shape.n_cols, dtype=np.int32)
         self._all_rows = np.arange(shape.n_rows, dtype=np.int32)
-        self._mass_coefficients = shape.mass_coefficients(shape.limit_pct)  # as passed
+        self._mass_coefficients = shape.own_mass_coefficients  # as passed
         self._continuous = np.zeros(shape.n_cols, dtype=np.uint8)
         self._integrality = self._continuous  # as passed: no integrality at all
 

@@ -234,8 +234,10 @@ class ModelShape:
         """Per window row: +1 for a minimum (the coefficient of M is the limit), -1 for a maximum."""
         self.limit_pct = self.limits_pct(self.grade)
         """The model's own grade's limit of each window row [wt %, or the index's unit]."""
+        self.own_mass_coefficients = self.mass_coefficients(self.limit_pct)
+        """The window rows' coefficients of M for the model's own grade (most heats plan to it)."""
         block = self._material_block(self.window_y_per_kg)
-        block[:, self.col_mass] = self.mass_coefficients(self.limit_pct)
+        block[:, self.col_mass] = self.own_mass_coefficients
         block[np.arange(self.n_window), self.col_slack.start + np.arange(self.n_window)] = -1.0
         return Rows(block)
 
