@@ -78,6 +78,15 @@ class Ladder:
                 break  # settled: every inset is planned with the sigma this plan was made with
             self.sigma = tried.sigma
 
+    def least_closed(self) -> int | None:
+        """The least inset tried whose windows could not be met (None: none so far)."""
+        return min((k for k, t in self.plans.items() if t is None), default=None)
+
+    def best_odds(self) -> int:
+        """The inset tried whose plan has the best odds (the least of equals)."""
+        planned = {k: t for k, t in self.plans.items() if t is not None}
+        return min(planned, key=lambda k: (-planned[k].odds.heat, k))
+
     def at(self, k: int) -> Tried | None:
         if k not in self.plans:
             self.plans[k] = self._solved(k * Z_STEP)

@@ -45,8 +45,8 @@ class _OneHeat:
         self.risk, self.heat, self.options, self.trial = risk, heat, options, trial
         self._paper: Tried | None = None
         self._bare: Tried | None = None
-        self.loose: Ladder | None = None
-        self.packs: Ladder | None = None
+        self._relaxed: Ladder | None = None
+        self._in_packs: Ladder | None = None
         self.bindings: dict[tuple[float, tuple[Addition, ...]], tuple[Binding, ...]] = {}
         """What holds the cost up, per plan (its inset and additions) once re-solved."""
 
@@ -58,6 +58,23 @@ class _OneHeat:
             if self._paper.plan.status != "optimal":
                 self._paper = risk._without_bystanders(heat, self.options, self.trial, self._paper)
         return self._paper
+
+    def relaxed(self) -> Ladder:
+        """The insets planned on the linear relaxation (loose amounts, no minimums): one LP each."""
+        if self._relaxed is None:
+            self._relaxed = Ladder(self.risk.planner, self.heat, replace(self.options, relaxed=True), self.trial,
+                                   self.paper())
+        return self._relaxed
+
+    def in_packs(self) -> Ladder:
+        """The insets planned as the shop adds them, with the relaxed ladder's sigma: an inset whose
+        relaxation cannot be met cannot be met in packs either."""
+        if self._in_packs is None:
+            relaxed = None if self.options.relaxed else self.relaxed()
+            self._in_packs = Ladder(self.risk.planner, self.heat, self.options, self.trial, self.paper(),
+                                    None if relaxed is None else relaxed.sigma,
+                                    None if relaxed is None else relaxed.least_closed())
+        return self._in_packs
 
     def bare(self) -> Tried:
         """The cheapest plan inside, aims aside."""
@@ -205,23 +222,16 @@ class RiskPlanner:
         cheaper nor less likely inside, so a higher target still gets a plan at least as costly and
         at least as safe.
         """
-        paper, options = work.paper(), work.options
+        paper = work.paper()
         start, best_relaxed = 0, None
-        if not options.relaxed:
-            if work.loose is None:
-                work.loose = Ladder(self.planner, work.heat, replace(options, relaxed=True), work.trial, paper)
-            loose = work.loose
-            reached = least_reaching(loose, target, 0, least_inset(paper, target))
-            if reached <= Z_STEPS and loose.plans.get(reached) is not None:
+        if not work.options.relaxed:
+            relaxed = work.relaxed()
+            reached = least_reaching(relaxed, target, 0, least_inset(paper, target))
+            if reached <= Z_STEPS and relaxed.plans.get(reached) is not None:
                 start = reached
             else:
-                best_relaxed = max((t.odds.heat, -k) for k, t in loose.plans.items() if t is not None)[1] * -1
-        if work.packs is None:  # the relaxed ladder's sigma, and where its windows closed: in packs too
-            closed = None if work.loose is None else min((k for k, t in work.loose.plans.items() if t is None),
-                                                         default=None)
-            work.packs = Ladder(self.planner, work.heat, options, work.trial, paper,
-                                None if work.loose is None else work.loose.sigma, closed)
-        ladder = work.packs
+                best_relaxed = relaxed.best_odds()
+        ladder = work.in_packs()
         if best_relaxed is not None and not reaches(ladder.at(best_relaxed), target):
             deeper_while_rising(ladder, best_relaxed if ladder.at(best_relaxed) else deepest_open(ladder, best_relaxed))
             return self._short(ladder, target, work.trial)
