@@ -36,9 +36,9 @@ _LIMIT_NAME = re.compile(r"^(?P<label>\S+ (?:min|max)) (?P<pct>[-0-9.e+]+) %$")
 
 
 def loosened(heat: Heat, book: RecipeBook, grade: Grade, name: str) -> tuple[Heat, Grade] | None:
-    """The heat, and the grade to plan it to, with the limit or resource
-    ``name`` (a Binding's name) of ``grade`` loosened by the binding's unit: a limit by 0.01 %, the
-    capacity by 1 t, the drop by 1 °C, a stock by 1 kg."""
+    """The heat, and the grade to plan it to, with the limit or resource ``name`` (a Binding's name)
+    loosened by the binding's unit: a limit of ``grade`` by 0.01 %, the capacity by 1 t, the drop by
+    1 °C, a stock by 1 kg."""
     match = _LIMIT_NAME.match(name)
     if match:
         symbol, side = match["label"].rsplit(" ", 1)
