@@ -246,19 +246,15 @@ def _material_load(shape: ModelShape, heat: Heat) -> _Columns:
     for name, value in heat.stock_kg.items():
         stock[shape.column_of[name]] = value
     locked_kg = np.full(shape.n_materials, math.nan)
+    for name, value in heat.locked_kg.items():
+        locked_kg[shape.column_of[name]] = value
+    locked = ~np.isnan(locked_kg)
     # Allowed at the stage, not switched off, and not forbidden by the grade unless locked (a
     # lock is the user's explicit choice): as meltfix.shop.heat.usable_materials says.
-    if heat.locked_kg:
-        for name, value in heat.locked_kg.items():
-            locked_kg[shape.column_of[name]] = value
-        locked = ~np.isnan(locked_kg)
-        can_use, packed, switched = shape.allowed & (~shape.forbidden | locked), shape.packable & ~locked, \
-            (shape.min_kg > 0) & ~locked
-    else:  # most heats lock nothing
-        can_use, packed, switched = shape.allowed & ~shape.forbidden, shape.packable.copy(), shape.min_kg > 0
+    can_use = shape.allowed & (~shape.forbidden | locked)
     for name in heat.switched_off:
         can_use[shape.column_of[name]] = False
-    return _Columns(prices, stock, locked_kg, can_use, packed, switched)
+    return _Columns(prices, stock, locked_kg, can_use, shape.packable & ~locked, (shape.min_kg > 0) & ~locked)
 
 
 def _column_bounds(shape: ModelShape, columns: _Columns, reheat_max_c: float) -> tuple[np.ndarray, np.ndarray]:
