@@ -65,7 +65,7 @@ class Ladder:
             self.plans[closed] = None
         self.sigma = paper.sigma if sigma is None else sigma
         """Each limit's sigma [wt %] every inset is planned with: the fixed point at the anchor, or
-        the one given (a loose ladder's, for the ladder in whole packs that follows it)."""
+        the one given (the relaxed ladder's, for the ladder in whole packs that follows it)."""
         if sigma is not None:
             return
         anchor = least_inset(paper, _ANCHOR_ODDS)
