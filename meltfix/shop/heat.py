@@ -183,10 +183,9 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
     if heat.dissolved_o_ppm is not None and not 0 <= heat.dissolved_o_ppm <= _MAX_DISSOLVED_O_PPM:
         raise InputError(source, "dissolved_o_ppm", f"{heat.dissolved_o_ppm!r} ppm is outside 0..{_MAX_DISSOLVED_O_PPM:g} "
                          "ppm (oxygen saturates liquid iron at about 2300 ppm)")
-    overridden = (("switch_off", heat.switched_off), ("lock_kg", heat.locked_kg),
-                  ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg))
-    names = set(book.material_names) if any(entries for _, entries in overridden) else set()
-    for label, entries in overridden:
+    names = set(book.material_names)
+    for label, entries in (("switch_off", heat.switched_off), ("lock_kg", heat.locked_kg),
+                           ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg)):
         for name in entries:
             if name not in names:
                 raise InputError(source, f"{label}.{name}" if label != "switch_off" else label,
