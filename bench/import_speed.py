@@ -25,7 +25,7 @@ import time
 from pathlib import Path
 
 ELEMENTS = "C Si Mn P S Cr Ni Mo Cu Al V Nb Ti B N Sn".split()
-CLI = "import sys; from meltfix.cli import main; sys.exit(main())"
+CLI = "import sys; from meltfix.cli import program; sys.exit(program())"
 FLOOR = ("import csv, sys\n"
          "with open(sys.argv[1], newline='', encoding='utf-8') as f:\n"
          "    print(sum(len(row) for row in csv.reader(f, delimiter=';')))")

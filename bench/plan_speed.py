@@ -174,7 +174,7 @@ def batch(book: RecipeBook, count: int, seed: int, processes: bool = True) -> No
             path = Path(folder) / f"{heat.heat_id}.toml"
             path.write_text(heat_to_toml(heat), encoding="utf-8")
             paths.append(str(path))
-        code = "import sys; from meltfix.cli import main; sys.exit(main())"
+        code = "import sys; from meltfix.cli import program; sys.exit(program())"
         # --on-paper --draws 1: the plans alone; by default every plan is also judged by its odds.
         for jobs, extra in ((1, ["--on-paper", "--draws", "1"]), (2, ["--on-paper", "--draws", "1"]), (1, []), (2, [])):
             start = time.perf_counter()

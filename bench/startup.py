@@ -34,7 +34,7 @@ import tempfile
 import time
 from collections.abc import Callable
 
-CLI = "import sys; from meltfix.cli import main; sys.exit(main())"
+CLI = "import sys; from meltfix.cli import program; sys.exit(program())"
 
 
 async def _until(done: Callable[[], bool], what: str) -> None:
@@ -49,7 +49,11 @@ async def _until(done: Callable[[], bool], what: str) -> None:
 
 async def _screen_child() -> None:
     import argparse as _argparse
+    import gc
 
+    from meltfix.cli import COLLECT_EVERY
+
+    gc.set_threshold(COLLECT_EVERY)  # as the `meltfix` program sets it before it opens the screen
     from meltfix.commands.screen import build_app
     from meltfix.tui.widgets.plan_view import PlanView
 

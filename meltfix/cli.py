@@ -7,6 +7,7 @@ Each command lives in ``meltfix.commands.<name>`` with ``add_arguments(parser)``
 from __future__ import annotations
 
 import argparse
+import gc
 import importlib
 import os
 import sys
@@ -69,6 +70,23 @@ def build_parser(detailed: Collection[str] = tuple(COMMANDS), listed: Collection
     return parser
 
 
+# A run builds tens of thousands of objects that live to its end (modules, the recipe book, hot
+# models); at the collector's default, a pass every 700 new objects, a one-heat `meltfix solve`
+# spends a sixth of its CPU walking them. Cycles are still collected, in passes ~14x rarer.
+COLLECT_EVERY = 10_000
+
+
+def program() -> int:
+    """`meltfix` as a process of its own (the console script): main() with the collector set for it."""
+    gc.set_threshold(COLLECT_EVERY)
+    try:
+        return main()
+    finally:
+        # The process ends here: Python's last collections would walk every object only to free
+        # memory the operating system is about to take back.
+        gc.freeze()
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     args_list = list(sys.argv[1:] if argv is None else argv)
     # `meltfix` alone, `meltfix HEAT.toml` or `meltfix --recipes DIR` (any screen option) opens the screen.
@@ -117,4 +135,4 @@ def _unknown_command(word: str) -> str | None:
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    sys.exit(program())

@@ -193,10 +193,10 @@ def test_the_built_in_recipe_book_plans_a_heat(capsys: pytest.CaptureFixture[str
 @pytest.mark.slow  # meltfix solve in a pseudo-terminal, a process of its own
 def test_nothing_but_the_plans_reaches_the_terminal() -> None:
     # HiGHS can write straight to file descriptor 1 (seen with HiGHS 1.12), under Python's sys.stdout, which would
-    # corrupt a running screen; a separate process catches that. The demo heats (whole packs: integer
+    # corrupt a running screen; a separate process, started as the `meltfix` program is, catches that. The demo heats (whole packs: integer
     # solves) and three heats on which HiGHS 1.12 printed a debug line while its MIP presolve was on.
     heats = sorted((ROOT / "demo" / "heats").glob("*.toml")) + sorted(HEATS.glob("highs_chatter_*.toml"))
-    command = [sys.executable, "-c", "import sys; from meltfix.cli import main; sys.exit(main(sys.argv[1:]))",
+    command = [sys.executable, "-c", "import sys; from meltfix.cli import program; sys.exit(program())",
                "solve", *map(str, heats), "--json"]
     done = subprocess.run(command, capture_output=True, text=True, timeout=120)
     assert done.stderr == ""
