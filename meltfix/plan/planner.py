@@ -30,8 +30,9 @@ from meltfix.plan.massbalance import recheck, temperature_drop_c
 from meltfix.plan.numbers import degrees_text, temperature_text
 from meltfix.plan.plan_model import ModelShape
 from meltfix.plan.reasons import explain_violation
-from meltfix.plan.result import LIMIT_TOL_PCT, Addition, Binding, LimitCheck, Plan, PlanOptions, Violation, addition
-from meltfix.plan.sequence import sequence_additions
+from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, Later, LimitCheck, Plan, PlanOptions, Violation,
+                                 addition)
+from meltfix.plan.sequence import class_rank, sequence_additions
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.shop.materials import Material
@@ -125,16 +126,14 @@ class Planner:
         book, shape = self.book, model.shape
         grade = load.grade
         additions, used = _additions(shape, load, solution.x)
-        steps = sequence_additions(used, book.settings)
-        by_name = {a.material: a for a in additions}
-        additions = [by_name[step.material] for step in steps]
-        final_kg, predicted, checks = recheck(heat, grade, used, book.settings)
+        settings = book.settings
+        final_kg, predicted, checks = recheck(heat, grade, used, settings)
         drop = temperature_drop_c(heat.bath_kg, used) if used else 0.0
         # The status is the re-check's, on every path: a solver's "optimal" at a bath so small that
         # its tolerances matter, or after the minimums are cleaned, is judged like any other plan.
         missed = [check for check in checks if check.margin_pct < -LIMIT_TOL_PCT]
         violations = self._violations(heat, shape, load, missed, least.x if least is not None else None, used)
-        binding = () if missed else _sensitivity(model, load, solution, final_kg, heat.bath_kg)
+        duals = None if missed else _duals(model, load, solution)
         notes = load.notes
         units = book.settings.units  # notes are read by people: in the shop's units
         temperature = _temperature(heat, book, shape, solution.x, drop, predicted)
@@ -151,27 +150,30 @@ class Planner:
                        f"may cost up to {100 * solution.gap:.2g} % less",) if math.isfinite(solution.gap) else
                       (f"no plan in whole packs was found within the {budget_s:g} s planning budget: these are the "
                        "loose amounts rounded to whole packs and minimums, checked as shown",))
+        # The lines in the shop's order of classes, as their steps list them (meltfix.plan.sequence).
+        ranked = sorted(zip(additions, used), key=lambda line: class_rank(settings, line[1][0].addition_class))
+        state = BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c)
+        # What a plan shows but the odds search and a batch never read is worked out when first read.
         return Plan(
             heat_id=heat.heat_id,
             grade=heat.grade,
             status="closest" if missed else "optimal",
-            additions=tuple(additions),
+            additions=tuple(a for a, _ in ranked),
             total_cost=float(math.fsum([a.cost for a in additions] + [temperature.reheat_cost])),
             bath_kg=heat.bath_kg,
             final_kg=final_kg,
             predicted_pct=predicted,
             checks=checks,
             violations=tuple(violations),
-            binding=binding,
-            cautions=unchecked_caution(heat) + plan_cautions(
-                used, heat.bath_kg, drop, heat.temperature_c, book.settings,
-                BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c)),
+            binding=Later(lambda: () if duals is None else _bindings(shape, load, duals, final_kg, heat.bath_kg)),
+            cautions=Later(lambda: unchecked_caution(heat) + plan_cautions(used, heat.bath_kg, drop, heat.temperature_c,
+                                                                           settings, state)),
             temperature_drop_c=drop,
             notes=notes,
             currency=book.settings.currency,
             proven=solution.proven,
             gap=solution.gap,
-            steps=steps,
+            steps=Later(lambda: sequence_additions([u for _, u in ranked], settings)),
             liquidus_c=temperature.liquidus_c,
             temperature_after_c=temperature.after_c,
             superheat_c=book.settings.superheat_c,
@@ -297,28 +299,31 @@ def _closest(model: HotModel, load: HeatLoad, bath_kg: float, deadline: float,
                          "no plan is possible at all: the locked amounts alone break the vessel "
                          "capacity or the temperature limit")
     # The duals of an elastic model are not the plan's: a closest plan that meets every window
-    # after all has its duals from the plain model (see _sensitivity).
+    # after all has its duals from the plain model (see _duals).
     return replace(phase2 if phase2 is not None else phase1, row_dual=None, col_dual=None), phase1
 
 
-def _sensitivity(model: HotModel, load: HeatLoad, solution: Solution, final_kg: float,
-                 bath_kg: float) -> tuple[Binding, ...]:
-    """Duals of the LP with the integer choices fixed: what one more unit of each limit is worth.
+def _duals(model: HotModel, load: HeatLoad, solution: Solution) -> Solution | None:
+    """The duals of the LP with the integer choices fixed (None when it has none).
 
     A plan carries the duals of its own LP (the relaxation, or the LP with its integers fixed);
     a closest plan that met every window after all gets them here, from the plain model with the
     packs and the on/off choices fixed at the plan's values.
     """
-    shape = model.shape
-    duals: Solution | None = solution
-    if solution.row_dual is None:
-        fixed = load.integrality > 0
-        model.load(load)  # undo anything the closest-plan phases changed
-        lower, upper = load.col_lower.copy(), load.col_upper_all.copy()
-        lower[fixed] = upper[fixed] = np.rint(solution.x[fixed])
-        model.set_bounds(lower, upper)
-        duals = model.solve_lp()
-    if duals is None or duals.row_dual is None or duals.col_dual is None:
+    if solution.row_dual is not None:
+        return solution
+    fixed = load.integrality > 0
+    model.load(load)  # undo anything the closest-plan phases changed
+    lower, upper = load.col_lower.copy(), load.col_upper_all.copy()
+    lower[fixed] = upper[fixed] = np.rint(solution.x[fixed])
+    model.set_bounds(lower, upper)
+    return model.solve_lp()
+
+
+def _bindings(shape: ModelShape, load: HeatLoad, duals: Solution, final_kg: float,
+              bath_kg: float) -> tuple[Binding, ...]:
+    """What one more unit of each limit is worth, read from the duals of the plan's LP."""
+    if duals.row_dual is None or duals.col_dual is None:
         return ()
     # HiGHS's duals are d(cost) / d(row bound); loosening a "<=" row raises its bound.
     saving = -duals.row_dual

@@ -9,8 +9,9 @@ every module that judges a limit uses it.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
+from typing import Generic, TypeVar, overload
 
 from meltfix.plan.sequence import AdditionStep
 from meltfix.shop.grades import Grade
@@ -25,6 +26,50 @@ module that judges a limit (plans, the hand method, replays, the odds, the table
 def is_outside(margin_pct: float) -> bool:
     """Whether a margin to a limit [wt %] is a miss (beyond float noise)."""
     return margin_pct < -LIMIT_TOL_PCT
+
+
+T = TypeVar("T")
+
+
+class Later(Generic[T]):
+    """A part of a plan given as the function that works it out, run when the part is first read."""
+
+    def __init__(self, work: Callable[[], T]) -> None:
+        self.work = work
+
+
+class OnFirstRead(Generic[T]):
+    """A field of a frozen dataclass given as its value or as ``Later(work)``: ``work`` runs when the
+    field is first read and its value is kept. Reading is all that repr, ==, hash, to_json and
+    ``dataclasses.replace`` do, so these see the value as if it had been given.
+
+    For the parts of a plan only a person reads (its cautions, its lots, what holds its cost up): a
+    plan that is only compared, searched over or counted never works them out (bench/plan_speed.py).
+    ``dataclasses.replace`` reads every field, so a replaced plan has them worked out."""
+
+    def __init__(self, default: T | None = None) -> None:
+        self.default = default
+        """The field's default; None = it has none."""
+
+    def __set_name__(self, owner: type, name: str) -> None:
+        self.slot = f"_{name}"
+
+    @overload
+    def __get__(self, instance: None, owner: type) -> OnFirstRead[T]: ...
+    @overload
+    def __get__(self, instance: object, owner: type) -> T: ...
+    def __get__(self, instance: object | None, owner: type) -> T | OnFirstRead[T]:
+        if instance is None:  # the dataclass asks for the field's default
+            if self.default is None:
+                raise AttributeError(self.slot)
+            return self.default
+        value: T | Later[T] = instance.__dict__[self.slot]
+        if isinstance(value, Later):
+            value = instance.__dict__[self.slot] = value.work()
+        return value
+
+    def __set__(self, instance: object, value: T | Later[T]) -> None:
+        instance.__dict__[self.slot] = value  # the frozen dataclass's __init__ comes here (object.__setattr__)
 
 
 @dataclass(frozen=True)
@@ -106,9 +151,11 @@ class Binding:
     "degC" (the drop); the shop's units rewrite the last three (plan/numbers.binding_text)."""
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, kw_only=True)
 class Plan:
-    """The planner's answer for one heat. All masses [kg], contents [wt %], costs [currency]."""
+    """The planner's answer for one heat. All masses [kg], contents [wt %], costs [currency].
+
+    ``binding``, ``cautions`` and ``steps`` may be given as ``Later(work)`` (see OnFirstRead)."""
 
     heat_id: str
     grade: str
@@ -123,8 +170,8 @@ class Plan:
     predicted_pct: Mapping[str, float]
     checks: tuple[LimitCheck, ...]
     violations: tuple[Violation, ...]
-    binding: tuple[Binding, ...]
-    cautions: tuple[str, ...]
+    binding: OnFirstRead[tuple[Binding, ...]] = OnFirstRead()
+    cautions: OnFirstRead[tuple[str, ...]] = OnFirstRead()
     temperature_drop_c: float
     """Predicted cooling by the additions [°C] (negative = the bath warms)."""
     notes: tuple[str, ...] = ()
@@ -134,7 +181,7 @@ class Plan:
     gap: float = 0.0
     """How much cheaper the cheapest plan might still be, relative to this one's cost [fraction];
     infinite when the budget ran out before any plan in whole packs was found (JSON: null)."""
-    steps: tuple[AdditionStep, ...] = ()
+    steps: OnFirstRead[tuple[AdditionStep, ...]] = OnFirstRead(())
     """The additions as the crew makes them, in the shop's order with their lots (same order as
     ``additions``)."""
     liquidus_c: float | None = None
