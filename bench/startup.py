@@ -49,11 +49,9 @@ async def _until(done: Callable[[], bool], what: str) -> None:
 
 async def _screen_child() -> None:
     import argparse as _argparse
-    import gc
+    from meltfix.cli import set_up_process
 
-    from meltfix.cli import COLLECT_EVERY
-
-    gc.set_threshold(COLLECT_EVERY)  # as the `meltfix` program sets it before it opens the screen
+    set_up_process()  # as the `meltfix` program does before it opens the screen
     from meltfix.commands.screen import build_app
     from meltfix.tui.widgets.plan_view import PlanView
 

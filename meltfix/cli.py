@@ -76,9 +76,18 @@ def build_parser(detailed: Collection[str] = tuple(COMMANDS), listed: Collection
 COLLECT_EVERY = 10_000
 
 
-def program() -> int:
-    """`meltfix` as a process of its own (the console script): main() with the collector set for it."""
+def set_up_process() -> None:
+    """What the `meltfix` program sets before it imports anything heavy (the benchmarks' children too)."""
     gc.set_threshold(COLLECT_EVERY)
+    # NumPy's OpenBLAS starts a thread per core as it loads, for matrix products far larger than a
+    # recipe book's; one thread spares each process (and each of `solve --jobs N`) that start-up and
+    # leaves the cores to HiGHS and the screen. A user's own setting is kept.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+
+
+def program() -> int:
+    """`meltfix` as a process of its own (the console script): main() in a process set up for it."""
+    set_up_process()
     try:
         return main()
     finally:

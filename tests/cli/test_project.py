@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import gc
+import os
 import re
 import subprocess
 import sys
@@ -10,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from meltfix.cli import COMMANDS, main
+from meltfix.cli import COLLECT_EVERY, COMMANDS, main, set_up_process
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -30,6 +32,24 @@ def test_readme_quick_start_has_exactly_two_commands() -> None:
 def test_ci_runs_the_readme_test_command_verbatim() -> None:
     test_command = _quick_start_commands()[1]
     assert test_command in (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+
+
+def test_the_console_script_runs_the_program_set_up() -> None:
+    assert 'meltfix = "meltfix.cli:program"' in (ROOT / "pyproject.toml").read_text(encoding="utf-8")
+
+
+def test_the_program_sets_up_its_process_keeping_the_users_own_setting(monkeypatch: pytest.MonkeyPatch) -> None:
+    threshold = gc.get_threshold()
+    try:
+        monkeypatch.setenv("OPENBLAS_NUM_THREADS", "")
+        monkeypatch.delenv("OPENBLAS_NUM_THREADS")
+        set_up_process()
+        assert os.environ["OPENBLAS_NUM_THREADS"] == "1" and gc.get_threshold()[0] == COLLECT_EVERY
+        monkeypatch.setenv("OPENBLAS_NUM_THREADS", "4")
+        set_up_process()
+        assert os.environ["OPENBLAS_NUM_THREADS"] == "4"
+    finally:
+        gc.set_threshold(*threshold)
 
 
 def test_help_lists_every_command(capsys: pytest.CaptureFixture[str]) -> None:
