@@ -17,7 +17,7 @@ from typing import NoReturn
 
 from meltfix import __version__
 from meltfix.base.errors import InputError
-from meltfix.commands.exits import EXIT_BAD_INPUT
+from meltfix.commands.exits import EXIT_BAD_INPUT, EXIT_INTERRUPTED, EXIT_PIPE_CLOSED
 
 # Commands that print tables take --width; the narrowest width their long layouts are made for.
 TABLE_COMMANDS = ("solve", "import", "report", "replay", "recoveries")
@@ -90,6 +90,11 @@ def program() -> int:
     set_up_process()
     try:
         return main()
+    except BrokenPipeError:
+        # The reader went away (`meltfix solve ... | head`): stop quietly, as a writer to a closed
+        # pipe does, and point stdout at nothing so Python's own last flush does not fail again.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_PIPE_CLOSED
     finally:
         # The process ends here: Python's last collections would walk every object only to free
         # memory the operating system is about to take back.
@@ -121,7 +126,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"meltfix: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
-        return 130
+        return EXIT_INTERRUPTED
     finally:  # main() may be called again in the same process (the tests do)
         if columns is None:
             os.environ.pop("COLUMNS", None)

@@ -8,3 +8,7 @@ EXIT_CLOSEST = 3
 """No plan meets every window; the closest plan is shown."""
 EXIT_SHORT = 4
 """Every window met on paper, but the odds fall short of the target."""
+EXIT_INTERRUPTED = 130
+"""Stopped by Ctrl+C (128 + SIGINT, as a shell reports it)."""
+EXIT_PIPE_CLOSED = 141
+"""The program reading the output closed it first (128 + SIGPIPE, as a shell reports it)."""

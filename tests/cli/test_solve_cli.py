@@ -16,6 +16,7 @@ from pathlib import Path
 import pytest
 
 from meltfix.cli import main
+from meltfix.commands.exits import EXIT_PIPE_CLOSED
 
 ROOT = Path(__file__).resolve().parents[2]
 HEATS = ROOT / "tests" / "data" / "heats"
@@ -204,6 +205,19 @@ def test_nothing_but_the_plans_reaches_the_terminal() -> None:
     lines = done.stdout.splitlines()
     assert len(lines) == len(heats)
     assert all(json.loads(line)["status"] in ("optimal", "closest") for line in lines)
+
+
+def test_a_reader_that_closes_the_pipe_first_stops_the_program_quietly() -> None:
+    # `meltfix solve ... | head`: the reader is gone before the first line is written. Exit 141
+    # (128 + SIGPIPE) is what a shell reports for a writer stopped that way (common practice).
+    command = [sys.executable, "-c", "import sys; from meltfix.cli import program; sys.exit(program())",
+               "solve", str(ROOT / "demo" / "heats" / "KB-24101.toml"), "--json"]
+    child = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    assert child.stdout is not None and child.stderr is not None
+    child.stdout.close()
+    stderr = child.stderr.read().decode()
+    assert child.wait(timeout=60) == EXIT_PIPE_CLOSED
+    assert stderr == ""
 
 
 # --------------------------------------------------------------------------------------------
