@@ -4,4 +4,5 @@ import sys
 
 from meltfix.cli import program
 
-sys.exit(program())
+if __name__ == "__main__":  # imported (the import-hygiene test imports every module), it runs nothing
+    sys.exit(program())
