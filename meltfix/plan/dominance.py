@@ -43,7 +43,7 @@ _DECIMALS = 12
 _PRICE_MARGIN = 1e-9
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class Pairs:
     """Candidate pairs (b, a) of one model: b's column is ``ratio`` times a's and b chills no less."""
 
@@ -93,7 +93,7 @@ def most_kg(coefficients: np.ndarray, upper: np.ndarray, material_upper_kg: np.n
     return np.asarray(bound.min(axis=0, initial=np.inf))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class HeatMaterials:
     """One heat's view of the materials, per material, as the dominance test needs it."""
 

@@ -27,7 +27,7 @@ from meltfix.shop.heat import Heat
 _INF = math.inf
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class HeatLoad:
     """What one heat writes into a model: bounds, costs, integrality and the few moving coefficients."""
 
@@ -71,7 +71,7 @@ class HeatLoad:
         return bool(self.packed.any() or self.switched.any())
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class _Columns:
     """One heat's view of the book's materials, one entry per material column."""
 

@@ -34,7 +34,7 @@ _OPTIONS: dict[str, bool | float | str] = {
 }
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class Solution:
     """A solver point, with the LP duals when it came from a linear programme."""
 

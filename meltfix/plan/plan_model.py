@@ -54,7 +54,7 @@ class WindowRow:
     """"min" or "max"."""
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class Rows:
     """A family of rows: fixed coefficients over all columns; the heat sets the bounds."""
 

@@ -59,7 +59,7 @@ def analysis_sigma_pct(symbols: Sequence[str], pct: np.ndarray) -> np.ndarray:
     return limit(np.arange(len(symbols)), pct) / R_TO_SIGMA
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class World:
     """Many draws of the true heat: what the bath really holds and what each material really gives."""
 
