@@ -12,8 +12,7 @@ import meltfix
 def _core_modules() -> list[str]:
     names = []
     for info in pkgutil.walk_packages(meltfix.__path__, "meltfix."):
-        # The screen's own modules may import Textual; importing __main__ runs the program.
-        if not info.name.startswith("meltfix.tui") and info.name != "meltfix.__main__":
+        if not info.name.startswith("meltfix.tui"):
             names.append(info.name)
     return names
 
