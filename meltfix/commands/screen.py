@@ -7,6 +7,7 @@ inside run(), so the plain command line never loads it.
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -26,6 +27,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--tickets", metavar="DIR", type=Path, help="folder for crew tickets (default: shop.toml ticket_dir, else tickets/ in "
                         "the user's meltfix data folder)")
     parser.add_argument("--light", action="store_true", help="colours for a light terminal")
+
+
+def on_a_terminal() -> bool:
+    """Whether the keys come from a terminal and the screen goes to one."""
+    return sys.stdin.isatty() and sys.stdout.isatty()
 
 
 def first_demo_heat() -> Path:
@@ -78,7 +84,11 @@ def demo_accepted_path() -> Path:
 
 
 def run(args: argparse.Namespace) -> int:
-    app = build_app(args)
+    app = build_app(args)  # first: a bad heat file or recipe book is named whatever the terminal
+    if not on_a_terminal():
+        # Without one Textual would draw into the pipe or file and wait for keys that never come.
+        raise InputError("command line", "screen", "the screen needs a terminal to draw on and read keys from; "
+                         "in a script or a pipe use `meltfix solve HEAT.toml` (--json for other programs)")
     app.run()
     # Textual sets a non-zero return code when the app stops on an unhandled error: pass it on, so a
     # crashed screen never looks like a clean exit to a script or a shell.

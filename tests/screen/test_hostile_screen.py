@@ -3,6 +3,9 @@ input, an id that looks like markup, an empty cell the grade needs. The app must
 
 from __future__ import annotations
 
+import subprocess
+import sys
+
 from textual.events import Paste
 from textual.widgets import Input
 
@@ -99,4 +102,15 @@ def test_a_screen_that_dies_of_an_error_exits_non_zero(monkeypatch) -> None:
             pass
 
     monkeypatch.setattr(screen, "build_app", lambda args: Crashed())
+    monkeypatch.setattr(screen, "on_a_terminal", lambda: True)
     assert screen.run(None) == 1
+
+
+def test_the_screen_without_a_terminal_says_so_and_exits_2() -> None:
+    # `meltfix` in a script, its output to a file: one line pointing at `meltfix solve`, not a screen
+    # drawn into the file waiting for keys that never come.
+    done = subprocess.run([sys.executable, "-m", "meltfix"], stdin=subprocess.DEVNULL, capture_output=True,
+                          text=True, timeout=60)
+    assert done.returncode == 2 and done.stdout == ""
+    assert done.stderr.startswith("meltfix: command line: screen: the screen needs a terminal")
+    assert "meltfix solve" in done.stderr
