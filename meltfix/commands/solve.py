@@ -120,13 +120,19 @@ def _run_in_processes(args: argparse.Namespace) -> int:
         looks["FORCE_COLOR"] = "1"
     worst = EXIT_OK
     with ProcessPoolExecutor(max_workers=args.jobs, initializer=os.environ.update, initargs=(looks,)) as pool:
-        for status, out, err, error in pool.map(_run_captured, runs):
-            sys.stdout.write(out)
-            sys.stderr.write(err)
-            sys.stdout.flush()
-            if error is not None:  # bad input for every heat (the recipe book, an option): as without --jobs
-                raise InputError(*error)
-            worst = max(worst, status, key=_SEVERITY.__getitem__)
+        try:
+            for status, out, err, error in pool.map(_run_captured, runs):
+                sys.stdout.write(out)
+                sys.stderr.write(err)
+                sys.stdout.flush()
+                if error is not None:  # bad input for every heat (the recipe book, an option): as without --jobs
+                    raise InputError(*error)
+                worst = max(worst, status, key=_SEVERITY.__getitem__)
+        except BaseException:
+            # Bad input, a reader gone (| head) or Ctrl+C: the runs not yet started are dropped rather
+            # than planned for nobody (leaving the pool would wait for them all).
+            pool.shutdown(wait=False, cancel_futures=True)
+            raise
     return worst
 
 
