@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -73,7 +74,10 @@ class HeatLoad:
 
 @dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
 class _Columns:
-    """One heat's view of the book's materials, one entry per material column."""
+    """One heat's view of the book's materials, one entry per material column, and the column
+    bounds, costs and integrality that follow from it: the same for every heat with the same
+    overrides (prices, stock, locks, materials switched off), so worked out once for them
+    (``_columns_of``) and shared, read only."""
 
     prices: np.ndarray
     stock: np.ndarray
@@ -83,6 +87,12 @@ class _Columns:
     can_use: np.ndarray
     packed: np.ndarray
     switched: np.ndarray
+    col_lower: np.ndarray
+    col_upper: np.ndarray
+    """Every usable material open (see ``HeatLoad.col_upper_all``)."""
+    cost: np.ndarray
+    """The arc heating's aside (it moves with the bath)."""
+    integrality: np.ndarray
 
 
 def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True,
@@ -104,9 +114,9 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     active = ~floor | np.array([row.element in owed for row in shape.window_rows], dtype=bool) if owed else ~floor
     upper = heat.bath_kg * (shape.window_bounds @ np.concatenate((now_low, now)))
     row_upper[shape.windows.span] = np.where(active, upper, _INF)
-    coefficients, reheat_max_c, reheat_cost = _row_bounds(shape, heat, now, row_lower, row_upper, notes)
-    columns = _material_load(shape, heat)
-    col_lower, col_upper = _column_bounds(shape, columns, reheat_max_c)
+    coefficients, reheat_cost = _row_bounds(shape, heat, now, row_lower, row_upper, notes)
+    columns = _columns_of(shape, heat, aim_penalty)
+    col_lower, col_upper = columns.col_lower, columns.col_upper
     switch_most_kg = _switch_rows(shape, heat, columns, row_upper, coefficients)
     pruned = np.zeros(shape.n_materials, dtype=bool)
     col_upper_all = col_upper
@@ -118,15 +128,10 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
         col_upper = col_upper.copy()
         col_upper[shape.col_mat][pruned] = 0.0
         col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
-
-    cost = np.zeros(shape.n_cols)
-    cost[shape.col_mat] = columns.prices * shape.scale
-    cost[shape.col_up] = cost[shape.col_down] = AIM_PENALTY_PER_KG * aim_penalty
+    cost = columns.cost.copy()
     cost[shape.col_reheat] = reheat_cost
-    integrality = np.zeros(shape.n_cols)
-    integrality[shape.col_mat] = columns.packed
-    integrality[shape.col_switch] = 1
-    return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, integrality, tuple(coefficients),
+    return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, columns.integrality,
+                    tuple(coefficients),
                     columns.packed, columns.switched, columns.locked_kg, columns.prices, active, columns.can_use,
                     pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
@@ -158,16 +163,16 @@ def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.n
 
 
 def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.ndarray, row_upper: np.ndarray,
-                notes: list[str]) -> tuple[list[tuple[int, int, float]], float, float]:
-    """The bounds of every row but the windows and the on/off rows; returns the moving coefficients,
-    the most arc heating [°C] and its cost [currency per °C]."""
+                notes: list[str]) -> tuple[list[tuple[int, int, float]], float]:
+    """The bounds of every row but the windows and the on/off rows; returns the moving coefficients
+    and the arc heating's cost [currency per °C]."""
     settings, bath = shape.book.settings, heat.bath_kg
     if heat.capacity_kg is not None:
         row_upper[shape.capacity.first] = heat.capacity_kg - bath
     max_drop = heat.drop_limit_c(settings)
     if max_drop is not None:
         row_upper[shape.temperature.first] = max_drop * bath
-    reheat_max_c, reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
+    reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
     row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
     unlisted_now = np.array([heat.analysis.pct.get(s, 0.0) for s in shape.unlisted]) / 100.0
     row_upper[shape.unlisted_rows.span] = -bath * unlisted_now
@@ -183,20 +188,19 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.nd
         k = shape.row_of[symbol]
         row_lower[shape.aims.first + t] = row_upper[shape.aims.first + t] = \
             -bath * (now[k] - shape.grade.aim_pct[symbol] / 100.0)
-    return coefficients, reheat_max_c, reheat_cost
+    return coefficients, reheat_cost
 
 
 def _temperature_load(shape: ModelShape, heat: Heat, row_lower: np.ndarray, notes: list[str]
-                      ) -> tuple[float, float, float]:
-    """The heat's arc heating (most [°C], cost [currency per °C]) and the superheat row: its lower
-    bound goes in ``row_lower``; returns also the row's coefficient of M (T0 - S - base)."""
+                      ) -> tuple[float, float]:
+    """The heat's arc heating cost [currency per °C] and the superheat row: its lower bound goes in
+    ``row_lower``; returns also the row's coefficient of M (T0 - S - base)."""
     settings = shape.book.settings
-    stage = settings.stages.get(heat.stage)
-    reheat_max_c, reheat_cost = 0.0, 0.0
-    if stage is not None and stage.can_reheat:
-        reheat_max_c, reheat_cost = stage.reheat_max_c, stage.reheat_cost_per_c * heat.bath_kg / 1000.0
+    reheat_max_c, reheat_cost = _reheat_max_c(shape, heat.stage), 0.0
+    if reheat_max_c > 0:
+        reheat_cost = settings.stages[heat.stage].reheat_cost_per_c * heat.bath_kg / 1000.0
     if heat.temperature_c is None:
-        return reheat_max_c, reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
+        return reheat_cost, 1.0  # no reading: the row stays open (a placeholder)
     superheat = settings.superheat_c
     # Below-limit readings at 0: the safe end for a liquidus (less solute, a higher liquidus).
     analysis = heat.analysis
@@ -214,7 +218,13 @@ def _temperature_load(shape: ModelShape, heat: Heat, row_lower: np.ndarray, note
     row_lower[shape.superheat.first] = lower
     coefficient = heat.temperature_c - superheat - shape.liquidus.base_c
     # Floored away from 0 so HiGHS keeps the matrix's structure (it deletes a 0 coefficient).
-    return reheat_max_c, reheat_cost, coefficient if abs(coefficient) > 1e-8 else 1e-8
+    return reheat_cost, coefficient if abs(coefficient) > 1e-8 else 1e-8
+
+
+def _reheat_max_c(shape: ModelShape, stage_name: str) -> float:
+    """The most arc heating the stage can buy [°C]; 0 where it cannot reheat."""
+    stage = shape.book.settings.stages.get(stage_name)
+    return stage.reheat_max_c if stage is not None and stage.can_reheat else 0.0
 
 
 def _treatment_note(shape: ModelShape, heat: Heat) -> str:
@@ -238,39 +248,60 @@ def _treatment_note(shape: ModelShape, heat: Heat) -> str:
     return note
 
 
-def _material_load(shape: ModelShape, heat: Heat) -> _Columns:
+def _columns_of(shape: ModelShape, heat: Heat, aim_penalty: float) -> _Columns:
     """This heat's view of every material: the book's values with the heat's overrides."""
+    return _overridden(shape, heat.stage, tuple(heat.price_per_kg.items()), tuple(heat.stock_kg.items()),
+                       tuple(heat.locked_kg.items()), heat.switched_off, aim_penalty)
+
+
+@lru_cache(maxsize=64)
+def _overridden(shape: ModelShape, stage: str, prices_of: tuple[tuple[str, float], ...],
+                stock_of: tuple[tuple[str, float], ...], locked_of: tuple[tuple[str, float], ...],
+                switched_off: frozenset[str], aim_penalty: float) -> _Columns:
+    """_Columns for these overrides (name, value), worked out once for every heat that has them."""
     prices, stock = shape.book_prices.copy(), shape.book_stock.copy()
-    for name, value in heat.price_per_kg.items():
+    for name, value in prices_of:
         prices[shape.column_of[name]] = value
-    for name, value in heat.stock_kg.items():
+    for name, value in stock_of:
         stock[shape.column_of[name]] = value
     locked_kg = np.full(shape.n_materials, math.nan)
-    for name, value in heat.locked_kg.items():
+    for name, value in locked_of:
         locked_kg[shape.column_of[name]] = value
     locked = ~np.isnan(locked_kg)
     # Allowed at the stage, not switched off, and not forbidden by the grade unless locked (a
     # lock is the user's explicit choice): as meltfix.shop.heat.usable_materials says.
     can_use = shape.allowed & (~shape.forbidden | locked)
-    for name in heat.switched_off:
+    for name in switched_off:
         can_use[shape.column_of[name]] = False
-    return _Columns(prices, stock, locked_kg, can_use, shape.packable & ~locked, (shape.min_kg > 0) & ~locked)
+    packed, switched = shape.packable & ~locked, (shape.min_kg > 0) & ~locked
+    col_lower, col_upper = _column_bounds(shape, stock, locked_kg, can_use, packed, switched, _reheat_max_c(shape, stage))
+    cost = np.zeros(shape.n_cols)
+    cost[shape.col_mat] = prices * shape.scale
+    cost[shape.col_up] = cost[shape.col_down] = AIM_PENALTY_PER_KG * aim_penalty
+    integrality = np.zeros(shape.n_cols)
+    integrality[shape.col_mat] = packed
+    integrality[shape.col_switch] = 1
+    columns = _Columns(prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality)
+    for array in vars(columns).values():
+        array.flags.writeable = False  # shared by every heat with these overrides
+    return columns
 
 
-def _column_bounds(shape: ModelShape, columns: _Columns, reheat_max_c: float) -> tuple[np.ndarray, np.ndarray]:
+def _column_bounds(shape: ModelShape, stock_kg: np.ndarray, locked_kg: np.ndarray, can_use: np.ndarray,
+                   packed: np.ndarray, switched: np.ndarray, reheat_max_c: float) -> tuple[np.ndarray, np.ndarray]:
     """Column bounds: materials within stock (whole packs where packed), locks fixed, the on/off
     binaries free where a minimum applies, slacks shut, arc heating up to the stage's most."""
-    locked = ~np.isnan(columns.locked_kg)
+    locked = ~np.isnan(locked_kg)
     col_lower = np.zeros(shape.n_cols)
     col_upper = np.full(shape.n_cols, _INF)
-    stock = columns.stock / shape.scale
-    usable = np.where(columns.can_use, np.where(columns.packed, np.floor(stock + 1e-9), stock), 0.0)
+    stock = stock_kg / shape.scale
+    usable = np.where(can_use, np.where(packed, np.floor(stock + 1e-9), stock), 0.0)
     if locked.any():  # most heats lock nothing
-        fixed = columns.locked_kg / shape.scale
+        fixed = locked_kg / shape.scale
         usable = np.where(locked, fixed, usable)
         col_lower[shape.col_mat] = np.where(locked, fixed, 0.0)
     col_upper[shape.col_mat] = usable
-    col_upper[shape.col_switch] = np.where(columns.switched[shape.switchable], 1.0, 0.0)
+    col_upper[shape.col_switch] = np.where(switched[shape.switchable], 1.0, 0.0)
     col_upper[shape.col_slack] = 0.0
     col_upper[shape.col_reheat] = reheat_max_c
     return col_lower, col_upper
@@ -286,11 +317,12 @@ def _switch_rows(shape: ModelShape, heat: Heat, columns: _Columns, row_upper: np
     most = np.minimum(columns.stock, 10.0 * bath)
     if heat.capacity_kg is not None:
         most = np.minimum(most, (heat.capacity_kg - bath) / np.maximum(shape.g, 1e-9))
-    switch_rows = shape.switch.first + 2 * np.arange(len(shape.switchable))
-    on = switch_rows[columns.switched[shape.switchable]]
-    row_upper[on] = row_upper[on + 1] = 0.0
-    coefficients += zip((switch_rows + 1).tolist(), range(shape.col_switch.start, shape.col_switch.stop),
-                        (-np.maximum(most, shape.min_kg)[shape.switchable]).tolist())
+    if shape.switchable.size:  # no minimums (loose amounts, the relaxation): no on/off rows
+        switch_rows = shape.switch.first + 2 * np.arange(len(shape.switchable))
+        on = switch_rows[columns.switched[shape.switchable]]
+        row_upper[on] = row_upper[on + 1] = 0.0
+        coefficients += zip((switch_rows + 1).tolist(), range(shape.col_switch.start, shape.col_switch.stop),
+                            (-np.maximum(most, shape.min_kg)[shape.switchable]).tolist())
     return most
 
 
