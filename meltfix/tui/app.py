@@ -1,4 +1,4 @@
-"""The Textual application: holds the shop's data and opens the trim screen.
+"""The Textual application: holds the shop's data; the trim screen is its first screen.
 
 Other screens plug in by name: ``EXTRA_SCREENS`` maps a key to a module that defines
 ``make_screen(app: MeltfixApp) -> Screen``. The app offers them ``app.book``,
@@ -59,6 +59,8 @@ class MeltfixApp(App[None]):
         self.tickets_dir = tickets_dir if tickets_dir is not None else (
             Path(book.settings.ticket_dir) if book.settings.ticket_dir else user_data_dir() / "tickets")
         self.light = light
+        if light:  # set only when asked, before any widget is styled: a theme change restyles every widget
+            self.theme = "textual-light"
 
     def notify(self, message: str, *, title: str = "", severity: SeverityLevel = "information",
                timeout: float | None = None, markup: bool = True) -> None:
@@ -71,11 +73,12 @@ class MeltfixApp(App[None]):
         super().notify(fit_paths(visible(message), width), title=visible(title), severity=severity, timeout=timeout,
                        markup=False)
 
-    def on_mount(self) -> None:
-        if self.light:  # set only when asked: a theme change restyles every widget
-            self.theme = "textual-light"
-        self.push_screen(TrimScreen(self.book, self.heat, heat_path=self.heat_path, logbook_path=self.logbook_path,
-                                    tickets_dir=self.tickets_dir))
+    def get_default_screen(self) -> Screen:
+        # The trim screen is the app's first screen itself, not pushed over the framework's empty
+        # one: that one was styled, laid out and painted for nothing, and the push laid out the
+        # trim screen once more after its first frame.
+        return TrimScreen(self.book, self.heat, heat_path=self.heat_path, logbook_path=self.logbook_path,
+                          tickets_dir=self.tickets_dir)
 
     def get_key_display(self, binding: Binding) -> str:
         """Every key in the house spelling (meltfix.tui.keys), in the footer, help and palette alike."""

@@ -122,7 +122,7 @@ class TrimScreen(Screen[None]):
 
     def post_message(self, message: Message) -> bool:
         if isinstance(message, events.ScreenResume) and not self._resumed:
-            # Pushing the screen resumes it with a restyle of every widget, each styled as it
+            # Installing the screen resumes it with a restyle of every widget, each styled as it
             # mounted a moment before: once is enough (a later resume restyles as Textual decides).
             self._resumed = True
             message.refresh_styles = False
