@@ -110,3 +110,27 @@ async def test_logbook_keys_with_nothing_selected_say_why(demo_book: RecipeBook,
         await pilot.press("f9")
         said = _plain(line)
         assert line.display and "F9 Replay: no heat to select" in said and "d opens the demo week" in said
+
+
+async def test_the_footer_presses_a_clicked_key_and_names_it(demo_book: RecipeBook, demo_heat: Heat, tmp_path: Path,
+                                                             settle: Settle) -> None:
+    """The footer draws every key on one line: a click on a key presses it, a greyed key stays greyed and
+    does nothing, and the key under the mouse gives its tooltip."""
+    from meltfix.tui.screens.help import KeysScreen
+    from meltfix.tui.widgets.footer import KeysFooter
+
+    app = make_app(demo_book, demo_heat, tickets_dir=tmp_path)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        footer = app.screen.query_one(KeysFooter)
+        line = str(footer.render())
+        assert line.startswith("F1 Help F2 Grade F3 Open") and "F8 Added" in line
+        added = line.index("F8 Added")
+        await pilot.hover(KeysFooter, offset=(added + 1, 0))
+        assert footer.tooltip == "Record what actually went in (after accepting)"
+        await pilot.click(KeysFooter, offset=(added + 1, 0))  # nothing accepted: F8 is greyed
+        await settle(pilot)
+        assert not isinstance(app.screen, KeysScreen) and not app.screen.query_one("#plan-why-not").display
+        await pilot.click(KeysFooter, offset=(1, 0))
+        await settle(pilot)
+        assert isinstance(app.screen, KeysScreen)

@@ -148,7 +148,7 @@ class TrimScreen(Screen[None]):
                                stages=tuple(self.book.settings.stages), units=self.book.settings.units, id="form")
                 yield AnalysisGrid(self._row_specs(heat.grade, _cell_texts(heat)), id="grid")
             yield PlanView(id="plan")
-        yield KeysFooter(compact=True, show_command_palette=False)
+        yield KeysFooter()
 
     def on_mount(self) -> None:
         self._update_banner()
