@@ -264,8 +264,14 @@ class TrimScreen(Screen[None]):
             self.refresh_bindings()
 
     @on(Input.Changed, ".cell, #bath, #capacity, #temperature")
+    def _input_changed(self, event: Input.Changed) -> None:
+        # Every field says Changed as it mounts, with the text the screen has just read and planned:
+        # reading all the fields again for each of them would find nothing new.
+        if self._inputs is None or _typed(self._inputs, event.input.id or "") != event.value:
+            self.inputs_changed()
+
     @on(CycleField.Changed)
-    def _input_changed(self) -> None:
+    def _stage_changed(self) -> None:
         self.inputs_changed()
 
     @on(Input.Submitted, ".cell, #bath, #capacity, #temperature")
@@ -559,6 +565,13 @@ def _cell_texts(source: Heat | SpectroSample) -> dict[str, str]:
     """Grid texts for the analysis of a heat or a spectrometer sample."""
     analysis = source.analysis
     return {s: cell_text(s, pct, s in analysis.below_limit) for s, pct in analysis.pct.items()}
+
+
+def _typed(inputs: HeatInputs, field_id: str) -> str | None:
+    """The text ``inputs`` hold for the field of that id (None: not one of them)."""
+    if field_id.startswith("cell-"):
+        return inputs.cells.get(field_id.removeprefix("cell-"))
+    return {"bath": inputs.bath_text, "capacity": inputs.capacity_text, "temperature": inputs.temperature_text}.get(field_id)
 
 
 def _filled(texts: Mapping[str, str]) -> dict[str, str]:

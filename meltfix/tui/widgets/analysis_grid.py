@@ -14,7 +14,7 @@ from meltfix.plan.numbers import limit_text, unit_of
 from meltfix.shop.grades import Grade
 from meltfix.tui.draft import cell_key
 from meltfix.tui.widgets.labelled import CompactInput, LabelledLine
-from meltfix.tui.widgets.reason import ReasonLine, show_reason
+from meltfix.tui.widgets.reason import show_reason
 
 _SYMBOL = 3  # columns of the element's symbol before its cell (trim.tcss: .cell's margin)
 _CELL = 11  # columns of the cell (trim.tcss: .cell's width)
@@ -71,7 +71,6 @@ class AnalysisGrid(Vertical):
     def compose(self) -> ComposeResult:
         yield Static(Content.assemble(("Analysis", "bold"), ("  wt %, ppm for N O B H", "$foreground-muted")),
                      id="grid-title")
-        yield ReasonLine(id="reason-analysis")
         for spec in self._rows:
             yield CellRow(spec)
 
@@ -91,4 +90,4 @@ class AnalysisGrid(Vertical):
         """Mark each bad cell in place and write its reason right under it; clear the others."""
         for row in self.query(CellRow):
             row.show_reason(errors.get(cell_key(row.symbol)))
-        self.query_one("#reason-analysis", ReasonLine).show(errors.get("analysis"))
+        show_reason(self, "reason-analysis", errors.get("analysis"), after="#grid-title")

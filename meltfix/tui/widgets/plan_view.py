@@ -33,15 +33,14 @@ class PlanView(Vertical):
         self.is_current = False
 
     def compose(self) -> ComposeResult:
+        # The why-not line and the body's sections after the totals are mounted the first time they
+        # have something to say: most plans need none of them, and a hidden widget is still styled
+        # and mounted before the first frame.
         yield Static("◌ planning…", id="plan-status")
-        yield WhyNot(id="plan-why-not")
         with VerticalScroll(id="plan-body", can_focus=True) as body:
             body.border_title = "Plan"
             yield Static(id="plan-additions")
             yield Static(id="plan-totals")
-            yield Static(id="plan-out-of-reach")
-            yield Static(id="plan-binding")
-            yield Static(id="plan-notes")
         # Outside the scroll: every gauge stays in view however little room the panel has.
         yield ChemistryGauges(id="plan-gauges")
         with VerticalScroll(id="plan-cautions", can_focus=True) as cautions:
@@ -66,20 +65,14 @@ class PlanView(Vertical):
             status = Content.assemble(("▲ current · closest plan", "bold $text-error"),
                                       " · the grade cannot be met, see why below")
         self.query_one("#plan-status", Static).update(status)
-        self.why_not.say(None)
+        self._quiet()
         self.query_one("#plan-additions", Static).update(_additions_table(plan, units))
         self.query_one("#plan-totals", Static).update(_totals(plan, units))
-        out = self.query_one("#plan-out-of-reach", Static)
-        out.update(_out_of_reach(plan))
-        out.display = bool(plan.violations)
+        self._section("plan-out-of-reach", _out_of_reach(plan) if plan.violations else None)
         self.query_one(ChemistryGauges).show(gauge_rows(grade, heat.analysis.pct, plan.predicted_pct,
                                                         None if risk is None else risk.odds.limits))
-        binding = self.query_one("#plan-binding", Static)
-        binding.update(_binding(plan))
-        binding.display = bool(plan.binding)
-        notes = self.query_one("#plan-notes", Static)
-        notes.update(Content.assemble(("Notes: ", "bold"), " ".join(plan.notes)))
-        notes.display = bool(plan.notes)
+        self._section("plan-binding", _binding(plan) if plan.binding else None)
+        self._section("plan-notes", Content.assemble(("Notes: ", "bold"), " ".join(plan.notes)) if plan.notes else None)
         self.query_one("#plan-cautions-text", Static).update(
             Content("\n").join(Content.assemble(("• ", "bold $text-warning"), caution) for caution in plan.cautions))
         cautions = self.query_one("#plan-cautions")
@@ -93,7 +86,7 @@ class PlanView(Vertical):
         """
         self.is_current = False
         self.query_one("#plan-status", Static).update(Content.styled("◌ updating…", "$foreground-muted"))
-        self.why_not.say(None)
+        self._quiet()
 
     def mark_stale(self, reason: str) -> None:
         """No plan can be made for the inputs: keep the old one visible, plainly marked as old."""
@@ -101,12 +94,38 @@ class PlanView(Vertical):
         self.add_class("-stale")
         prefix = "✗ the plan below is for earlier inputs: " if self.plan is not None else "✗ no plan: "
         self.query_one("#plan-status", Static).update(Content.assemble((prefix, "bold $text-error"), reason))
-        self.why_not.say(None)
+        self._quiet()
 
     @property
     def why_not(self) -> WhyNot:
         """The line under the status saying why a key did nothing; gone at the next change of the plan."""
-        return self.query_one("#plan-why-not", WhyNot)
+        found = self.query_children("#plan-why-not")
+        if found:
+            return found.first(WhyNot)
+        line = WhyNot(id="plan-why-not")
+        self.mount(line, after="#plan-status")
+        return line
+
+    def _quiet(self) -> None:
+        """Hide the why-not line, if it was ever shown: what it explained has changed."""
+        for line in self.query_children(WhyNot):
+            line.say(None)
+
+    def _section(self, section_id: str, content: Content | None) -> None:
+        """Show ``content`` in the body's section ``section_id`` (None hides it), in the order of ``_SECTIONS``."""
+        body = self.query_one("#plan-body", VerticalScroll)
+        found = body.query_children(f"#{section_id}")
+        if found:
+            section = found.first(Static)
+            section.update(content or "")
+            section.display = content is not None
+        elif content is not None:
+            later = [f"#{name}" for name in _SECTIONS[_SECTIONS.index(section_id) + 1:] if body.query_children(f"#{name}")]
+            body.mount(Static(content, id=section_id), before=later[0] if later else None)
+
+
+_SECTIONS = ("plan-out-of-reach", "plan-binding", "plan-notes")
+"""The body's sections after the totals, in their order on screen."""
 
 
 def _additions_table(plan: Plan, units: Units) -> Table:
