@@ -44,7 +44,7 @@ class OnFirstRead(Generic[T]):
     ``dataclasses.replace`` do, so these see the value as if it had been given.
 
     For the parts of a plan only a person reads (its cautions, its lots, what holds its cost up): a
-    plan that is only costed, compared or counted never works them out (bench/plan_speed.py).
+    plan that is only costed or counted never works them out (bench/plan_speed.py); == reads them.
     ``dataclasses.replace`` reads every field, so a replaced plan has them worked out: the odds
     search's insets, re-checked against the real grade that way, still pay for them (a shallow
     copy that kept them unworked saved no time the odds bench could tell from its noise)."""

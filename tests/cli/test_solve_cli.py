@@ -194,11 +194,11 @@ def test_the_built_in_recipe_book_plans_a_heat(capsys: pytest.CaptureFixture[str
 @pytest.mark.slow  # meltfix solve in a pseudo-terminal, a process of its own
 def test_nothing_but_the_plans_reaches_the_terminal() -> None:
     # HiGHS can write straight to file descriptor 1 (seen with HiGHS 1.12), under Python's sys.stdout, which would
-    # corrupt a running screen; a separate process, started as the `meltfix` program is, catches that. The demo heats (whole packs: integer
-    # solves) and three heats on which HiGHS 1.12 printed a debug line while its MIP presolve was on.
+    # corrupt a running screen; a separate process, started as the `meltfix` program is, catches that.
+    # The demo heats (whole packs: integer solves) and three heats on which HiGHS 1.12 printed a debug
+    # line while its MIP presolve was on.
     heats = sorted((ROOT / "demo" / "heats").glob("*.toml")) + sorted(HEATS.glob("highs_chatter_*.toml"))
-    command = [sys.executable, "-c", "import sys; from meltfix.cli import program; sys.exit(program())",
-               "solve", *map(str, heats), "--json"]
+    command = [sys.executable, "-m", "meltfix", "solve", *map(str, heats), "--json"]
     done = subprocess.run(command, capture_output=True, text=True, timeout=120)
     assert done.stderr == ""
     assert done.returncode in (0, 3)
@@ -210,8 +210,7 @@ def test_nothing_but_the_plans_reaches_the_terminal() -> None:
 def test_a_reader_that_closes_the_pipe_first_stops_the_program_quietly() -> None:
     # `meltfix solve ... | head`: the reader is gone before the first line is written. Exit 141
     # (128 + SIGPIPE) is what a shell reports for a writer stopped that way (common practice).
-    command = [sys.executable, "-c", "import sys; from meltfix.cli import program; sys.exit(program())",
-               "solve", str(ROOT / "demo" / "heats" / "KB-24101.toml"), "--json"]
+    command = [sys.executable, "-m", "meltfix", "solve", str(ROOT / "demo" / "heats" / "KB-24101.toml"), "--json"]
     child = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     assert child.stdout is not None and child.stderr is not None
     child.stdout.close()
