@@ -47,6 +47,8 @@ class Solution:
     """False when the time ran out before the integer optimum was proven."""
     gap: float = 0.0
     """Relative gap between the point's cost and the best bound [fraction]."""
+    objective: float = math.nan
+    """The point's cost as the model weighs it (an LP's; NaN for a branch and bound's point)."""
 
 
 class HotModel:
@@ -116,18 +118,19 @@ class HotModel:
         if not self._run():
             return None
         solution = self.highs.getSolution()
-        return Solution(np.array(solution.col_value), np.array(solution.row_dual), np.array(solution.col_dual))
+        return Solution(np.array(solution.col_value), np.array(solution.row_dual), np.array(solution.col_dual),
+                        objective=self.highs.getObjectiveValue())
 
     def solve_mip(self, time_limit_s: float, rel_gap: float, integer: np.ndarray,
-                  hint: np.ndarray | None = None) -> tuple[Solution | None, bool]:
+                  start: np.ndarray | None = None) -> tuple[Solution | None, bool]:
         """Branch and bound on the columns marked in ``integer`` within ``time_limit_s``: (the best
-        integer point or None, whether the time ran out). ``hint``: values of the integer columns
-        a feasible point is known to have (HiGHS completes it and starts from it)."""
+        integer point or None, whether the time ran out). ``start``: a feasible point, every
+        column's value, that the search starts from (meltfix.plan.starts)."""
         self._integers(integer)
         highs = self.highs
         highs.setOptionValue("time_limit", max(time_limit_s, 1e-3))
         highs.setOptionValue("mip_rel_gap", rel_gap)
-        self._run(None if hint is None else np.flatnonzero(integer).astype(np.int32), hint)
+        self._run(start)
         highs.setOptionValue("time_limit", _INF)  # the LPs have no budget of their own
         status = highs.getModelStatus()
         info = highs.getInfo()
@@ -146,12 +149,12 @@ class HotModel:
             self.highs.changeColsIntegrality(self.shape.n_cols, self._all_cols, values)
             self._integrality = values
 
-    def _run(self, columns: np.ndarray | None = None, hint: np.ndarray | None = None) -> bool:
+    def _run(self, start: np.ndarray | None = None) -> bool:
         # Each solve starts from no basis, so a heat's plan never depends on the heats planned
         # before it on this model (ties between equally cheap plans break the same way every time);
-        # only a hint given for this solve carries over.
+        # only a start given for this solve carries over.
         self.highs.clearSolver()
-        if columns is not None and hint is not None:
-            self.highs.setSolution(len(columns), columns, hint[columns])
+        if start is not None:
+            self.highs.setSolution(self.shape.n_cols, self._all_cols, start)
         self.highs.run()
         return self.highs.getModelStatus() == highspy.HighsModelStatus.kOptimal

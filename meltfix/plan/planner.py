@@ -33,6 +33,7 @@ from meltfix.plan.reasons import explain_violation
 from meltfix.plan.result import (LIMIT_TOL_PCT, Addition, Binding, Later, LimitCheck, Plan, PlanOptions, Violation,
                                  addition)
 from meltfix.plan.sequence import class_rank, sequence_additions
+from meltfix.plan.starts import best_start, roundings, with_integers_fixed
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat, checked_grade, unchecked_caution, validate_heat
 from meltfix.shop.materials import Material
@@ -255,7 +256,9 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     if point is not None:
         return replace(relaxed, x=point)
     fixed = load.integrality > 0
-    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed, hint)
+    # A start near the relaxation (meltfix.plan.starts), or near the plan that still meets these windows.
+    start = best_start(model, lower, upper, fixed, [hint] if hint is not None else roundings(model, load, relaxed.x))
+    found, timed_out = model.solve_mip(deadline - time.monotonic(), options.mip_rel_gap, fixed, start)
     if found is None:
         if not timed_out:
             return None
@@ -265,10 +268,7 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     point = _integer_point(shape, load, found.x)
     if point is None:  # off whole packs beyond the tolerance: _additions rounds it, the re-check judges
         return found
-    lower, upper = lower.copy(), upper.copy()
-    lower[fixed] = upper[fixed] = np.rint(point[fixed])
-    model.set_bounds(lower, upper)
-    polished = model.solve_lp()
+    polished = with_integers_fixed(model, lower, upper, fixed, np.rint(point))
     return replace(found, x=point) if polished is None else replace(polished, proven=found.proven, gap=found.gap)
 
 
@@ -312,12 +312,8 @@ def _duals(model: HotModel, load: HeatLoad, solution: Solution) -> Solution | No
     """
     if solution.row_dual is not None:
         return solution
-    fixed = load.integrality > 0
     model.load(load)  # undo anything the closest-plan phases changed
-    lower, upper = load.col_lower.copy(), load.col_upper_all.copy()
-    lower[fixed] = upper[fixed] = np.rint(solution.x[fixed])
-    model.set_bounds(lower, upper)
-    return model.solve_lp()
+    return with_integers_fixed(model, load.col_lower, load.col_upper_all, load.integrality > 0, np.rint(solution.x))
 
 
 def _bindings(shape: ModelShape, load: HeatLoad, duals: Solution, final_kg: float,
