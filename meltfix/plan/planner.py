@@ -153,7 +153,6 @@ class Planner:
                        "loose amounts rounded to whole packs and minimums, checked as shown",))
         # The lines in the shop's order of classes, as their steps list them (meltfix.plan.sequence).
         ranked = sorted(zip(additions, used), key=lambda line: class_rank(settings, line[1][0].addition_class))
-        state = BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c)
         # What a plan shows but the odds search and a batch never read is worked out when first read.
         return Plan(
             heat_id=heat.heat_id,
@@ -167,8 +166,9 @@ class Planner:
             checks=checks,
             violations=tuple(violations),
             binding=Later(lambda: () if duals is None else _bindings(shape, load, duals, final_kg, heat.bath_kg)),
-            cautions=Later(lambda: unchecked_caution(heat) + plan_cautions(used, heat.bath_kg, drop, heat.temperature_c,
-                                                                           settings, state)),
+            cautions=Later(lambda: unchecked_caution(heat) + plan_cautions(
+                used, heat.bath_kg, drop, heat.temperature_c, settings,
+                BathState(heat.dissolved_o_ppm, heat.capacity_kg, final_kg, temperature.after_c, temperature.liquidus_c))),
             temperature_drop_c=drop,
             notes=notes,
             currency=book.settings.currency,
@@ -353,18 +353,21 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
     """The plan's lines from a solver point: masses [kg] (whole packs rounded exactly, locked amounts
     as locked, every minimum held exactly), costs."""
     v = x[shape.col_mat]
-    kg = (np.where(load.packed, np.rint(v), v) if load.packed.any() else v) * shape.scale
+    # np.count_nonzero asks "any?" of these short masks a few times quicker than ndarray.any(), and
+    # most heats have no packs (the LP), no minimums and no locks: a few microseconds a plan.
+    kg = (np.where(load.packed, np.rint(v), v) if np.count_nonzero(load.packed) else v) * shape.scale
     kg[kg <= 1e-6] = 0.0
-    if load.switched.any():
+    if np.count_nonzero(load.switched):
         short = load.switched & (kg > 0) & (kg < shape.min_kg)
         kg[short] = np.where(kg[short] >= shape.min_kg[short] * (1 - _MINIMUM_SNAP), shape.min_kg[short], 0.0)
-    kg = np.where(np.isnan(load.locked_kg), kg, load.locked_kg)
+    locked = ~np.isnan(load.locked_kg)
+    if np.count_nonzero(locked):
+        kg[locked] = load.locked_kg[locked]
     additions = []
     used: list[tuple[Material, float]] = []
-    amounts, prices, packed = kg.tolist(), load.prices.tolist(), load.packed.tolist()
-    for j in (kg > 0).nonzero()[0].tolist():
-        material, amount = shape.materials[j], amounts[j]
-        additions.append(addition(material, amount, prices[j], packed[j]))
+    for j in (kg > 0).nonzero()[0].tolist():  # the few materials used, read one by one
+        material, amount = shape.materials[j], float(kg[j])
+        additions.append(addition(material, amount, float(load.prices[j]), bool(load.packed[j])))
         used.append((material, amount))
     return additions, used
 

@@ -30,7 +30,10 @@ class LiquidusFormula:
 
     def liquidus_c(self, pct: Mapping[str, float]) -> float:
         """Liquidus of an analysis [°C] (contents in wt %; elements not listed count as 0)."""
-        return self.base_c - math.fsum([k * pct.get(s, 0.0) for s, k in self.slope_c_per_pct.items()])
+        slopes = self.slope_c_per_pct
+        # Over the analysis rather than the slopes: fewer look-ups, and fsum's correctly rounded sum
+        # does not depend on the order of its terms.
+        return self.base_c - math.fsum([slopes[s] * v for s, v in pct.items() if s in slopes])
 
 
 STEEL = LiquidusFormula("steel, linear (1536 - sum k_i wt %_i)", 1536.0, {
