@@ -12,6 +12,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
+from itertools import repeat
 
 import numpy as np
 
@@ -101,33 +102,39 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     None; else one with the same limits moved); ``prune`` shuts the dominated materials (off only to
     check that pruning changes no plan's cost)."""
     notes: list[str] = []
-    now, now_low, owed = _analysis_now(shape, heat, notes)
+    read, owed = _analysis_now(shape, heat, notes)
+    n = len(shape.elements)
+    now = read[n:2 * n]
     if grade is None:
-        grade, limit_pct, mass_coefficients = shape.grade, shape.limit_pct, shape.own_mass_coefficients
+        grade, limit_pct, mass_coefficients, floor = (shape.grade, shape.limit_pct, shape.own_mass_coefficients,
+                                                      shape.own_floor)
     else:
         limit_pct = shape.limits_pct(grade)
         mass_coefficients = shape.mass_coefficients(limit_pct)
-    row_lower = np.full(shape.n_rows, -_INF)
-    row_upper = np.full(shape.n_rows, _INF)
+        floor = shape.floors(limit_pct)
+    row_lower, row_upper = shape.open_rows[0].copy(), shape.open_rows[1].copy()
     # Every window row applies but a 0 % floor, which binds only an element in debt.
-    floor = shape.element_min & (limit_pct <= 0)
     active = ~floor | np.array([row.element in owed for row in shape.window_rows], dtype=bool) if owed else ~floor
-    upper = heat.bath_kg * (shape.window_bounds @ np.concatenate((now_low, now)))
-    row_upper[shape.windows.span] = np.where(active, upper, _INF)
-    coefficients, reheat_cost = _row_bounds(shape, heat, now, row_lower, row_upper, notes)
+    upper = heat.bath_kg * (shape.window_bounds @ read[:2 * n])
+    np.copyto(row_upper[shape.windows.span], upper, where=active)
+    coefficients, reheat_cost = _row_bounds(shape, heat, now, read[2 * n:], row_lower, row_upper, notes)
     columns = _columns_of(shape, heat, aim_penalty)
     col_lower, col_upper = columns.col_lower, columns.col_upper
-    switch_most_kg = _switch_rows(shape, heat, columns, row_upper, coefficients)
-    pruned = np.zeros(shape.n_materials, dtype=bool)
     col_upper_all = col_upper
-    if prune and not shape.pairs.empty:
-        # The room left on each window row, per the rows' coefficients with M's growth counted in.
-        room = row_upper[shape.windows.span] - heat.bath_kg * mass_coefficients
-        pruned = _dominated(shape, heat, columns, col_upper, shape.window_per_kg(mass_coefficients), room,
-                            row_upper[shape.capacity.first], switch_most_kg)
-        col_upper = col_upper.copy()
-        col_upper[shape.col_mat][pruned] = 0.0
-        col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
+    pruned = np.zeros(shape.n_materials, dtype=bool)
+    pruning = prune and not shape.pairs.empty
+    if shape.switchable.size or pruning:  # else (no minimums, no materials alike) nothing reads the most
+        most = _most_kg(shape, heat, columns)
+        if shape.switchable.size:  # no minimums (loose amounts, the relaxation): no on/off rows
+            _switch_rows(shape, columns, most, row_upper, coefficients)
+        if pruning:
+            # The room left on each window row, per the rows' coefficients with M's growth counted in.
+            room = row_upper[shape.windows.span] - heat.bath_kg * mass_coefficients
+            pruned = _dominated(shape, heat, columns, col_upper, shape.window_per_kg(mass_coefficients), room,
+                                row_upper[shape.capacity.first], most)
+            col_upper = col_upper.copy()
+            col_upper[shape.col_mat][pruned] = 0.0
+            col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
     cost = columns.cost.copy()
     cost[shape.col_reheat] = reheat_cost
     return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, columns.integrality,
@@ -136,34 +143,38 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
                     pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
 
-def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.ndarray, np.ndarray, dict[str, float]]:
-    """The analysis over the model's elements as fractions: as read, with below-limit readings at 0,
-    and the contents owed to deoxidation and treatment (notes say what these took)."""
+def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.ndarray, dict[str, float]]:
+    """The analysis as the rows read it, as fractions, and the contents owed to deoxidation and
+    treatment (notes say what these took). One array, so one NumPy step each: over the model's
+    elements with below-limit readings at 0, then over them as read (the two halves the window
+    rows' bounds multiply), then over the elements the grade does not limit."""
     pct = heat.analysis.pct
-    now = np.array([pct.get(s, 0.0) for s in shape.elements]) / 100.0
+    limited = [pct.get(s, 0.0) for s in shape.elements]
+    read = np.array(limited + limited + [pct.get(s, 0.0) for s in shape.unlisted]) / 100.0
     # A value below the detection limit is at most the limit: take it at the limit against a
     # maximum and at zero against a minimum, so the plan is safe whatever the true value.
-    now_low = now.copy()
     for symbol in heat.analysis.below_limit:
         if symbol in shape.row_of:
-            now_low[shape.row_of[symbol]] = 0.0
+            read[shape.row_of[symbol]] = 0.0
     # Aluminium the dissolved oxygen binds, and magnesium the sulphur binds and fade takes, are
     # gone before any stays in the bath: the row starts lower by them (below 0 % is a debt the
     # additions pay first), still linear.
     owed = dict(contents_owed_pct(heat, shape.grade, shape.book.settings))
     if owed:
         debt = np.array([owed.get(s, 0.0) for s in shape.elements]) / 100.0
-        now, now_low = now - debt, now_low - debt
+        n = len(shape.elements)
+        read[:n] -= debt
+        read[n:2 * n] -= debt
         notes += oxygen_notes(heat, shape.grade, {s: pct for s, pct in owed.items() if s == "Al"}, shape.book.settings.units)
         if "Mg" in owed:
             notes.append(_treatment_note(shape, heat))
     elif heat.dissolved_o_ppm:
         notes += oxygen_notes(heat, shape.grade, {}, shape.book.settings.units)
-    return now, now_low, owed
+    return read, owed
 
 
-def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.ndarray, row_upper: np.ndarray,
-                notes: list[str]) -> tuple[list[tuple[int, int, float]], float]:
+def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, unlisted_now: np.ndarray, row_lower: np.ndarray,
+                row_upper: np.ndarray, notes: list[str]) -> tuple[list[tuple[int, int, float]], float]:
     """The bounds of every row but the windows and the on/off rows; returns the moving coefficients
     and the arc heating's cost [currency per °C]."""
     settings, bath = shape.book.settings, heat.bath_kg
@@ -174,20 +185,19 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, row_lower: np.nd
         row_upper[shape.temperature.first] = max_drop * bath
     reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
     row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
-    unlisted_now = np.array([heat.analysis.pct.get(s, 0.0) for s in shape.unlisted]) / 100.0
     row_upper[shape.unlisted_rows.span] = -bath * unlisted_now
     rise = settings.max_unlisted_rise_pct / 100.0
     # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
     # the same heat then gives the same plan to the last digit on a new model and a used one.
-    coefficients = list(zip(shape.unlisted_rows.rows, [shape.col_mass] * len(shape.unlisted),
+    coefficients = list(zip(shape.unlisted_rows.rows, repeat(shape.col_mass),
                             (-np.maximum(unlisted_now + rise, 1e-8)).tolist()))
     coefficients += [(shape.temperature.first, shape.col_reheat, -bath),
                      (shape.superheat.first, shape.col_reheat, bath),
                      (shape.superheat.first, shape.col_mass, superheat)]
-    for t, symbol in enumerate(shape.aim_elements):
-        k = shape.row_of[symbol]
-        row_lower[shape.aims.first + t] = row_upper[shape.aims.first + t] = \
-            -bath * (now[k] - shape.grade.aim_pct[symbol] / 100.0)
+    if shape.aim_fractions:
+        now_of = now.tolist()  # Python floats: the same arithmetic as NumPy's, a step cheaper each
+        row_lower[shape.aims.span] = row_upper[shape.aims.span] = \
+            [-bath * (now_of[k] - aim) for k, aim in shape.aim_fractions]
     return coefficients, reheat_cost
 
 
@@ -307,23 +317,24 @@ def _column_bounds(shape: ModelShape, stock_kg: np.ndarray, locked_kg: np.ndarra
     return col_lower, col_upper
 
 
-def _switch_rows(shape: ModelShape, heat: Heat, columns: _Columns, row_upper: np.ndarray,
-                 coefficients: list[tuple[int, int, float]]) -> np.ndarray:
-    """The on/off rows: closed where a minimum applies, and the most each lets in once switched on
-    (returned per material [kg])."""
-    bath = heat.bath_kg
-    # The most of a material with a minimum that could go in: its stock, ten times the bath, or
-    # what the vessel can take.
-    most = np.minimum(columns.stock, 10.0 * bath)
+def _most_kg(shape: ModelShape, heat: Heat, columns: _Columns) -> np.ndarray:
+    """The most of each material that could go in [kg]: its stock, ten times the bath, or what the
+    vessel can take."""
+    most = np.minimum(columns.stock, 10.0 * heat.bath_kg)
     if heat.capacity_kg is not None:
-        most = np.minimum(most, (heat.capacity_kg - bath) / np.maximum(shape.g, 1e-9))
-    if shape.switchable.size:  # no minimums (loose amounts, the relaxation): no on/off rows
-        switch_rows = shape.switch.first + 2 * np.arange(len(shape.switchable))
-        on = switch_rows[columns.switched[shape.switchable]]
-        row_upper[on] = row_upper[on + 1] = 0.0
-        coefficients += zip((switch_rows + 1).tolist(), range(shape.col_switch.start, shape.col_switch.stop),
-                            (-np.maximum(most, shape.min_kg)[shape.switchable]).tolist())
+        most = np.minimum(most, (heat.capacity_kg - heat.bath_kg) / np.maximum(shape.g, 1e-9))
     return most
+
+
+def _switch_rows(shape: ModelShape, columns: _Columns, most_kg: np.ndarray, row_upper: np.ndarray,
+                 coefficients: list[tuple[int, int, float]]) -> None:
+    """The on/off rows: closed where a minimum applies, and letting in at most ``most_kg`` once
+    switched on."""
+    switch_rows = shape.switch.first + 2 * np.arange(len(shape.switchable))
+    on = switch_rows[columns.switched[shape.switchable]]
+    row_upper[on] = row_upper[on + 1] = 0.0
+    coefficients += zip((switch_rows + 1).tolist(), range(shape.col_switch.start, shape.col_switch.stop),
+                        (-np.maximum(most_kg, shape.min_kg)[shape.switchable]).tolist())
 
 
 def _dominated(shape: ModelShape, heat: Heat, columns: _Columns, col_upper: np.ndarray, window_per_kg: np.ndarray,

@@ -159,8 +159,9 @@ class ModelShape:
 
     def _heat_independent(self, book: RecipeBook, grade: Grade, stage: str) -> None:
         """What every heat reads the same way, worked out once per model rather than per heat: the
-        book's prices and stocks, where each material may go, and the window rows' bounds as
-        matrices over the analysis (a heat's bound is then two matrix products)."""
+        book's prices and stocks, where each material may go, the window rows' bounds as matrices
+        over the analysis (a heat's bound is then one matrix product), and what a heat reads
+        into the other rows."""
         self.column_of = {m.name: j for j, m in enumerate(book.materials)}
         self.allowed = np.array([m.allowed_at(stage) for m in book.materials], dtype=bool)
         self.forbidden = np.array([m.name in grade.forbidden for m in book.materials], dtype=bool)
@@ -191,6 +192,14 @@ class ModelShape:
         self.element_min = np.array([row.limit == "min" and row.element in grade.window_pct
                                      for row in self.window_rows], dtype=bool)
         """Per window row: an element's minimum (at 0 % a row only when deoxidation leaves it in debt)."""
+        self.own_floor = self.floors(self.limit_pct)
+        """Per window row: a 0 % floor of the model's own grade (``floors``)."""
+        self.aim_fractions = [(self.row_of[s], grade.aim_pct[s] / 100.0) for s in self.aim_elements]
+        """Per aim row: its element's place in ``elements`` and the aim as a fraction."""
+        self.open_rows = np.full(self.n_rows, -math.inf), np.full(self.n_rows, math.inf)
+        """Every row's bounds open: where each heat's row bounds start (a copy costs less than a fill)."""
+        for shared in (self.own_floor, *self.open_rows):
+            shared.flags.writeable = False  # read by every heat
 
     # -- row families -----------------------------------------------------------------------------
     def _material_block(self, coefficients: np.ndarray) -> np.ndarray:
@@ -261,6 +270,11 @@ class ModelShape:
         with a heat: 1e-12 of M tightens a limit of 0 by 1e-10 wt %, under LIMIT_TOL_PCT)."""
         coefficients = self.window_sign * limit_pct / 100.0
         return np.where(np.abs(coefficients) < 1e-12, 1e-12, coefficients)
+
+    def floors(self, limit_pct: np.ndarray) -> np.ndarray:
+        """Per window row: an element's minimum of 0 % under these limits, a row that binds only an
+        element in debt (meltfix.plan.heat_load)."""
+        return self.element_min & (limit_pct <= 0)
 
     def window_per_kg(self, mass_coefficients: np.ndarray) -> np.ndarray:
         """Each window row's change per kg of each material, M's growth included (what

@@ -104,7 +104,7 @@ def needed_elements(grade: Grade) -> frozenset[str]:
 def unmeasured(heat: Heat, grade: Grade) -> list[str]:
     """Elements the grade's limits need that the analysis lacks and the heat has not declared
     ``not_measured``, in sheet order. A plan built without them would take them as 0 %."""
-    missing = needed_elements(grade) - set(heat.analysis.pct) - heat.not_measured
+    missing = needed_elements(grade).difference(heat.analysis.pct, heat.not_measured)
     return sorted(missing, key=element_sort_key)
 
 
@@ -161,7 +161,8 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
     """Check a heat against the recipe book; raise InputError naming the field at fault."""
     if not math.isfinite(heat.bath_kg) or heat.bath_kg <= 0:
         raise InputError(source, "bath_kg", f"must be a finite weight above 0 kg, got {heat.bath_kg!r}")
-    if heat.grade not in book.grades:
+    grade = book.grades.get(heat.grade)
+    if grade is None:
         known = ", ".join(book.grades)
         raise InputError(source, "grade", f"unknown grade '{heat.grade}' (the recipe book has: {known})")
     if heat.capacity_kg is not None:
@@ -176,13 +177,34 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
     if heat.temperature_c is not None:
         # A bath below the liquidus of its own analysis would be (partly) frozen: a slip of the pen
         # or a wrong analysis, never something to plan additions for.
-        liquidus = formula_for(book.grade(heat.grade).family).liquidus_c(heat.analysis.pct)
+        liquidus = formula_for(grade.family).liquidus_c(heat.analysis.pct)
         if heat.temperature_c < liquidus:
             raise InputError(source, "temperature_c", f"{heat.temperature_c:g} °C is below the liquidus of the "
                              f"measured analysis ({liquidus:.0f} °C): the bath would be frozen")
     if heat.dissolved_o_ppm is not None and not 0 <= heat.dissolved_o_ppm <= _MAX_DISSOLVED_O_PPM:
         raise InputError(source, "dissolved_o_ppm", f"{heat.dissolved_o_ppm!r} ppm is outside 0..{_MAX_DISSOLVED_O_PPM:g} "
                          "ppm (oxygen saturates liquid iron at about 2300 ppm)")
+    if heat.switched_off or heat.locked_kg or heat.price_per_kg or heat.stock_kg:  # most heats override nothing
+        _check_overrides(heat, book, grade, source)
+    implausible = plausibility_error(heat, book.settings, grade.family, source)
+    if implausible is not None:
+        raise implausible
+    missing = unmeasured(heat, grade)
+    if missing:
+        listed = ", ".join(missing)
+        raise InputError(source, "analysis", f"{listed} not measured: grade {heat.grade} limits "
+                         f"{'them' if len(missing) > 1 else 'it'}; add the value, or declare "
+                         f"not_measured = {json.dumps(missing)} to plan with those limits unchecked")
+    measured_twice = sorted(heat.not_measured.intersection(heat.analysis.pct), key=element_sort_key)
+    if measured_twice:
+        raise InputError(source, "not_measured", f"{', '.join(measured_twice)} also in the analysis: "
+                         "an element is either measured or not")
+    return heat
+
+
+def _check_overrides(heat: Heat, book: RecipeBook, grade: Grade, source: object) -> None:
+    """Every material the heat switches off, locks, prices or stocks is in the book; every lock
+    fits its stock, its stage and the grade, and is not also switched off."""
     names = set(book.material_names)
     for label, entries in (("switch_off", heat.switched_off), ("lock_kg", heat.locked_kg),
                            ("price_per_kg", heat.price_per_kg), ("stock_kg", heat.stock_kg)):
@@ -196,26 +218,11 @@ def validate_heat(heat: Heat, book: RecipeBook, source: object = "heat") -> Heat
             raise InputError(source, f"lock_kg.{name}", f"{kg:g} kg is more than the {stock:g} kg in stock")
         if name in heat.switched_off:
             raise InputError(source, f"lock_kg.{name}", "is locked but also switched off")
-        if name in book.grades[heat.grade].forbidden:
+        if name in grade.forbidden:
             raise InputError(source, f"lock_kg.{name}", f"grade '{heat.grade}' forbids this material")
         if not book.material(name).allowed_at(heat.stage):
             raise InputError(source, f"lock_kg.{name}", f"is not added at the {heat.stage} (its stages: "
                              f"{', '.join(sorted(book.material(name).stages or ()))})")
-    grade = book.grades[heat.grade]
-    implausible = plausibility_error(heat, book.settings, grade.family, source)
-    if implausible is not None:
-        raise implausible
-    missing = unmeasured(heat, grade)
-    if missing:
-        listed = ", ".join(missing)
-        raise InputError(source, "analysis", f"{listed} not measured: grade {heat.grade} limits "
-                         f"{'them' if len(missing) > 1 else 'it'}; add the value, or declare "
-                         f"not_measured = {json.dumps(missing)} to plan with those limits unchecked")
-    measured_twice = sorted(heat.not_measured & set(heat.analysis.pct), key=element_sort_key)
-    if measured_twice:
-        raise InputError(source, "not_measured", f"{', '.join(measured_twice)} also in the analysis: "
-                         "an element is either measured or not")
-    return heat
 
 
 def _weights(raw: Any, source: object, key: str) -> dict[str, float]:
