@@ -42,9 +42,8 @@ def _baths_after(bath_kg: float, starts_pct: Sequence[Mapping[str, float]],
     final_kg = bath_kg
     dissolved_kg = []  # (symbol, kg) in the order of the additions and their compositions
     for material, kg in additions:
-        recovery = material.recovery
-        for symbol, pct in material.composition_pct.items():
-            dissolved = kg * pct / 100.0 * recovery.get(symbol, 1.0)
+        for symbol, pct, recovery in material.dissolving:
+            dissolved = kg * pct / 100.0 * recovery
             final_kg += dissolved
             if symbol != "Fe":
                 dissolved_kg.append((symbol, dissolved))

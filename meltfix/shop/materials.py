@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Collection, Mapping
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -70,6 +71,12 @@ class Material:
     def yield_pct(self, symbol: str) -> float:
         """Content of ``symbol`` that reaches the bath [wt % of the material]."""
         return self.composition_pct.get(symbol, 0.0) * self.recovery.get(symbol, 1.0)
+
+    @cached_property
+    def dissolving(self) -> tuple[tuple[str, float, float], ...]:
+        """(symbol, content [wt %], recovery [0..1]) of each element, iron too, in the composition's
+        order: what the plain mass balance reads (meltfix.plan.massbalance), looked up once."""
+        return tuple((symbol, pct, self.recovery.get(symbol, 1.0)) for symbol, pct in self.composition_pct.items())
 
     @property
     def mass_yield(self) -> float:
