@@ -12,7 +12,6 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
-from itertools import repeat
 
 import numpy as np
 
@@ -45,6 +44,8 @@ class HeatLoad:
     """1 for an integer column, 0 for a continuous one."""
     coefficients: tuple[tuple[int, int, float], ...]
     """(row, column, value) changes on top of the shape's fixed matrix."""
+    integer: bool
+    """Whether this heat has any whole packs or on/off choice at all (else its plan is one LP)."""
     packed: np.ndarray
     """Per material: counted in whole packs on this heat (not locked, not --continuous)."""
     switched: np.ndarray
@@ -66,11 +67,6 @@ class HeatLoad:
     mass_coefficients: np.ndarray
     """Per window row: its coefficient of the final bath mass M, the limit as a fraction (signed)."""
     notes: tuple[str, ...]
-
-    @property
-    def integer(self) -> bool:
-        """Whether this heat has any whole packs or on/off choice at all (else its plan is one LP)."""
-        return bool(self.packed.any() or self.switched.any())
 
 
 @dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
@@ -94,6 +90,8 @@ class _Columns:
     cost: np.ndarray
     """The arc heating's aside (it moves with the bath)."""
     integrality: np.ndarray
+    integer: bool
+    """Any whole packs or on/off choice (``HeatLoad.integer``)."""
 
 
 def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True,
@@ -106,22 +104,22 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     n = len(shape.elements)
     now = read[n:2 * n]
     if grade is None:
-        grade, limit_pct, mass_coefficients, floor = (shape.grade, shape.limit_pct, shape.own_mass_coefficients,
-                                                      shape.own_floor)
+        grade, limit_pct, mass_coefficients, active = (shape.grade, shape.limit_pct, shape.own_mass_coefficients,
+                                                       shape.own_applies)
     else:
         limit_pct = shape.limits_pct(grade)
         mass_coefficients = shape.mass_coefficients(limit_pct)
-        floor = shape.floors(limit_pct)
+        active = shape.applies(limit_pct)
     row_lower, row_upper = shape.open_rows[0].copy(), shape.open_rows[1].copy()
-    # Every window row applies but a 0 % floor, which binds only an element in debt.
-    active = ~floor | np.array([row.element in owed for row in shape.window_rows], dtype=bool) if owed else ~floor
-    upper = heat.bath_kg * (shape.window_bounds @ read[:2 * n])
+    if owed:  # a 0 % floor binds an element in debt
+        active = active | np.array([row.element in owed for row in shape.window_rows], dtype=bool)
+    upper = heat.bath_kg * shape.window_bounds.dot(read[:2 * n])  # dot: the same product, a step cheaper than @
     np.copyto(row_upper[shape.windows.span], upper, where=active)
     coefficients, reheat_cost = _row_bounds(shape, heat, now, read[2 * n:], row_lower, row_upper, notes)
     columns = _columns_of(shape, heat, aim_penalty)
     col_lower, col_upper = columns.col_lower, columns.col_upper
     col_upper_all = col_upper
-    pruned = np.zeros(shape.n_materials, dtype=bool)
+    pruned = shape.no_materials
     pruning = prune and not shape.pairs.empty
     if shape.switchable.size or pruning:  # else (no minimums, no materials alike) nothing reads the most
         most = _most_kg(shape, heat, columns)
@@ -135,10 +133,12 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
             col_upper = col_upper.copy()
             col_upper[shape.col_mat][pruned] = 0.0
             col_upper[shape.col_switch][pruned[shape.switchable]] = 0.0
-    cost = columns.cost.copy()
-    cost[shape.col_reheat] = reheat_cost
+    cost = columns.cost
+    if reheat_cost:  # the arc heating's cost moves with the bath; at a stage that cannot reheat it is 0, as shared
+        cost = cost.copy()
+        cost[shape.col_reheat] = reheat_cost
     return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, columns.integrality,
-                    tuple(coefficients),
+                    tuple(coefficients), columns.integer,
                     columns.packed, columns.switched, columns.locked_kg, columns.prices, active, columns.can_use,
                     pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
@@ -189,8 +189,8 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, unlisted_now: np
     rise = settings.max_unlisted_rise_pct / 100.0
     # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
     # the same heat then gives the same plan to the last digit on a new model and a used one.
-    coefficients = list(zip(shape.unlisted_rows.rows, repeat(shape.col_mass),
-                            (-np.maximum(unlisted_now + rise, 1e-8)).tolist()))
+    coefficients = [(row, shape.col_mass, -max(fraction + rise, 1e-8))
+                    for row, fraction in zip(shape.unlisted_rows.rows, unlisted_now.tolist())]
     coefficients += [(shape.temperature.first, shape.col_reheat, -bath),
                      (shape.superheat.first, shape.col_reheat, bath),
                      (shape.superheat.first, shape.col_mass, superheat)]
@@ -291,8 +291,9 @@ def _overridden(shape: ModelShape, stage: str, prices_of: tuple[tuple[str, float
     integrality = np.zeros(shape.n_cols)
     integrality[shape.col_mat] = packed
     integrality[shape.col_switch] = 1
-    columns = _Columns(prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality)
-    for array in vars(columns).values():
+    columns = _Columns(prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality,
+                       bool(packed.any() or switched.any()))
+    for array in (prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality):
         array.flags.writeable = False  # shared by every heat with these overrides
     return columns
 

@@ -192,13 +192,15 @@ class ModelShape:
         self.element_min = np.array([row.limit == "min" and row.element in grade.window_pct
                                      for row in self.window_rows], dtype=bool)
         """Per window row: an element's minimum (at 0 % a row only when deoxidation leaves it in debt)."""
-        self.own_floor = self.floors(self.limit_pct)
-        """Per window row: a 0 % floor of the model's own grade (``floors``)."""
+        self.own_applies = self.applies(self.limit_pct)
+        """Per window row: the model's own grade's limit applies on every heat (``applies``)."""
         self.aim_fractions = [(self.row_of[s], grade.aim_pct[s] / 100.0) for s in self.aim_elements]
         """Per aim row: its element's place in ``elements`` and the aim as a fraction."""
         self.open_rows = np.full(self.n_rows, -math.inf), np.full(self.n_rows, math.inf)
         """Every row's bounds open: where each heat's row bounds start (a copy costs less than a fill)."""
-        for shared in (self.own_floor, *self.open_rows):
+        self.no_materials = np.zeros(self.n_materials, dtype=bool)
+        """Per material, all False: what a heat that prunes nothing shuts."""
+        for shared in (self.own_applies, *self.open_rows, self.no_materials):
             shared.flags.writeable = False  # read by every heat
 
     # -- row families -----------------------------------------------------------------------------
@@ -271,10 +273,10 @@ class ModelShape:
         coefficients = self.window_sign * limit_pct / 100.0
         return np.where(np.abs(coefficients) < 1e-12, 1e-12, coefficients)
 
-    def floors(self, limit_pct: np.ndarray) -> np.ndarray:
-        """Per window row: an element's minimum of 0 % under these limits, a row that binds only an
-        element in debt (meltfix.plan.heat_load)."""
-        return self.element_min & (limit_pct <= 0)
+    def applies(self, limit_pct: np.ndarray) -> np.ndarray:
+        """Per window row: the limit applies on every heat under these limits; all do but an
+        element's minimum of 0 %, which binds only an element in debt (meltfix.plan.heat_load)."""
+        return ~(self.element_min & (limit_pct <= 0))
 
     def window_per_kg(self, mass_coefficients: np.ndarray) -> np.ndarray:
         """Each window row's change per kg of each material, M's growth included (what
