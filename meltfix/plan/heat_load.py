@@ -100,9 +100,7 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     None; else one with the same limits moved); ``prune`` shuts the dominated materials (off only to
     check that pruning changes no plan's cost)."""
     notes: list[str] = []
-    read, owed = _analysis_now(shape, heat, notes)
-    n = len(shape.elements)
-    now = read[n:2 * n]
+    low, now, unlisted_now, owed = _analysis_now(shape, heat, notes)
     if grade is None:
         grade, limit_pct, mass_coefficients, active = (shape.grade, shape.limit_pct, shape.own_mass_coefficients,
                                                        shape.own_applies)
@@ -113,9 +111,9 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
     row_lower, row_upper = shape.open_rows[0].copy(), shape.open_rows[1].copy()
     if owed:  # a 0 % floor binds an element in debt
         active = active | np.array([row.element in owed for row in shape.window_rows], dtype=bool)
-    upper = heat.bath_kg * shape.window_bounds.dot(read[:2 * n])  # dot: the same product, a step cheaper than @
+    upper = heat.bath_kg * shape.window_bounds.dot(np.array(low + now))  # dot: the same product, a step cheaper than @
     np.copyto(row_upper[shape.windows.span], upper, where=active)
-    coefficients, reheat_cost = _row_bounds(shape, heat, now, read[2 * n:], row_lower, row_upper, notes)
+    coefficients, reheat_cost = _row_bounds(shape, heat, now, unlisted_now, row_lower, row_upper, notes)
     columns = _columns_of(shape, heat, aim_penalty)
     col_lower, col_upper = columns.col_lower, columns.col_upper
     col_upper_all = col_upper
@@ -143,37 +141,37 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
                     pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
 
-def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]) -> tuple[np.ndarray, dict[str, float]]:
-    """The analysis as the rows read it, as fractions, and the contents owed to deoxidation and
-    treatment (notes say what these took). One array, so one NumPy step each: over the model's
-    elements with below-limit readings at 0, then over them as read (the two halves the window
-    rows' bounds multiply), then over the elements the grade does not limit."""
+def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]
+                  ) -> tuple[list[float], list[float], list[float], dict[str, float]]:
+    """The analysis as the rows read it, as fractions: over the model's elements with below-limit
+    readings at 0 and as read, over the elements the grade does not limit, and the contents owed
+    to deoxidation and treatment (notes say what these took). In Python floats: the same arithmetic
+    as NumPy's, and on a few dozen values cheaper than a NumPy step each."""
     pct = heat.analysis.pct
-    limited = [pct.get(s, 0.0) for s in shape.elements]
-    read = np.array(limited + limited + [pct.get(s, 0.0) for s in shape.unlisted]) / 100.0
+    now = [pct.get(s, 0.0) / 100.0 for s in shape.elements]
+    unlisted_now = [pct.get(s, 0.0) / 100.0 for s in shape.unlisted]
     # A value below the detection limit is at most the limit: take it at the limit against a
     # maximum and at zero against a minimum, so the plan is safe whatever the true value.
+    low = now.copy()
     for symbol in heat.analysis.below_limit:
         if symbol in shape.row_of:
-            read[shape.row_of[symbol]] = 0.0
+            low[shape.row_of[symbol]] = 0.0
     # Aluminium the dissolved oxygen binds, and magnesium the sulphur binds and fade takes, are
     # gone before any stays in the bath: the row starts lower by them (below 0 % is a debt the
     # additions pay first), still linear.
     owed = dict(contents_owed_pct(heat, shape.grade, shape.book.settings))
     if owed:
-        debt = np.array([owed.get(s, 0.0) for s in shape.elements]) / 100.0
-        n = len(shape.elements)
-        read[:n] -= debt
-        read[n:2 * n] -= debt
+        debt = [owed.get(s, 0.0) / 100.0 for s in shape.elements]
+        now, low = [v - d for v, d in zip(now, debt)], [v - d for v, d in zip(low, debt)]
         notes += oxygen_notes(heat, shape.grade, {s: pct for s, pct in owed.items() if s == "Al"}, shape.book.settings.units)
         if "Mg" in owed:
             notes.append(_treatment_note(shape, heat))
     elif heat.dissolved_o_ppm:
         notes += oxygen_notes(heat, shape.grade, {}, shape.book.settings.units)
-    return read, owed
+    return low, now, unlisted_now, owed
 
 
-def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, unlisted_now: np.ndarray, row_lower: np.ndarray,
+def _row_bounds(shape: ModelShape, heat: Heat, now: list[float], unlisted_now: list[float], row_lower: np.ndarray,
                 row_upper: np.ndarray, notes: list[str]) -> tuple[list[tuple[int, int, float]], float]:
     """The bounds of every row but the windows and the on/off rows; returns the moving coefficients
     and the arc heating's cost [currency per °C]."""
@@ -185,19 +183,18 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: np.ndarray, unlisted_now: np
         row_upper[shape.temperature.first] = max_drop * bath
     reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
     row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
-    row_upper[shape.unlisted_rows.span] = -bath * unlisted_now
+    row_upper[shape.unlisted_rows.span] = [-bath * fraction for fraction in unlisted_now]
     rise = settings.max_unlisted_rise_pct / 100.0
     # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
     # the same heat then gives the same plan to the last digit on a new model and a used one.
     coefficients = [(row, shape.col_mass, -max(fraction + rise, 1e-8))
-                    for row, fraction in zip(shape.unlisted_rows.rows, unlisted_now.tolist())]
+                    for row, fraction in zip(shape.unlisted_rows.rows, unlisted_now)]
     coefficients += [(shape.temperature.first, shape.col_reheat, -bath),
                      (shape.superheat.first, shape.col_reheat, bath),
                      (shape.superheat.first, shape.col_mass, superheat)]
     if shape.aim_fractions:
-        now_of = now.tolist()  # Python floats: the same arithmetic as NumPy's, a step cheaper each
-        row_lower[shape.aims.span] = row_upper[shape.aims.span] = \
-            [-bath * (now_of[k] - aim) for k, aim in shape.aim_fractions]
+        aims = [-bath * (now[k] - aim) for k, aim in shape.aim_fractions]
+        row_lower[shape.aims.span] = row_upper[shape.aims.span] = aims
     return coefficients, reheat_cost
 
 
