@@ -243,8 +243,10 @@ def _solve(model: HotModel, load: HeatLoad, lower: np.ndarray, upper: np.ndarray
     The LP relaxation comes first (measured in bench/plan_speed.py): it is a fraction of the integer solve's time, proves
     infeasibility on its own, and when its optimum already has whole packs and no addition under its
     minimum it is the integer optimum, duals included. Otherwise branch and bound picks the packs and
-    the on/off choices, and the LP with those fixed gives the masses: exact whole packs, minimums held
-    exactly (not within the integrality tolerance), and the duals of the plan.
+    the on/off choices, starting from ``hint`` (the integer columns of a plan known to stay feasible)
+    or else from the relaxation rounded (meltfix.plan.starts), and the LP with those fixed gives the
+    masses: exact whole packs, minimums held exactly (not within the integrality tolerance), and the
+    duals of the plan.
 
     (Branch and bound on the choices of only the materials the relaxation uses, widened whenever its
     answer used others, was tried and measured slower at 100 and 400 materials: with many near-alike
