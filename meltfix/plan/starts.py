@@ -37,16 +37,19 @@ def with_integers_fixed(model: HotModel, lower: np.ndarray, upper: np.ndarray, i
 
 def roundings(model: HotModel, load: HeatLoad, relaxed_x: np.ndarray) -> list[np.ndarray]:
     """The relaxation's integer columns three ways: pack counts rounded up, to the nearest and down,
-    each with the on/off choices of the materials it uses switched on and the others off."""
+    each with the on/off choices of the materials it uses switched on and the others off. Each point
+    once: without packs, or with every fraction under a half, two or three ways agree, and each
+    point costs best_start an LP."""
     shape = model.shape
     packs = relaxed_x[shape.col_mat]
     used = packs * shape.scale > _USED_KG
-    points = []
+    points: list[np.ndarray] = []
     for rounded in (np.ceil(packs - _USED_KG), np.rint(packs), np.floor(packs + _USED_KG)):
         values = np.zeros(shape.n_cols)
         values[shape.col_mat] = np.where(load.packed, rounded, 0.0)
         values[shape.col_switch] = used[shape.switchable] & load.switched[shape.switchable]
-        points.append(values)
+        if not any(np.array_equal(values, point) for point in points):
+            points.append(values)
     return points
 
 
