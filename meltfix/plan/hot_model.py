@@ -24,11 +24,12 @@ _INF = math.inf
 # hands over (meltfix.plan.starts). Cuts leave the LP relaxation after 3 rounds unused instead of 10
 # (mip_lp_age_limit): the root's cut rounds are most of a search's time here. Both measured together on the
 # same plans, CPU time, best of two: 9.9 -> 8.9 s for 40 heats at 200 materials, 6.2 -> 5.1 s for 200 on the
-# demo book, the same at 400; costs equal to 1e-6. One thread per model: threads plan heats side by side,
-# each on its own model. No simplex scaling: HiGHS keeps the scale factors of a model's first solve, so with
-# them a heat's plan would differ in its last digits depending on which heat that model met first. A primal
-# feasibility tolerance of 1e-9 kg (100 times tighter than HiGHS's default) keeps a plan the solver calls
-# feasible inside its own re-check by the mass balance (a miss beyond 1e-9 wt %) from a 100 kg bath up.
+# demo book, the same at 400; costs equal but one heat at 200 and one at 400, within 5e-6 relative (the
+# search stops at a 1e-6 gap). One thread per model: threads plan heats side by side, each on its own model.
+# No simplex scaling: HiGHS keeps the scale factors of a model's first solve, so with them a heat's plan
+# would differ in its last digits depending on which heat that model met first. A primal feasibility
+# tolerance of 1e-9 kg (100 times tighter than HiGHS's default) keeps a plan the solver calls feasible
+# inside its own re-check by the mass balance (a miss beyond 1e-9 wt %) from a 100 kg bath up.
 _OPTIONS: dict[str, bool | float | str] = {
     "output_flag": False, "log_to_console": False, "presolve": "off", "threads": 1,
     "primal_feasibility_tolerance": 1e-9, "simplex_scale_strategy": 0,
