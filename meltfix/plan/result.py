@@ -97,7 +97,10 @@ class PlanOptions:
     the closest plan may keep, when that saves cost."""
 
 
-@dataclass(frozen=True)
+# A plan builds a dozen of these (frozen dataclasses) per heat: their __init__ below writes the
+# instance's __dict__ directly, where the generated one calls object.__setattr__ per field (twice
+# the time). Frozen all the same: assignment still raises.
+@dataclass(frozen=True, init=False)
 class Addition:
     """One line of the plan."""
 
@@ -110,8 +113,14 @@ class Addition:
     """Number of whole packs, when the material comes in packs."""
     pack_kg: float | None = None
 
+    def __init__(self, material: str, kg: float, cost: float, packs: int | None = None,
+                 pack_kg: float | None = None) -> None:
+        fields = self.__dict__
+        fields["material"], fields["kg"], fields["cost"], fields["packs"], fields["pack_kg"] = (
+            material, kg, cost, packs, pack_kg)
 
-@dataclass(frozen=True)
+
+@dataclass(frozen=True, init=False)  # __init__ as Addition's, for the same reason
 class LimitCheck:
     """The predicted content against one limit of the grade."""
 
@@ -123,6 +132,11 @@ class LimitCheck:
     predicted_pct: float
     margin_pct: float
     """How far inside the limit [wt %]; negative when outside."""
+
+    def __init__(self, element: str, limit: str, limit_pct: float, predicted_pct: float, margin_pct: float) -> None:
+        fields = self.__dict__
+        fields["element"], fields["limit"], fields["limit_pct"], fields["predicted_pct"], fields["margin_pct"] = (
+            element, limit, limit_pct, predicted_pct, margin_pct)
 
 
 @dataclass(frozen=True)
