@@ -24,8 +24,13 @@ from meltfix.plan.treatment import (contents_owed_pct, magnesium_fade_pct, magne
                                     unbound_sulphur_pct)
 from meltfix.shop.grades import Grade
 from meltfix.shop.heat import Heat
+from meltfix.shop.materials import Material
 
 _INF = math.inf
+Line = tuple[Material, float, float, bool, bool, float, float]
+"""One material on one heat in plain Python values: (material, kg per column unit, locked kg or
+NaN, counted in packs, switched, minimum kg, price): a plan's lines read these material by material,
+where converting the arrays each heat took a NumPy call apiece right after the solve."""
 
 
 @dataclass(frozen=True, eq=False)  # holds arrays: == has no single truth value
@@ -54,6 +59,8 @@ class HeatLoad:
     """Per material: the locked amount [kg], NaN when not locked."""
     prices: np.ndarray
     """Per material: this heat's price [currency/kg]."""
+    lines: tuple[Line, ...]
+    """Per material, what reading a solver point back takes (meltfix.plan.planner's plan lines)."""
     active: np.ndarray
     """Per window row: the limit applies on this heat (a 0 % floor applies only to a deoxidation debt)."""
     can_use: np.ndarray
@@ -92,6 +99,7 @@ class _Columns:
     integrality: np.ndarray
     integer: bool
     """Any whole packs or on/off choice (``HeatLoad.integer``)."""
+    lines: tuple[Line, ...]
 
 
 def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = True,
@@ -137,7 +145,8 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
         cost[shape.col_reheat] = reheat_cost
     return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, columns.integrality,
                     tuple(coefficients), columns.integer,
-                    columns.packed, columns.switched, columns.locked_kg, columns.prices, active, columns.can_use,
+                    columns.packed, columns.switched, columns.locked_kg, columns.prices, columns.lines, active,
+                    columns.can_use,
                     pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
 
@@ -288,8 +297,10 @@ def _overridden(shape: ModelShape, stage: str, prices_of: tuple[tuple[str, float
     integrality = np.zeros(shape.n_cols)
     integrality[shape.col_mat] = packed
     integrality[shape.col_switch] = 1
+    lines = tuple(zip(shape.materials, shape.scale.tolist(), locked_kg.tolist(), packed.tolist(), switched.tolist(),
+                      shape.min_kg.tolist(), prices.tolist()))
     columns = _Columns(prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality,
-                       bool(packed.any() or switched.any()))
+                       bool(packed.any() or switched.any()), lines)
     for array in (prices, stock, locked_kg, can_use, packed, switched, col_lower, col_upper, cost, integrality):
         array.flags.writeable = False  # shared by every heat with these overrides
     return columns

@@ -362,11 +362,10 @@ def _additions(shape: ModelShape, load: HeatLoad, x: np.ndarray) -> tuple[list[A
     as locked, every minimum held exactly), costs."""
     # Material by material in plain Python: right after a solve the dozen NumPy calls on small arrays
     # this took cost more than the loop up to ~100 materials (at 400 the loop costs ~60 us more).
-    columns = zip(shape.materials, x[shape.col_mat].tolist(), shape.scale.tolist(), load.locked_kg.tolist(),
-                  load.packed.tolist(), load.switched.tolist(), shape.min_kg.tolist(), load.prices.tolist())
     additions = []
     used: list[tuple[Material, float]] = []
-    for material, point, scale, locked_kg, packed, switched, min_kg, price in columns:
+    points = x[shape.col_mat].tolist()
+    for (material, scale, locked_kg, packed, switched, min_kg, price), point in zip(load.lines, points):
         if not math.isnan(locked_kg):
             kg = locked_kg
         else:
