@@ -16,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from meltfix.shop.analysis import Analysis
-from meltfix.shop.heat import Heat, needed_elements
+from meltfix.shop.heat import Heat
 from meltfix.shop.recipes import RecipeBook
 
 
@@ -113,7 +113,7 @@ def population(book: RecipeBook, n_heats: int, seed: int) -> list[Heat]:
         spread = np.array([route.first_sample[s][1] for s in symbols])
         pct = np.round(median * np.exp(spread * rng.standard_normal(len(symbols))), 4)
         below = frozenset(s for s, (_, sd) in route.first_sample.items() if sd == 0)
-        unreported = sorted(needed_elements(book.grade(name)) - set(symbols))
+        unreported = sorted(book.grade(name).needed_elements - set(symbols))
         symbols += unreported
         pct = np.append(pct, [_UNREPORTED_PCT] * len(unreported))
         below |= frozenset(unreported)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
 from typing import Any
@@ -48,6 +49,12 @@ class Grade:
     @property
     def elements(self) -> tuple[str, ...]:
         return tuple(sorted(self.window_pct, key=element_sort_key))
+
+    @cached_property
+    def needed_elements(self) -> frozenset[str]:
+        """Elements the limits read: the windows and every term of the indices (every heat's check
+        asks; worked out once per grade)."""
+        return frozenset(self.window_pct) | {s for index in self.indices for s, w in index.terms.items() if w}
 
 
 _GRADE_KEYS = {"name", "standard", "family", "window", "aim", "index", "forbid"}

@@ -96,22 +96,17 @@ def stage_material(heat: Heat, book: RecipeBook, name: str) -> Material:
     return book.material(name).at_stage(heat.stage)
 
 
-def needed_elements(grade: Grade) -> frozenset[str]:
-    """Elements a grade's limits read: its windows and every term of its indices."""
-    return frozenset(grade.window_pct) | {s for index in grade.indices for s, w in index.terms.items() if w}
-
-
 def unmeasured(heat: Heat, grade: Grade) -> list[str]:
     """Elements the grade's limits need that the analysis lacks and the heat has not declared
     ``not_measured``, in sheet order. A plan built without them would take them as 0 %."""
-    missing = needed_elements(grade).difference(heat.analysis.pct, heat.not_measured)
+    missing = grade.needed_elements.difference(heat.analysis.pct, heat.not_measured)
     return sorted(missing, key=element_sort_key)
 
 
 def checked_grade(heat: Heat, grade: Grade) -> Grade:
     """The grade as this heat can be checked against it: the windows, aims and indices that read an
     element declared ``not_measured`` are left out (a caution says so), never checked against 0 %."""
-    if not heat.not_measured & needed_elements(grade):
+    if not heat.not_measured & grade.needed_elements:
         return grade
     skip = heat.not_measured
     return replace(
