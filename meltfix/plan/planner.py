@@ -210,7 +210,7 @@ class Planner:
         return violations
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)  # __init__ as meltfix.plan.result.Addition's, for the same reason
 class _Temperature:
     liquidus_c: float
     after_c: float | None
@@ -218,6 +218,12 @@ class _Temperature:
     reheat_c: float
     reheat_min: float
     reheat_cost: float
+
+    def __init__(self, liquidus_c: float, after_c: float | None, short_c: float, reheat_c: float, reheat_min: float,
+                 reheat_cost: float) -> None:
+        fields = self.__dict__
+        fields["liquidus_c"], fields["after_c"], fields["short_c"] = liquidus_c, after_c, short_c
+        fields["reheat_c"], fields["reheat_min"], fields["reheat_cost"] = reheat_c, reheat_min, reheat_cost
 
 
 def _temperature(heat: Heat, book: RecipeBook, shape: ModelShape, x: np.ndarray, drop_c: float,
