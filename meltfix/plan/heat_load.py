@@ -213,10 +213,11 @@ def _row_bounds(shape: ModelShape, heat: Heat, now: list[float], unlisted_now: l
     reheat_cost, superheat = _temperature_load(shape, heat, row_lower, notes)
     row_lower[shape.mass.first] = row_upper[shape.mass.first] = -bath
     row_upper[shape.unlisted_rows.span] = [-bath * fraction for fraction in unlisted_now]
-    rise = settings.max_unlisted_rise_pct / 100.0
+    rise, col_mass = settings.max_unlisted_rise_pct / 100.0, shape.col_mass
     # Floored so that HiGHS, which deletes a coefficient set to 0, keeps the matrix's structure:
     # the same heat then gives the same plan to the last digit on a new model and a used one.
-    coefficients = [(row, shape.col_mass, -max(fraction + rise, 1e-8))
+    # (max() written out: -max(x, 1e-8), a builtin call per row that cost more than the row.)
+    coefficients = [(row, col_mass, -1e-8 if 1e-8 > fraction + rise else -(fraction + rise))
                     for row, fraction in zip(shape.unlisted_rows.rows, unlisted_now)]
     coefficients += [(shape.temperature.first, shape.col_reheat, -bath),
                      (shape.superheat.first, shape.col_reheat, bath),
