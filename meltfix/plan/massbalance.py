@@ -30,15 +30,17 @@ def bath_after(bath_kg: float, analysis_pct: Mapping[str, float],
     binds (meltfix.plan.deoxidation), so a content can come out below 0 % when the debt is not paid.
     The bath mass is left as it is: the alumina leaving takes under 0.1 % of it at 400 ppm O.
     """
-    final_kg, (predicted,) = _baths_after(bath_kg, (analysis_pct,), additions, owed_pct or {})
+    final_kg, predicted, _ = _baths_after(bath_kg, analysis_pct, additions, owed_pct or {})
     return final_kg, predicted
 
 
-def _baths_after(bath_kg: float, starts_pct: Sequence[Mapping[str, float]],
-                 additions: Iterable[tuple[Material, float]], owed_pct: Mapping[str, float]
-                 ) -> tuple[float, list[dict[str, float]]]:
-    """bath_after from each of ``starts_pct`` with the same additions: the bath mass after does not
-    depend on the start, and what each addition dissolves is worked out once."""
+def _baths_after(bath_kg: float, start_pct: Mapping[str, float], additions: Iterable[tuple[Material, float]],
+                 owed_pct: Mapping[str, float], at_zero: frozenset[str] = frozenset()
+                 ) -> tuple[float, dict[str, float], dict[str, float]]:
+    """bath_after, and the analysis after from the same start with the elements in ``at_zero`` at
+    0 % (below-limit readings at their safe end against a minimum). Only those elements differ, so
+    only theirs are summed again, the same terms in the same order: the same floats as a second
+    mass balance from that start."""
     final_kg = bath_kg
     dissolved_kg = []  # (symbol, kg) in the order of the additions and their compositions
     for material, kg in additions:
@@ -47,15 +49,19 @@ def _baths_after(bath_kg: float, starts_pct: Sequence[Mapping[str, float]],
             final_kg += dissolved
             if symbol != "Fe":
                 dissolved_kg.append((symbol, dissolved))
-    analyses = []
-    for start_pct in starts_pct:
-        element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in start_pct.items()}
-        for symbol, pct in owed_pct.items():
-            element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
-        for symbol, dissolved in dissolved_kg:
-            element_kg[symbol] = element_kg.get(symbol, 0.0) + dissolved
-        analyses.append({s: 100.0 * element_kg[s] / final_kg for s in _sheet_order(tuple(element_kg))})
-    return final_kg, analyses
+    element_kg = {symbol: bath_kg * pct / 100.0 for symbol, pct in start_pct.items()}
+    for symbol, pct in owed_pct.items():
+        element_kg[symbol] = element_kg.get(symbol, 0.0) - bath_kg * pct / 100.0
+    for symbol, dissolved in dissolved_kg:
+        element_kg[symbol] = element_kg.get(symbol, 0.0) + dissolved
+    predicted = {s: 100.0 * element_kg[s] / final_kg for s in _sheet_order(tuple(element_kg))}
+    if not at_zero:
+        return final_kg, predicted, predicted
+    zero_kg = {s: 0.0 - bath_kg * owed_pct[s] / 100.0 if s in owed_pct else 0.0 for s in at_zero if s in predicted}
+    for symbol, dissolved in dissolved_kg:
+        if symbol in zero_kg:
+            zero_kg[symbol] += dissolved
+    return final_kg, predicted, predicted | {s: 100.0 * kg / final_kg for s, kg in zero_kg.items()}
 
 
 @lru_cache(maxsize=256)
@@ -88,7 +94,5 @@ def recheck(heat: Heat, grade: Grade, used: Sequence[tuple[Material, float]], se
     owed = contents_owed_pct(heat, grade, settings)
     # Against a minimum a below-limit reading counts as 0, as in the plan's own rows, so a
     # closest plan reports the shortfall it was planned against.
-    starts = (heat.analysis.pct, heat.analysis.lowest_pct) if heat.analysis.below_limit else (heat.analysis.pct,)
-    final_kg, analyses = _baths_after(heat.bath_kg, starts, used, owed)
-    predicted, lowest = analyses[0], analyses[-1]
+    final_kg, predicted, lowest = _baths_after(heat.bath_kg, heat.analysis.pct, used, owed, heat.analysis.below_limit)
     return final_kg, predicted, limit_checks(grade, predicted, lowest, floors=frozenset(owed))
