@@ -167,7 +167,7 @@ class Binding:
     "degC" (the drop); the shop's units rewrite the last three (plan/numbers.binding_text)."""
 
 
-@dataclass(frozen=True, kw_only=True, init=False)  # __init__ as Addition's, for the same reason
+@dataclass(frozen=True, kw_only=True)
 class Plan:
     """The planner's answer for one heat. All masses [kg], contents [wt %], costs [currency].
 
@@ -212,26 +212,6 @@ class Plan:
     """How long that heating takes at the stage's rate [min]."""
     reheat_cost: float = 0.0
     """What that heating costs [currency]; included in ``total_cost``."""
-
-    def __init__(self, *, heat_id: str, grade: str, status: str, additions: tuple[Addition, ...], total_cost: float,
-                 bath_kg: float, final_kg: float, predicted_pct: Mapping[str, float], checks: tuple[LimitCheck, ...],
-                 violations: tuple[Violation, ...], binding: tuple[Binding, ...] | Later[tuple[Binding, ...]],
-                 cautions: tuple[str, ...] | Later[tuple[str, ...]], temperature_drop_c: float,
-                 notes: tuple[str, ...] = (), currency: str = "EUR", proven: bool = True, gap: float = 0.0,
-                 steps: tuple[AdditionStep, ...] | Later[tuple[AdditionStep, ...]] = (),
-                 liquidus_c: float | None = None, temperature_after_c: float | None = None,
-                 superheat_c: float | None = None, reheat_c: float = 0.0, reheat_min: float = 0.0,
-                 reheat_cost: float = 0.0) -> None:
-        fields = self.__dict__
-        fields["heat_id"], fields["grade"], fields["status"], fields["additions"] = heat_id, grade, status, additions
-        fields["total_cost"], fields["bath_kg"], fields["final_kg"] = total_cost, bath_kg, final_kg
-        fields["predicted_pct"], fields["checks"], fields["violations"] = predicted_pct, checks, violations
-        # Where OnFirstRead keeps a field ("_" and its name), as its __set__ would.
-        fields["_binding"], fields["_cautions"], fields["_steps"] = binding, cautions, steps
-        fields["temperature_drop_c"], fields["notes"], fields["currency"] = temperature_drop_c, notes, currency
-        fields["proven"], fields["gap"], fields["liquidus_c"] = proven, gap, liquidus_c
-        fields["temperature_after_c"], fields["superheat_c"] = temperature_after_c, superheat_c
-        fields["reheat_c"], fields["reheat_min"], fields["reheat_cost"] = reheat_c, reheat_min, reheat_cost
 
     @property
     def cost_per_t(self) -> float:

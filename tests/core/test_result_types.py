@@ -14,7 +14,7 @@ from meltfix.plan.heat_load import HeatLoad
 from meltfix.plan.planner import _Temperature
 from meltfix.plan.result import Addition, Later, LimitCheck, Plan
 
-HAND_WRITTEN = (Addition, LimitCheck, Plan, HeatLoad, _Temperature)
+HAND_WRITTEN = (Addition, LimitCheck, HeatLoad, _Temperature)
 
 
 @pytest.mark.parametrize("cls", HAND_WRITTEN, ids=lambda cls: cls.__name__)
