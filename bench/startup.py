@@ -15,6 +15,12 @@ CPU after the paint, on shutting down):
 
 Goals (issue 14): the solve process <= 1.5x importing numpy, the screen <= 1.5x its floor.
 
+Then what the solve process cannot do without, each process importing one more of the libraries it needs
+(the odds' random draws, HiGHS, the standard modules the command uses), as ratios to importing numpy, and
+what `site` costs every process at start (python -c pass against python -S -c pass). Run this in a fresh
+venv: a site-packages `.pth` file that imports a module at every start adds the same time to the process
+and to its floor, and flatters the ratio.
+
 The children read compiled bytecode, as an installed package does (pip compiles it at install):
 PYTHONDONTWRITEBYTECODE is dropped for them and their cache goes to a temporary folder
 (PYTHONPYCACHEPREFIX), filled by one untimed run of each command. Without it every run would
@@ -185,6 +191,25 @@ def _measure(heat: str, runs: int) -> None:
     _report("meltfix --help", figures["help"], figures["pass"], 'python -c "pass"', None)
     _report("first plan painted on the screen", figures["screen"], figures["bare"],
             "bare Textual app solving the same heat", 1.5)
+    _needs(runs)
+
+
+# What `meltfix solve` imports before any of its own modules, one more library per row.
+_LIBRARIES = ("numpy", "numpy.random", "highspy", "dataclasses, argparse, json, tomllib, pathlib")
+
+
+def _needs(runs: int) -> None:
+    """The libraries the solve process needs, added one at a time, beside importing numpy; and site's own start."""
+    ladder = [", ".join(_LIBRARIES[:k + 1]) for k in range(len(_LIBRARIES))]
+    commands = [[sys.executable, "-c", f"import {modules}"] for modules in ladder]
+    commands += [[sys.executable, "-c", "pass"], [sys.executable, "-S", "-c", "pass"]]
+    for command in commands:
+        _wall(command)  # fills the bytecode cache, untimed
+    best = [min(_wall(command)[0] for _ in range(runs)) for command in commands]
+    print("what the solve process needs before its own modules (best of each), as ratios to importing numpy:")
+    for modules, seconds in zip(ladder, best):
+        print(f"    import {modules}: {seconds:.3f} s, {seconds / best[0]:.2f}")
+    print(f"site at start (.pth files included): {1000 * (best[-2] - best[-1]):.0f} ms a process, floors too")
 
 
 if __name__ == "__main__":
