@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import argparse
 import asyncio
+import math
 import os
 import resource
 import statistics
@@ -205,7 +206,9 @@ def _needs(runs: int) -> None:
     commands += [[sys.executable, "-c", "pass"], [sys.executable, "-S", "-c", "pass"]]
     for command in commands:
         _wall(command)  # fills the bytecode cache, untimed
-    best = [min(_wall(command)[0] for _ in range(runs)) for command in commands]
+    best = [math.inf] * len(commands)
+    for _ in range(runs):  # interleaved, so a burst of load hits every row alike
+        best = [min(seconds, _wall(command)[0]) for seconds, command in zip(best, commands)]
     print("what the solve process needs before its own modules (best of each), as ratios to importing numpy:")
     for modules, seconds in zip(ladder, best):
         print(f"    import {modules}: {seconds:.3f} s, {seconds / best[0]:.2f}")
