@@ -34,7 +34,7 @@ where converting the arrays each heat took a NumPy call apiece right after the s
 
 
 # Built once per heat: its __init__ writes the instance's __dict__ directly, where the generated
-# one calls object.__setattr__ per field (4.1 -> 1.5 us for these 22). eq=False: it holds arrays,
+# one calls object.__setattr__ per field (about 4 -> 1.5 us for these 19). eq=False: it holds arrays,
 # whose == has no single truth value.
 @dataclass(frozen=True, eq=False, init=False)
 class HeatLoad:
@@ -58,12 +58,9 @@ class HeatLoad:
     """Per material: counted in whole packs on this heat (not locked, not --continuous)."""
     switched: np.ndarray
     """Per material: has an on/off choice on this heat (a minimum addition, not locked)."""
-    locked_kg: np.ndarray
-    """Per material: the locked amount [kg], NaN when not locked."""
-    prices: np.ndarray
-    """Per material: this heat's price [currency/kg]."""
     lines: tuple[Line, ...]
-    """Per material, what reading a solver point back takes (meltfix.plan.planner's plan lines)."""
+    """Per material, what reading a solver point back takes (meltfix.plan.planner's plan lines): its
+    lock and price among them."""
     active: np.ndarray
     """Per window row: the limit applies on this heat (a 0 % floor applies only to a deoxidation debt)."""
     can_use: np.ndarray
@@ -81,16 +78,15 @@ class HeatLoad:
     def __init__(self, col_lower: np.ndarray, col_upper: np.ndarray, col_upper_all: np.ndarray, cost: np.ndarray,
                  row_lower: np.ndarray, row_upper: np.ndarray, integrality: np.ndarray,
                  coefficients: tuple[tuple[int, int, float], ...], integer: bool, packed: np.ndarray,
-                 switched: np.ndarray, locked_kg: np.ndarray, prices: np.ndarray, lines: tuple[Line, ...],
-                 active: np.ndarray, can_use: np.ndarray, pruned: np.ndarray, grade: Grade, limit_pct: np.ndarray,
-                 mass_coefficients: np.ndarray, notes: tuple[str, ...]) -> None:
+                 switched: np.ndarray, lines: tuple[Line, ...], active: np.ndarray, can_use: np.ndarray,
+                 pruned: np.ndarray, grade: Grade, limit_pct: np.ndarray, mass_coefficients: np.ndarray,
+                 notes: tuple[str, ...]) -> None:
         fields = self.__dict__
         fields["col_lower"], fields["col_upper"], fields["col_upper_all"], fields["cost"] = (
             col_lower, col_upper, col_upper_all, cost)
         fields["row_lower"], fields["row_upper"], fields["integrality"], fields["coefficients"] = (
             row_lower, row_upper, integrality, coefficients)
-        fields["integer"], fields["packed"], fields["switched"], fields["locked_kg"], fields["prices"] = (
-            integer, packed, switched, locked_kg, prices)
+        fields["integer"], fields["packed"], fields["switched"] = integer, packed, switched
         fields["lines"], fields["active"], fields["can_use"], fields["pruned"], fields["grade"] = (
             lines, active, can_use, pruned, grade)
         fields["limit_pct"], fields["mass_coefficients"], fields["notes"] = limit_pct, mass_coefficients, notes
@@ -164,10 +160,8 @@ def load_of(shape: ModelShape, heat: Heat, aim_penalty: float, prune: bool = Tru
         cost = cost.copy()
         cost[shape.col_reheat] = reheat_cost
     return HeatLoad(col_lower, col_upper, col_upper_all, cost, row_lower, row_upper, columns.integrality,
-                    tuple(coefficients), columns.integer,
-                    columns.packed, columns.switched, columns.locked_kg, columns.prices, columns.lines, active,
-                    columns.can_use,
-                    pruned, grade, limit_pct, mass_coefficients, tuple(notes))
+                    tuple(coefficients), columns.integer, columns.packed, columns.switched, columns.lines, active,
+                    columns.can_use, pruned, grade, limit_pct, mass_coefficients, tuple(notes))
 
 
 def _analysis_now(shape: ModelShape, heat: Heat, notes: list[str]

@@ -48,7 +48,7 @@ def test_the_instances_read_replace_and_compare_as_generated_ones_would() -> Non
 @pytest.mark.parametrize("instance", [
     Addition("FeMn", 10.0, 12.5), LimitCheck("Mn", "max", 1.2, 1.0, 0.2), _plan(),
     _Temperature(1500.0, None, 0.0, 0.0, 0.0, 0.0),
-    HeatLoad(*([np.zeros(1)] * 7), (), False, *([np.zeros(1)] * 4), (), *([np.zeros(1)] * 3), None,
+    HeatLoad(*([np.zeros(1)] * 7), (), False, *([np.zeros(1)] * 2), (), *([np.zeros(1)] * 3), None,
              np.zeros(1), np.zeros(1), ()),
 ], ids=lambda instance: type(instance).__name__)
 def test_the_instances_stay_frozen(instance: object) -> None:
